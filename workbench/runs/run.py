@@ -1,0 +1,351 @@
+"""The run: a recorded (or simulated) acquisition held as channels x samples.
+
+A :class:`Run` never copies its data.  ``data`` may be a read-only :class:`numpy.memmap` over a
+WAV file, so a recording larger than memory can still be opened; :meth:`Run.iter_chunks` streams
+one channel in physical units without reading the rest.
+
+Units
+-----
+``data`` holds *raw* values, exactly as stored:
+
+* integer arrays (``int16``, ``int32``: memory-mapped PCM codes) are fractions of full scale once
+  divided by ``2**(bits - 1)`` (32768 for int16, 2**31 for int32), so raw values lie in [-1, 1);
+* floating-point arrays are raw values as they are (a WAV float file, a CSV column, an NPZ array).
+
+:attr:`Channel.sensitivity` is the transducer sensitivity in *raw units per physical unit*
+(for a voltage recording of an accelerometer, V per m/s^2; for a WAV file, fraction of full scale
+per physical unit).  :meth:`Run.channel` therefore returns ``raw / sensitivity`` in
+:attr:`Channel.unit`.  The default sensitivity 1.0 means the stored values are already physical.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import math
+import numbers
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from workbench.errors import InputError
+
+__all__ = ["Channel", "Run", "LogEntry", "full_scale"]
+
+#: One processing-log entry: (ISO 8601 timestamp, action, parameters).
+LogEntry = tuple[str, str, Mapping[str, Any]]
+
+
+def full_scale(dtype: np.dtype) -> float:
+    """Divisor that turns raw values of ``dtype`` into fractions of full scale.
+
+    Parameters
+    ----------
+    dtype : numpy dtype
+        Dtype of :attr:`Run.data`.
+
+    Returns
+    -------
+    float
+        ``2**(bits - 1)`` for signed integer dtypes (PCM codes), 1.0 for floating-point dtypes.
+    """
+    dtype = np.dtype(dtype)
+    if dtype.kind == "i":
+        return float(2 ** (8 * dtype.itemsize - 1))
+    if dtype.kind == "f":
+        return 1.0
+    raise InputError(f"run data of dtype {dtype} is not supported; allowed: signed integers "
+                     "(PCM codes) or floating point")
+
+
+def _is_int(value: Any) -> bool:
+    return isinstance(value, numbers.Integral) and not isinstance(value, bool)
+
+
+@dataclass(frozen=True)
+class Channel:
+    """One channel of a run.
+
+    Parameters
+    ----------
+    name : str
+        Channel name, unique within a run (e.g. ``"vibration"``, ``"tacho"``, ``"X105_DE_time"``).
+    unit : str, optional
+        Physical unit after dividing by the sensitivity (``"m/s^2"``, ``"g"``, ``"V"``); empty when
+        unknown.
+    sensitivity : float, optional
+        Raw units per physical unit, > 0 (e.g. 0.01 for a 10 mV per m/s^2 accelerometer recorded
+        in volts).  Physical value = raw value / sensitivity.  Default 1.0.
+    """
+
+    name: str
+    unit: str = ""
+    sensitivity: float = 1.0
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.name, str) or not self.name.strip():
+            raise InputError(f"channel name {self.name!r} is not valid; allowed: a non-empty string")
+        if not isinstance(self.unit, str):
+            raise InputError(f"channel '{self.name}': unit {self.unit!r} is not valid; allowed: "
+                             "a string")
+        s = self.sensitivity
+        if isinstance(s, bool) or not isinstance(s, numbers.Real) or not math.isfinite(s) or s <= 0:
+            raise InputError(f"channel '{self.name}': sensitivity {s!r} is not valid; allowed: a "
+                             "finite number > 0 (raw units per physical unit)")
+        object.__setattr__(self, "sensitivity", float(s))
+
+
+def _now_iso() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def _as_log_entry(entry: Any, parameters: Mapping[str, Any] | None) -> LogEntry:
+    if isinstance(entry, str):
+        return (_now_iso(), entry, dict(parameters or {}))
+    if parameters is not None:
+        raise InputError("with_log: give parameters either inside the entry tuple or as the "
+                         "second argument, not both")
+    if isinstance(entry, tuple) and len(entry) == 2:
+        action, params = entry
+        return _as_log_entry(action, params)
+    if isinstance(entry, tuple) and len(entry) == 3:
+        stamp, action, params = entry
+        if not isinstance(stamp, str) or not isinstance(action, str) or not isinstance(
+                params, Mapping):
+            raise InputError(f"log entry {entry!r} is not valid; allowed: (timestamp str, action "
+                             "str, parameters mapping)")
+        return (stamp, action, dict(params))
+    raise InputError(f"log entry {entry!r} is not valid; allowed: an action string, (action, "
+                     "parameters) or (timestamp, action, parameters)")
+
+
+@dataclass(frozen=True, eq=False)
+class Run:
+    """A recorded or simulated acquisition.
+
+    Parameters
+    ----------
+    data : ndarray, shape (n_channels, n_samples)
+        Raw values, time on the last axis (see the module notes on units).  Never copied: a
+        read-only :class:`numpy.memmap` stays one.  A 1-D array is taken as one channel (a view).
+    rate_hz : float
+        Sample rate in Hz, > 0.
+    channels : sequence of Channel or str
+        One entry per row of ``data``; a string is a channel name with no unit and sensitivity 1.
+    tacho : str or int, optional
+        The tacho channel: a name, or a 1-based index (int or digit string).  Stored as the name.
+    pulses_per_rev : int, optional
+        Tooth positions per revolution of the tacho wheel, counting missing ones (60-2 wheel: 60).
+    missing_pulses : int, optional
+        Consecutive missing tooth positions (60-2 wheel: 2); 0 <= missing_pulses < pulses_per_rev.
+    machine_file : str, optional
+        Path of the machine file the run belongs to.
+    source : str, optional
+        File the run was read from.
+    log : tuple of (str, str, dict), optional
+        Processing log, oldest first: (ISO 8601 UTC timestamp, action, parameters), as in ObsPy's
+        processing history.  Add to it with :meth:`with_log`.
+    """
+
+    data: np.ndarray
+    rate_hz: float
+    channels: tuple[Channel, ...]
+    tacho: str | None = None
+    pulses_per_rev: int = 1
+    missing_pulses: int = 0
+    machine_file: str | None = None
+    source: str | None = None
+    log: tuple[LogEntry, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        data = self.data
+        if not isinstance(data, np.ndarray):
+            raise InputError(f"run data must be a numpy array, not {type(data).__name__}")
+        if data.ndim == 1:
+            data = data.reshape(1, -1)
+        if data.ndim != 2:
+            raise InputError(f"run data has shape {data.shape}; allowed: (n_channels, n_samples)")
+        full_scale(data.dtype)  # rejects unsupported dtypes
+        object.__setattr__(self, "data", data)
+        r = self.rate_hz
+        if isinstance(r, bool) or not isinstance(r, numbers.Real) or not math.isfinite(r) or r <= 0:
+            raise InputError(f"rate_hz {r!r} is not valid; allowed: a finite number > 0 (Hz)")
+        object.__setattr__(self, "rate_hz", float(r))
+        if isinstance(self.channels, (str, Channel)) or not isinstance(self.channels, Sequence):
+            raise InputError("channels must be a sequence of Channel objects or names")
+        chans = tuple(c if isinstance(c, Channel) else Channel(c) for c in self.channels)
+        if len(chans) != data.shape[0]:
+            raise InputError(f"{len(chans)} channel(s) given for data with {data.shape[0]} rows; "
+                             "give one channel per row of data")
+        names = [c.name for c in chans]
+        dup = sorted({n for n in names if names.count(n) > 1})
+        if dup:
+            raise InputError(f"channel names must be unique; repeated: {', '.join(dup)}")
+        object.__setattr__(self, "channels", chans)
+        if not _is_int(self.pulses_per_rev) or self.pulses_per_rev < 1:
+            raise InputError(f"pulses_per_rev {self.pulses_per_rev!r} is not valid; allowed: an "
+                             "integer >= 1 (tooth positions per revolution, missing ones included)")
+        if not _is_int(self.missing_pulses) or not 0 <= self.missing_pulses < self.pulses_per_rev:
+            raise InputError(f"missing_pulses {self.missing_pulses!r} is not valid; allowed: an "
+                             f"integer from 0 to pulses_per_rev - 1 = {self.pulses_per_rev - 1}")
+        object.__setattr__(self, "pulses_per_rev", int(self.pulses_per_rev))
+        object.__setattr__(self, "missing_pulses", int(self.missing_pulses))
+        if self.tacho is not None:
+            object.__setattr__(self, "tacho", chans[self.channel_index(self.tacho)].name)
+        for name in ("machine_file", "source"):
+            value = getattr(self, name)
+            if value is not None:
+                object.__setattr__(self, name, str(value))
+        object.__setattr__(self, "log", tuple(_as_log_entry(e, None) for e in self.log))
+
+    # ----------------------------------------------------------------- derived values
+    @property
+    def n_channels(self) -> int:
+        """Number of channels."""
+        return int(self.data.shape[0])
+
+    @property
+    def n_samples(self) -> int:
+        """Number of samples per channel."""
+        return int(self.data.shape[1])
+
+    @property
+    def duration_s(self) -> float:
+        """Length of the run in s: ``n_samples / rate_hz``."""
+        return self.n_samples / self.rate_hz
+
+    @property
+    def nyquist_hz(self) -> float:
+        """Nyquist frequency in Hz: ``rate_hz / 2``."""
+        return self.rate_hz / 2.0
+
+    @property
+    def time_s(self) -> np.ndarray:
+        """Sample instants in s, shape (n_samples,), computed on each access (not stored)."""
+        return np.arange(self.n_samples, dtype=np.float64) / self.rate_hz
+
+    @property
+    def channel_names(self) -> tuple[str, ...]:
+        """Channel names in order."""
+        return tuple(c.name for c in self.channels)
+
+    @property
+    def tacho_index(self) -> int | None:
+        """0-based row of the tacho channel in :attr:`data`, or None."""
+        return None if self.tacho is None else self.channel_names.index(self.tacho)
+
+    # ----------------------------------------------------------------- access
+    def channel_index(self, ch: int | str) -> int:
+        """0-based row of a channel.
+
+        Parameters
+        ----------
+        ch : int or str
+            A 1-based index (int, or a string of digits) or a channel name.
+
+        Returns
+        -------
+        int
+            Row of :attr:`data`.
+
+        Raises
+        ------
+        InputError
+            Unknown name or index out of range; the message lists the channels.
+        """
+        names = self.channel_names
+        listing = ", ".join(f"{i + 1}={n!r}" for i, n in enumerate(names))
+        if isinstance(ch, str) and ch in names:
+            return names.index(ch)
+        if isinstance(ch, str) and ch.strip().isdigit():
+            ch = int(ch.strip())
+        if _is_int(ch):
+            if 1 <= ch <= len(names):
+                return int(ch) - 1
+            raise InputError(f"channel {ch} is out of range; channels are numbered from 1: "
+                             f"{listing}")
+        raise InputError(f"channel {ch!r} not found; available: {listing}")
+
+    def channel(self, ch: int | str) -> np.ndarray:
+        """One channel in physical units.
+
+        Parameters
+        ----------
+        ch : int or str
+            1-based index or name (see :meth:`channel_index`).
+
+        Returns
+        -------
+        ndarray of float64, shape (n_samples,)
+            ``raw / full_scale / sensitivity``, a new array in :attr:`Channel.unit`.
+        """
+        i = self.channel_index(ch)
+        return self._physical(i, 0, self.n_samples)
+
+    def _physical(self, i: int, start: int, stop: int) -> np.ndarray:
+        scale = 1.0 / (full_scale(self.data.dtype) * self.channels[i].sensitivity)
+        out = np.array(self.data[i, start:stop], dtype=np.float64)  # always a new array
+        if scale != 1.0:
+            out *= scale
+        return out
+
+    def iter_chunks(self, ch: int | str, chunk_samples: int, overlap: int = 0
+                    ) -> Iterator[np.ndarray]:
+        """Stream one channel in physical units, chunk by chunk.
+
+        Parameters
+        ----------
+        ch : int or str
+            1-based index or name.
+        chunk_samples : int
+            Samples per chunk, >= 1.  The last chunk may be shorter.
+        overlap : int, optional
+            Samples shared by consecutive chunks, 0 <= overlap < chunk_samples; chunk k starts at
+            ``k * (chunk_samples - overlap)``.
+
+        Yields
+        ------
+        ndarray of float64, shape (<= chunk_samples,)
+            A new array per chunk; only that chunk is read from a memory-mapped file.
+        """
+        i = self.channel_index(ch)
+        if not _is_int(chunk_samples) or chunk_samples < 1:
+            raise InputError(f"chunk_samples {chunk_samples!r} is not valid; allowed: an integer "
+                             ">= 1")
+        if not _is_int(overlap) or not 0 <= overlap < chunk_samples:
+            raise InputError(f"overlap {overlap!r} is not valid; allowed: an integer from 0 to "
+                             f"chunk_samples - 1 = {chunk_samples - 1}")
+        step = chunk_samples - overlap
+        n = self.n_samples
+        start = 0
+        while start < n:
+            stop = min(start + chunk_samples, n)
+            yield self._physical(i, start, stop)
+            if stop == n:
+                break
+            start += step
+
+    def with_log(self, entry: str | tuple, parameters: Mapping[str, Any] | None = None) -> Run:
+        """A copy of the run with one more processing-log entry (the data is shared, not copied).
+
+        Parameters
+        ----------
+        entry : str or tuple
+            An action name (then stamped with the current UTC time), ``(action, parameters)``, or
+            a full ``(timestamp, action, parameters)`` entry.
+        parameters : mapping, optional
+            Parameters of the action, when ``entry`` is an action name.
+
+        Returns
+        -------
+        Run
+        """
+        return dataclasses.replace(self, log=self.log + (_as_log_entry(entry, parameters),))
+
+    def __repr__(self) -> str:
+        kind = "memmap" if isinstance(self.data, np.memmap) else "array"
+        return (f"Run({self.n_channels} channels {list(self.channel_names)}, {self.n_samples} "
+                f"samples at {self.rate_hz:g} Hz ({self.duration_s:g} s), {self.data.dtype} "
+                f"{kind}, tacho={self.tacho!r})")
