@@ -86,7 +86,8 @@ class Channel:
 
     def __post_init__(self) -> None:
         if not isinstance(self.name, str) or not self.name.strip():
-            raise InputError(f"channel name {self.name!r} is not valid; allowed: a non-empty string")
+            raise InputError(f"channel name {self.name!r} is not valid; allowed: a non-empty "
+                             "string")
         if not isinstance(self.unit, str):
             raise InputError(f"channel '{self.name}': unit {self.unit!r} is not valid; allowed: "
                              "a string")
@@ -346,6 +347,7 @@ class Run:
 
     def __repr__(self) -> str:
         kind = "memmap" if isinstance(self.data, np.memmap) else "array"
-        return (f"Run({self.n_channels} channels {list(self.channel_names)}, {self.n_samples} "
-                f"samples at {self.rate_hz:g} Hz ({self.duration_s:g} s), {self.data.dtype} "
-                f"{kind}, tacho={self.tacho!r})")
+        plural = "" if self.n_channels == 1 else "s"
+        return (f"Run({self.n_channels} channel{plural} {list(self.channel_names)}, "
+                f"{self.n_samples} samples at {self.rate_hz:g} Hz ({self.duration_s:g} s), "
+                f"{self.data.dtype} {kind}, tacho={self.tacho!r})")
