@@ -1,1 +1,42 @@
-"""runs layer."""
+"""Runs layer: run files (WAV/CSV/NPZ/MAT + JSON sidecar), the Run object, safe output writing
+and the virtual acquisition (simulator).
+
+Typical use::
+
+    from workbench.runs import read_run
+    run = read_run("runup.wav")            # sidecar runup.json read when present
+    x = run.channel("vibration")           # physical units (raw / sensitivity)
+    for chunk in run.iter_chunks("vibration", 65536):
+        ...
+"""
+
+from workbench.runs.files import RUN_EXTENSIONS, check_finite, read_run, write_run
+from workbench.runs.output import atomic_output, check_writable
+from workbench.runs.run import Channel, LogEntry, Run, full_scale
+from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, sidecar_from_dict,
+                                    sidecar_path, write_sidecar)
+from workbench.runs.wav import SAMPLE_FORMATS, WavInfo, WavWriter, read_wav, read_wav_info
+
+__all__ = [
+    "Channel",
+    "LogEntry",
+    "Run",
+    "full_scale",
+    "RUN_EXTENSIONS",
+    "read_run",
+    "write_run",
+    "check_finite",
+    "atomic_output",
+    "check_writable",
+    "Sidecar",
+    "read_sidecar",
+    "write_sidecar",
+    "sidecar_from_dict",
+    "sidecar_path",
+    "resolve_inside",
+    "SAMPLE_FORMATS",
+    "WavInfo",
+    "WavWriter",
+    "read_wav",
+    "read_wav_info",
+]
