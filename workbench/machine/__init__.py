@@ -1,1 +1,64 @@
-"""machine layer."""
+"""Layer 1, the drive train: shafts, sources, speed ratios, lines and the machine file.
+
+Typical use::
+
+    from workbench.machine import read_machine
+    machine = read_machine("gearbox.toml")
+    machine.shaft_orders()      # {"input": 1.0, "countershaft": 0.343..., ...}
+    for line in machine.lines():
+        print(line.name, line.order, line.hz)
+"""
+
+from workbench.machine.machinefile import (
+    machine_from_dict,
+    machine_to_dict,
+    machine_to_toml,
+    read_machine,
+    write_machine,
+)
+from workbench.machine.model import (
+    FIXED,
+    LINE_KINDS,
+    ROTATING_RACES,
+    SOURCE_TYPES,
+    Bearing,
+    BearingFrequencies,
+    FixedLine,
+    GearStage,
+    Line,
+    Machine,
+    OrderSource,
+    PlanetaryFrequencies,
+    PlanetaryStage,
+    Rotor,
+    Shaft,
+    Source,
+    bearing_frequencies,
+    planetary_frequencies,
+)
+
+__all__ = [
+    "FIXED",
+    "LINE_KINDS",
+    "ROTATING_RACES",
+    "SOURCE_TYPES",
+    "Bearing",
+    "BearingFrequencies",
+    "FixedLine",
+    "GearStage",
+    "Line",
+    "Machine",
+    "OrderSource",
+    "PlanetaryFrequencies",
+    "PlanetaryStage",
+    "Rotor",
+    "Shaft",
+    "Source",
+    "bearing_frequencies",
+    "machine_from_dict",
+    "machine_to_dict",
+    "machine_to_toml",
+    "planetary_frequencies",
+    "read_machine",
+    "write_machine",
+]
