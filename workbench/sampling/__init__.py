@@ -1,1 +1,24 @@
-"""sampling layer."""
+"""Sampling layer: folding, anti-alias filters, speed profiles.
+
+Pure math of acquisition.  Imports only numpy, scipy, pandas and the standard library (and the
+machine layer's line objects, by duck typing).
+"""
+
+from workbench.sampling.filters import (ANALOG_KINDS, FILTER_KINDS, MAX_ANALOG_ORDER,
+                                        TABLE_UNITS, AntiAliasFilter)
+from workbench.sampling.folding import apparent_frequency, apparent_order, nyquist_zone
+from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
+
+__all__ = [
+    "apparent_frequency",
+    "nyquist_zone",
+    "apparent_order",
+    "FILTER_KINDS",
+    "ANALOG_KINDS",
+    "TABLE_UNITS",
+    "MAX_ANALOG_ORDER",
+    "AntiAliasFilter",
+    "PROFILE_KINDS",
+    "SpeedProfile",
+    "read_speed_table",
+]
