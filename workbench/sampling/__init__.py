@@ -1,4 +1,4 @@
-"""Sampling layer: folding, anti-alias filters, speed profiles.
+"""Sampling layer: folding, anti-alias filters, speed profiles, test plans.
 
 Pure math of acquisition.  Imports only numpy, scipy, pandas and the standard library (and the
 machine layer's line objects, by duck typing).
@@ -7,6 +7,8 @@ machine layer's line objects, by duck typing).
 from workbench.sampling.filters import (ANALOG_KINDS, FILTER_KINDS, MAX_ANALOG_ORDER,
                                         TABLE_UNITS, AntiAliasFilter)
 from workbench.sampling.folding import apparent_frequency, apparent_order, nyquist_zone
+from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from_dict,
+                                     plan_to_dict, read_plan, write_plan)
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
 
 __all__ = [
@@ -21,4 +23,11 @@ __all__ = [
     "PROFILE_KINDS",
     "SpeedProfile",
     "read_speed_table",
+    "DEFAULT_THRESHOLD_DB",
+    "Band",
+    "Plan",
+    "read_plan",
+    "plan_from_dict",
+    "plan_to_dict",
+    "write_plan",
 ]
