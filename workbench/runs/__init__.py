@@ -10,11 +10,14 @@ Typical use::
         ...
 """
 
-from workbench.runs.files import RUN_EXTENSIONS, check_finite, read_run, write_run
+from workbench.runs.files import (RUN_EXTENSIONS, check_finite, read_run, sidecar_for_run,
+                                  write_run)
 from workbench.runs.output import atomic_output, check_writable
 from workbench.runs.run import Channel, LogEntry, Run, full_scale
 from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, sidecar_from_dict,
                                     sidecar_path, write_sidecar)
+from workbench.runs.simulate import (TACHO_HIGH_V, VIBRATION_UNIT, resonance_gain, simulate_run,
+                                     simulate_to_wav)
 from workbench.runs.wav import SAMPLE_FORMATS, WavInfo, WavWriter, read_wav, read_wav_info
 
 __all__ = [
@@ -26,6 +29,7 @@ __all__ = [
     "read_run",
     "write_run",
     "check_finite",
+    "sidecar_for_run",
     "atomic_output",
     "check_writable",
     "Sidecar",
@@ -39,4 +43,9 @@ __all__ = [
     "WavWriter",
     "read_wav",
     "read_wav_info",
+    "simulate_run",
+    "simulate_to_wav",
+    "resonance_gain",
+    "VIBRATION_UNIT",
+    "TACHO_HIGH_V",
 ]

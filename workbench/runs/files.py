@@ -42,7 +42,7 @@ from workbench.runs.run import Channel, Run, full_scale
 from workbench.runs.sidecar import Sidecar, read_sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter, read_wav
 
-__all__ = ["RUN_EXTENSIONS", "read_run", "write_run", "check_finite"]
+__all__ = ["RUN_EXTENSIONS", "read_run", "write_run", "check_finite", "sidecar_for_run"]
 
 #: Extensions :func:`read_run` accepts.
 RUN_EXTENSIONS = (".wav", ".csv", ".npz", ".mat")
@@ -491,7 +491,25 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
 
 
 # --------------------------------------------------------------------------- write_run
-def _sidecar_for(run: Run, path: Path, notes: Any) -> Sidecar:
+def sidecar_for_run(run: Run, path: str | os.PathLike, *, notes: Any = None) -> Sidecar:
+    """The sidecar describing ``run`` when written to ``path``.
+
+    Parameters
+    ----------
+    run : Run
+        The run (channels, rate, tacho, wheel, machine file).
+    path : path-like
+        Where the run file will be written.
+    notes : any JSON value, optional
+        Free-form notes.
+
+    Returns
+    -------
+    Sidecar
+        ``machine_file`` relative to the run file's folder when the machine file lies inside
+        it; otherwise left out, with a :class:`FoldlineWarning`.
+    """
+    path = Path(path)
     machine = None
     if run.machine_file is not None:
         folder = path.parent.resolve()
@@ -553,7 +571,7 @@ def write_run(run: Run, path: str | os.PathLike, *, force: bool = False,
     side = sidecar_path(path)
     check_writable(path, force=force)
     check_writable(side, force=force)
-    meta = _sidecar_for(run, path, notes)
+    meta = sidecar_for_run(run, path, notes=notes)
     with atomic_output(side, force=force) as side_tmp:
         write_sidecar(meta, side_tmp, force=True)
         if ext == ".wav":
