@@ -10,6 +10,9 @@ from workbench.sampling.folding import apparent_frequency, apparent_order, nyqui
 from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from_dict,
                                      plan_to_dict, read_plan, write_plan)
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
+from workbench.sampling.foldmap import COLLISION_COLUMNS, FoldMap, find_collisions, fold_map
+from workbench.sampling.advisor import (STANDARD_RATES_HZ, Advice, AngleSettings, advise,
+                                        angle_settings, min_rate_for)
 
 __all__ = [
     "apparent_frequency",
@@ -30,4 +33,14 @@ __all__ = [
     "plan_from_dict",
     "plan_to_dict",
     "write_plan",
+    "COLLISION_COLUMNS",
+    "FoldMap",
+    "fold_map",
+    "find_collisions",
+    "STANDARD_RATES_HZ",
+    "Advice",
+    "AngleSettings",
+    "advise",
+    "angle_settings",
+    "min_rate_for",
 ]
