@@ -15,7 +15,7 @@ $(STAMP): pyproject.toml
 install: $(STAMP)
 
 demo: $(STAMP)
-	$(VENV)/bin/foldline demo --out out/demo
+	$(VENV)/bin/foldline demo --out out/demo --force
 
 test: $(STAMP)
 	$(PY) -m pytest -q
