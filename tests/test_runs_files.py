@@ -205,6 +205,16 @@ def test_csv_time_column_and_rate_argument_must_agree(tmp_path):
         read_run(p, rate_hz=5.0)
 
 
+def test_csv_rate_from_printed_times_is_exact(tmp_path):
+    p = tmp_path / "r.csv"
+    t = np.arange(2000) / 12800.0  # here 1 / mean step is 12800.000000000002 in float64
+    lines = "".join(f"{float(ti)!r},{np.sin(ti):.6f}\n" for ti in t)
+    p.write_text("time_s,vib\n" + lines)
+    run = read_run(p, rate_hz=12800)
+    assert run.rate_hz == 12800.0  # float noise removed, so the run can be written as WAV
+    assert run.n_samples == 2000
+
+
 def test_csv_time_starting_late_is_logged(tmp_path):
     p = tmp_path / "r.csv"
     p.write_text("time,a\n10.0,1\n10.5,2\n")

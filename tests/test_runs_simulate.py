@@ -21,8 +21,7 @@ from workbench.errors import FoldlineWarning, InputError, OutputExistsError
 from workbench.machine import FixedLine, Machine, OrderSource, Shaft
 from workbench.runs.files import read_run
 from workbench.runs.simulate import resonance_gain, simulate_run, simulate_to_wav
-from workbench.sampling import AntiAliasFilter, SpeedProfile, apparent_frequency
-from workbench.sampling.plan import Plan
+from workbench.sampling import AntiAliasFilter, Plan, SpeedProfile, apparent_frequency
 
 RATE = 1000.0
 BUTTER = AntiAliasFilter("butterworth", order=4, cutoff=0.4)  # -3 dB at 400 Hz

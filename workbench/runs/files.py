@@ -49,7 +49,7 @@ RUN_EXTENSIONS = (".wav", ".csv", ".npz", ".mat")
 _WRITE_EXTENSIONS = (".wav", ".npz")
 _TIME_NAMES = ("time_s", "time", "t")
 _CHUNK = 1 << 16
-_RATE_RTOL = 1e-9
+_RATE_RTOL = 1e-6  # rates from a time column are only as exact as the printed times
 _TIME_RTOL = 1e-6
 
 
@@ -222,6 +222,8 @@ def _read_csv(path: Path) -> _Read:
                 f"{_TIME_RTOL:g} relative; the samples must be uniformly spaced (if the times "
                 "are only rounded, drop the time column and pass --rate)")
         rate = 1.0 / dt
+        if rate > 0.5 and abs(rate - round(rate)) <= 1e-9 * rate:
+            rate = float(round(rate))  # float noise of 1 / step, not a different rate
         notes["time_column"] = tname
         if t[0] != 0:
             notes["time_start_s"] = float(t[0])
@@ -393,7 +395,9 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
     shape (channels, samples); a 2-D array is taken as (samples, channels) and transposed when
     ``channel_names`` (or the sidecar's channel list) matches its second axis only, or, with no
     names, when it has more rows than columns (recordings have more samples than channels).
-    Integer NPZ and MAT arrays are values and are converted to float64 unscaled.  MAT: every
+    Float data are scanned once for NaN and inf in chunks (reading the file once; memory does
+    not grow with it).  Integer NPZ and MAT arrays are values and are converted to float64
+    unscaled.  MAT: every
     numeric vector of the largest common length becomes a channel named after its variable;
     scalars (e.g. ``X105RPM``) are recorded in the log.
     """
