@@ -395,11 +395,10 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
     shape (channels, samples); a 2-D array is taken as (samples, channels) and transposed when
     ``channel_names`` (or the sidecar's channel list) matches its second axis only, or, with no
     names, when it has more rows than columns (recordings have more samples than channels).
-    Float data are scanned once for NaN and inf in chunks (reading the file once; memory does
-    not grow with it).  Integer NPZ and MAT arrays are values and are converted to float64
-    unscaled.  MAT: every
-    numeric vector of the largest common length becomes a channel named after its variable;
-    scalars (e.g. ``X105RPM``) are recorded in the log.
+    MAT: every numeric vector of the largest common length becomes a channel named after its
+    variable; scalars (e.g. ``X105RPM``) are recorded in the log.  Integer NPZ and MAT arrays
+    are values and are converted to float64 unscaled.  Float data are scanned once for NaN and
+    inf in chunks (the file is read once; memory does not grow with it).
     """
     path = Path(path)
     ext = path.suffix.lower()
