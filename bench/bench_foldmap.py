@@ -28,7 +28,7 @@ def _big_machine(n_lines=200):
     from workbench.machine import machine_from_dict
 
     rng = np.random.default_rng(1)
-    orders = np.sort(rng.uniform(0.3, 120.0, n_lines))
+    orders = np.sort(rng.uniform(0.3, 120.0, n_lines - 1))  # plus the shaft line
     return machine_from_dict(
         {
             "machine": {"name": "benchmark", "reference": "input"},

@@ -170,6 +170,13 @@ def min_rate_for(filt, top_hz: float) -> float:
     """
     if top_hz <= 0:
         return 0.0
+    if filt.kind != "table" or getattr(filt, "table_units", "hz") == "fraction":
+        # Every model but a table in Hz scales with the rate: the usable edge is a fixed
+        # fraction of it.
+        fraction = filt.usable_edge_hz(1.0)
+        if fraction <= 0:
+            raise InputError(f"the {filt.kind} filter has no usable band at any rate")
+        return top_hz / fraction
     lo, hi = 2.0 * top_hz, 2.0 * top_hz
     for _ in range(64):
         if filt.usable_edge_hz(hi) >= top_hz:
@@ -242,7 +249,7 @@ def angle_settings(lines, plan, *, max_order=None, order_resolution=None) -> Ang
     )
 
 
-def advise(machine, plan, *, rates_hz=None, n_speeds=2000) -> Advice:
+def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
     """Judge each candidate rate and recommend one.
 
     Parameters
@@ -252,7 +259,8 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=2000) -> Advice:
     rates_hz : sequence of float, optional
         Candidate rates (default: the plan's ``rates_hz``).
     n_speeds : int, optional
-        Speed grid size of each fold map.
+        Speed grid size of each fold map (default 1000; interval edges are refined beyond the
+        grid, so the grid only sets the narrowest interval that cannot be missed).
 
     Returns
     -------

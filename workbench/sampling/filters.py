@@ -56,6 +56,9 @@ MAX_ANALOG_ORDER = 32
 # Most negative table value accepted: a little gain peaking is real, more looks like gain
 # written where attenuation was meant.
 _TABLE_MIN_DB = -3.0
+# Roots whose squared distances are multiplied before one logarithm (see _analog_db).
+_ROOTS_PER_LOG = 6
+
 # Grid of the usable-edge search, from DC to Nyquist.
 _EDGE_GRID = 4097
 # Points of the tabulated transition band of the digital model.
@@ -274,13 +277,20 @@ class AntiAliasFilter:
     # -- responses ------------------------------------------------------------------------
     def _analog_db(self, x: np.ndarray) -> np.ndarray:
         z, p, k = self._zpk
-        # |j x - r| = hypot(Re(r), x - Im(r)), summed in dB root by root (no overflow).
-        with np.errstate(divide="ignore"):
-            gain_db = np.full(x.shape, 20.0 * math.log10(abs(k)))
-            for zero in z:
-                gain_db += 20.0 * np.log10(np.hypot(zero.real, x - zero.imag))
-            for pole in p:
-                gain_db -= 20.0 * np.log10(np.hypot(pole.real, x - pole.imag))
+        # |H(jx)|^2 = k^2 prod |jx - z|^2 / prod |jx - p|^2.  Squared distances are multiplied
+        # in groups of a few roots, then one log10 per group: far fewer logarithms than one per
+        # root, and no overflow (each group stays well inside the float64 range for |x| < 1e30).
+        x = np.asarray(x, dtype=float)
+        gain_db = np.full(x.shape, 20.0 * math.log10(abs(k)))
+        with np.errstate(divide="ignore", over="ignore", under="ignore"):
+            for roots, sign in ((z, 10.0), (p, -10.0)):
+                for start in range(0, len(roots), _ROOTS_PER_LOG):
+                    acc = None
+                    for r in roots[start:start + _ROOTS_PER_LOG]:
+                        d = x - r.imag
+                        sq = r.real * r.real + d * d
+                        acc = sq if acc is None else acc * sq
+                    gain_db += sign * np.log10(acc)
         return 0.0 - gain_db
 
     def _digital_db(self, x: np.ndarray) -> np.ndarray:

@@ -14,10 +14,9 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy.optimize import brentq
 
 from workbench.errors import InputError
-from workbench.sampling.folding import apparent_frequency, nyquist_zone
+from workbench.sampling.folding import _fold, apparent_frequency, nyquist_zone
 
 __all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS"]
 
@@ -95,19 +94,20 @@ class FoldMap:
         """Source level of each line, dB, shape (L,)."""
         return np.array([float(ln.level_db) for ln in self.lines])
 
+    def _folded(self):
+        if "apparent" not in self._cache:
+            self._cache["apparent"], self._cache["zone"] = _fold(self.true_hz, self.rate_hz)
+        return self._cache["apparent"], self._cache["zone"]
+
     @property
     def apparent_hz(self) -> np.ndarray:
         """Apparent frequency of each line after sampling, Hz, shape (L, S)."""
-        if "apparent" not in self._cache:
-            self._cache["apparent"] = apparent_frequency(self.true_hz, self.rate_hz)
-        return self._cache["apparent"]
+        return self._folded()[0]
 
     @property
     def zone(self) -> np.ndarray:
         """Nyquist zone floor(f / (rate/2)) of each line, shape (L, S); 0 is direct."""
-        if "zone" not in self._cache:
-            self._cache["zone"] = nyquist_zone(self.true_hz, self.rate_hz)
-        return self._cache["zone"]
+        return self._folded()[1]
 
     @property
     def residual_db(self) -> np.ndarray:
@@ -223,59 +223,109 @@ def _runs(mask):
     return starts, stops
 
 
-class _Probe:
-    """Scalar evaluation of one line against one band at any speed (for edge refinement)."""
+def _apparent_in_zone(f, zone, rate):
+    """Apparent frequency of true ``f`` computed with a given zone (linear in f within it)."""
+    m = np.floor_divide(zone, 2)
+    even = np.mod(zone, 2) == 0
+    return np.where(even, f - m * rate, (m + 1) * rate - f)
 
-    def __init__(self, line, band, lines, filt, rate, level, threshold):
-        self.line, self.band, self.lines = line, band, lines
-        self.filt, self.rate, self.level, self.threshold = filt, rate, level, threshold
 
-    def values(self, rpm):
-        r = np.atleast_1d(np.asarray(rpm, dtype=float))
-        f = np.asarray(self.line.hz_at(r), dtype=float) * np.ones_like(r)
-        app = apparent_frequency(f, self.rate)
-        lo, hi = self.band.limits_hz(r, self.lines)
-        att = np.minimum(np.asarray(self.filt.attenuation_db(f, self.rate), dtype=float), _FINITE_DB)
-        res = self.level - att
-        zone = nyquist_zone(f, self.rate)
-        return f, app, np.broadcast_to(lo, r.shape), np.broadcast_to(hi, r.shape), res, zone
+class _Edges:
+    """Vectorised refinement of interval edges between grid speeds, for one band.
 
-    def conditions(self, rpm):
-        """Signed distances: in-band from below, in-band from above, residual over threshold."""
-        _, app, lo, hi, res, _ = self.values(rpm)
-        return np.stack([app - lo, hi - app, res - self.threshold])
+    Within one Nyquist zone the apparent frequency of a line is linear in speed, and so are
+    the band limits (fixed in Hz, fixed in orders, or around a line); where the apparent
+    frequency meets a band limit is therefore found exactly by linear interpolation.  Zone
+    edges are found analytically (true frequency at a multiple of Nyquist).  Where the
+    residual crosses the threshold, the speed is found by bisection to 1e-9 rpm.
+    """
 
-    def zone_edges(self, a, b):
-        """Speeds strictly between a and b where the line crosses a multiple of Nyquist."""
-        order = self.line.order
-        if order is None or order <= 0:
-            return []
-        nyq = self.rate / 2.0
-        fa, fb = order * a / 60.0, order * b / 60.0
-        k_lo, k_hi = int(np.floor(min(fa, fb) / nyq)) + 1, int(np.floor(max(fa, fb) / nyq))
-        return [k * nyq * 60.0 / order for k in range(k_lo, k_hi + 1) if a < k * nyq * 60.0 / order < b]
+    def __init__(self, orders, fixed, levels, band, lines, filt, rate, threshold):
+        self.orders, self.fixed, self.levels = orders, fixed, levels
+        self.band, self.lines, self.filt = band, lines, filt
+        self.rate, self.threshold = rate, threshold
 
-    def edge(self, inside, outside):
-        """Speed between ``inside`` (in the interval) and ``outside`` where the interval ends.
+    def true_hz(self, idx, rpm):
+        o = self.orders[idx]
+        return np.where(np.isnan(o), self.fixed[idx], o * rpm / 60.0)
 
-        The end is the crossing nearest ``inside`` among: the apparent frequency leaving the
-        band at either limit, the residual falling to the threshold, and the line crossing a
-        multiple of Nyquist (a zone change, found analytically).
+    def limits(self, rpm):
+        lo, hi = self.band.limits_hz(rpm, self.lines)
+        return (np.broadcast_to(np.asarray(lo, dtype=float), rpm.shape),
+                np.broadcast_to(np.asarray(hi, dtype=float), rpm.shape))
+
+    def residual(self, idx, f):
+        att = np.asarray(self.filt.attenuation_db(f, self.rate), dtype=float)
+        return self.levels[idx] - np.minimum(att, _FINITE_DB)
+
+    def _threshold_speed(self, idx, a, c, ga, gc):
+        """Speed in [a, c] where residual - threshold changes sign (ga >= 0 > gc).
+
+        Regula falsi with the Illinois modification (Dowell & Jarratt, BIT 11:168-174, 1971),
+        vectorised over edges; the bracket always holds the root, so a filter whose
+        attenuation jumps (ideal) still converges to the jump.
         """
-        a, b = float(inside), float(outside)
-        lo, hi = min(a, b), max(a, b)
-        ca = self.conditions(a)[:, 0]
-        cb = self.conditions(b)[:, 0]
-        roots = list(self.zone_edges(lo, hi))
-        for j in range(3):
-            if ca[j] >= 0 > cb[j]:
-                def g(r, j=j):
-                    return float(self.conditions(r)[j, 0])
+        lo, hi, glo, ghi = a.copy(), c.copy(), ga.copy(), gc.copy()
+        side = np.zeros(len(lo), dtype=int)
+        for _ in range(100):
+            with np.errstate(divide="ignore", invalid="ignore"):
+                x = hi - ghi * (hi - lo) / (ghi - glo)
+            bad = ~np.isfinite(x) | (x - np.minimum(lo, hi) <= 0) | (np.maximum(lo, hi) - x <= 0)
+            x = np.where(bad, 0.5 * (lo + hi), x)
+            g = self.residual(idx, self.true_hz(idx, x)) - self.threshold
+            keep_lo = g >= 0
+            # Replace the end with the same sign; halve the other end's value when one end
+            # has been kept twice in a row (Illinois step).
+            glo = np.where(keep_lo, g, np.where(side == -1, glo / 2.0, glo))
+            ghi = np.where(keep_lo, np.where(side == 1, ghi / 2.0, ghi), g)
+            side = np.where(keep_lo, 1, -1)
+            lo = np.where(keep_lo, x, lo)
+            hi = np.where(keep_lo, hi, x)
+            if np.max(np.abs(hi - lo)) < 1e-9 or np.all(np.abs(g) < 1e-10):
+                break
+        return np.where(np.abs(glo) <= np.abs(ghi), lo, hi)
 
-                roots.append(brentq(g, lo, hi, xtol=1e-9, rtol=1e-12))
-        if not roots:
+    def refine(self, idx, a, b):
+        """Edge speeds between inside speeds ``a`` and outside speeds ``b`` (arrays, per edge)."""
+        idx = np.asarray(idx, dtype=int)
+        a = np.asarray(a, dtype=float)
+        b = np.asarray(b, dtype=float)
+        if not len(idx):
             return a
-        return min(roots, key=lambda r: abs(r - a))
+        nyq = self.rate / 2.0
+        fa = self.true_hz(idx, a)
+        _, za = _fold(fa, self.rate)
+        o = self.orders[idx]
+        moving = ~np.isnan(o) & (o > 0)
+        # Nearest zone edge from a towards b (speed where f = k * Nyquist).
+        up = b > a
+        k = np.where(up, za + 1, za).astype(float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rz = k * nyq * 60.0 / o
+        has_zone_edge = moving & np.where(up, rz < b, rz > b) & np.where(up, rz > a, rz <= a)
+        c = np.where(has_zone_edge, rz, b)
+        best = np.where(has_zone_edge, c, np.nan)
+        # Band limits: linear within [a, c] in zone za.
+        fc = self.true_hz(idx, c)
+        app_a = _apparent_in_zone(fa, za, self.rate)
+        app_c = _apparent_in_zone(fc, za, self.rate)
+        lo_a, hi_a = self.limits(a)
+        lo_c, hi_c = self.limits(c)
+        for ga, gc in ((app_a - lo_a, app_c - lo_c), (hi_a - app_a, hi_c - app_c)):
+            cross = (ga >= 0) & (gc < 0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                r = a + (c - a) * ga / (ga - gc)
+            best = np.where(cross & (np.isnan(best) | (np.abs(r - a) < np.abs(best - a))), r, best)
+        # Residual threshold: bisection where it falls below the threshold within [a, c].
+        ra = self.residual(idx, fa) - self.threshold
+        rc = self.residual(idx, fc) - self.threshold
+        cross = (ra >= 0) & (rc < 0)
+        if cross.any():
+            j = np.flatnonzero(cross)
+            r = self._threshold_speed(idx[j], a[j], c[j], ra[j], rc[j])
+            cur = best[j]
+            best[j] = np.where(np.isnan(cur) | (np.abs(r - a[j]) < np.abs(cur - a[j])), r, cur)
+        return np.where(np.isnan(best), a, best)
 
 
 def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold_db=None, refine=True):
@@ -294,9 +344,11 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
     n_speeds : int, optional
         Grid size when ``fmap`` is not given.
     threshold_db : float, optional
-        Residual above which a folded line counts (default: the plan's ``threshold_db``).
+        Residual above which a line counts (default: the plan's ``threshold_db``).
     refine : bool, optional
-        Refine interval edges by root finding (default True).
+        Refine interval edges beyond the grid (default True): exactly where the apparent
+        frequency meets a band limit or a zone edge, by bisection where the residual meets
+        the threshold.
 
     Returns
     -------
@@ -304,7 +356,8 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
         One row per line, band and contiguous interval of constant zone, columns
         :data:`COLLISION_COLUMNS` plus ``kind`` (``"collision"`` for folded lines, ``"overlap"``
         for direct lines) and ``true_hz_min``, ``true_hz_max``; sorted by residual, highest
-        first.  A band's own reference line (``around``) is not reported against it.
+        first.  ``residual_db`` is the highest residual within the interval.  A band's own
+        reference line (``around``) is not reported against it.
     """
     if hasattr(lines, "lines") and callable(lines.lines):
         lines = lines.lines()
@@ -313,55 +366,77 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
         fmap = fold_map(lines, plan, rate_hz, n_speeds=n_speeds)
     thr = plan.threshold_db if threshold_db is None else float(threshold_db)
     rpm = fmap.rpm
-    app, zone, res = fmap.apparent_hz, fmap.zone, fmap.residual_db
-    rows = []
+    n_grid = len(rpm)
+    app, zone, res, true = fmap.apparent_hz, fmap.zone, fmap.residual_db, fmap.true_hz
+    orders, fixed, levels = _line_arrays(lines)
+    names = np.array([ln.name for ln in lines], dtype=object)
+    columns = list(COLLISION_COLUMNS) + ["kind", "true_hz_min", "true_hz_max"]
+    frames = []
     for band in plan.bands:
         lo, hi = band.limits_hz(rpm, lines)
         lo = np.broadcast_to(np.asarray(lo, dtype=float), rpm.shape)
         hi = np.broadcast_to(np.asarray(hi, dtype=float), rpm.shape)
         inside = (app >= lo[None, :]) & (app <= hi[None, :]) & (res > thr)
         own = getattr(band, "around", None)
-        for i in np.flatnonzero(inside.any(axis=1)):
-            line = lines[i]
-            if own is not None and line.name == own:
-                continue
-            probe = _Probe(line, band, lines, plan.filter, fmap.rate_hz, float(line.level_db), thr)
-            # Split at zone changes: a run is contiguous in speed and constant in zone.
-            zi = zone[i]
-            mask = inside[i]
-            seg_break = np.concatenate(([False], zi[1:] != zi[:-1]))
-            starts, stops = _runs(mask)
-            for s0, s1 in zip(starts, stops):
-                cuts = [s0] + [k for k in range(s0 + 1, s1 + 1) if seg_break[k]] + [s1 + 1]
-                for a_idx, b_idx in zip(cuts[:-1], cuts[1:]):
-                    lo_i, hi_i = a_idx, b_idx - 1
-                    r_lo, r_hi = rpm[lo_i], rpm[hi_i]
-                    if refine:
-                        if lo_i > 0:
-                            r_lo = probe.edge(rpm[lo_i], rpm[lo_i - 1])
-                        if hi_i < len(rpm) - 1:
-                            r_hi = probe.edge(rpm[hi_i], rpm[hi_i + 1])
-                    dense = np.linspace(r_lo, r_hi, 9)
-                    dense = np.union1d(dense, rpm[lo_i : hi_i + 1])
-                    f, a_hz, _, _, rr, zz = probe.values(dense)
-                    rows.append(
-                        {
-                            "line": line.name,
-                            "band": band.name,
-                            "rpm_min": float(r_lo),
-                            "rpm_max": float(r_hi),
-                            "zone": int(zi[lo_i]),
-                            "apparent_hz_min": float(np.min(a_hz)),
-                            "apparent_hz_max": float(np.max(a_hz)),
-                            "residual_db": float(np.max(rr)),
-                            "kind": "collision" if zi[lo_i] >= 1 else "overlap",
-                            "true_hz_min": float(np.min(f)),
-                            "true_hz_max": float(np.max(f)),
-                        }
-                    )
-    columns = list(COLLISION_COLUMNS) + ["kind", "true_hz_min", "true_hz_max"]
-    table = pd.DataFrame(rows, columns=columns)
-    if len(table):
-        table = table.sort_values(["residual_db", "line", "rpm_min"], ascending=[False, True, True])
-        table = table.reset_index(drop=True)
-    return table
+        if own is not None:
+            inside &= (names != own)[:, None]
+        if not inside.any():
+            continue
+        # Runs: contiguous in speed and constant in zone, per line.
+        same_zone = np.concatenate([np.zeros((len(lines), 1), bool), zone[:, 1:] == zone[:, :-1]], axis=1)
+        starts = inside & ~(np.concatenate([np.zeros((len(lines), 1), bool), inside[:, :-1]], axis=1) & same_zone)
+        stops = inside & ~(np.concatenate([inside[:, 1:], np.zeros((len(lines), 1), bool)], axis=1)
+                           & np.concatenate([same_zone[:, 1:], np.zeros((len(lines), 1), bool)], axis=1))
+        li, s0 = np.nonzero(starts)
+        li2, s1 = np.nonzero(stops)
+        # np.nonzero walks row by row, so starts and stops pair up in order.
+        r_lo, r_hi = rpm[s0].copy(), rpm[s1].copy()
+        if refine:
+            edges = _Edges(orders, fixed, levels, band, lines, plan.filter, fmap.rate_hz, thr)
+            m = s0 > 0
+            r_lo[m] = edges.refine(li[m], rpm[s0[m]], rpm[s0[m] - 1])
+            m = s1 < n_grid - 1
+            r_hi[m] = edges.refine(li2[m], rpm[s1[m]], rpm[s1[m] + 1])
+            ends = np.concatenate([r_lo, r_hi])
+            idx2 = np.concatenate([li, li])
+            f_end = edges.true_hz(idx2, ends)
+            z_run = np.concatenate([zone[li, s0], zone[li, s0]])
+            app_end = _apparent_in_zone(f_end, z_run, fmap.rate_hz)
+            res_end = edges.residual(idx2, f_end)
+        n = len(li)
+        # Extremes over each run's grid points (segment reductions), then with the refined ends.
+        lengths = s1 - s0 + 1
+        offsets = np.concatenate(([0], np.cumsum(lengths)[:-1]))
+        pos = np.arange(int(lengths.sum())) - np.repeat(offsets, lengths) + np.repeat(s0, lengths)
+        flat = np.repeat(li, lengths) * n_grid + pos
+        rows = {}
+        for key, arr, fn in (("amin", app, np.minimum), ("amax", app, np.maximum), ("rmax", res, np.maximum),
+                             ("fmin", true, np.minimum), ("fmax", true, np.maximum)):
+            rows[key] = fn.reduceat(arr.ravel()[flat], offsets)
+        if refine:
+            for key, arr, fn in (("amin", app_end, np.minimum), ("amax", app_end, np.maximum),
+                                 ("rmax", res_end, np.maximum), ("fmin", f_end, np.minimum),
+                                 ("fmax", f_end, np.maximum)):
+                rows[key] = fn(rows[key], fn(arr[:n], arr[n:]))
+        z0 = zone[li, s0]
+        frames.append(
+            {
+                "line": names[li],
+                "band": np.full(n, band.name, dtype=object),
+                "rpm_min": np.minimum(r_lo, r_hi),
+                "rpm_max": np.maximum(r_lo, r_hi),
+                "zone": z0.astype(int),
+                "apparent_hz_min": rows["amin"],
+                "apparent_hz_max": rows["amax"],
+                "residual_db": rows["rmax"] + 0.0,
+                "kind": np.where(z0 >= 1, "collision", "overlap").astype(object),
+                "true_hz_min": rows["fmin"],
+                "true_hz_max": rows["fmax"],
+            }
+        )
+    if not frames:
+        return pd.DataFrame({c: pd.Series(dtype=object if c in ("line", "band", "kind") else float) for c in columns})
+    data = {c: np.concatenate([f[c] for f in frames]) for c in columns}
+    # Highest residual first; ties by line name, then speed.
+    order = np.lexsort((data["rpm_min"], data["line"].astype(str), -data["residual_db"]))
+    return pd.DataFrame({c: data[c][order] for c in columns})
