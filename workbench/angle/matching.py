@@ -1,0 +1,213 @@
+"""Identify measured order-map ridges with the machine's predicted lines, folded ones included.
+
+After computed order tracking a direct line of order ``k`` stays at order ``k`` at every speed.
+A line folded by the time sampling (true frequency above Nyquist) was already at its apparent
+frequency ``|f - m * rate|`` when it was sampled, so in the angle domain it shows at the
+*apparent order* ``|f - m * rate| / f_rot``, which moves with speed.  Matching every ridge
+point (rpm, order) of an order map against the predicted direct and apparent orders of every
+line at that speed tells the analyst which peaks are the machine and which are aliases.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from workbench.errors import InputError
+from workbench.sampling.folding import _fold
+
+__all__ = ["find_ridges", "predicted_orders", "match_lines", "Identification"]
+
+
+def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_order=None):
+    """Local maxima of each order-map block that stand above the block's noise floor.
+
+    Parameters
+    ----------
+    rpm : array_like, shape (B,)
+        Speed of each block, rpm.
+    order : array_like, shape (K,)
+        Order axis.
+    amplitude : array_like, shape (B, K)
+        Order-map amplitudes (linear units).
+    floor_db : float, optional
+        A peak must exceed the block's median amplitude by this many dB (default 20).
+    max_per_block : int, optional
+        Keep at most this many peaks per block, strongest first.
+    min_order : float, optional
+        Ignore orders below this (default: the second bin, to skip DC).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``rpm, order, amplitude`` (one row per ridge point), orders refined by
+        parabolic interpolation of the log amplitude over three bins (Grandke, IEEE Trans.
+        Instrum. Meas. 32(2):350-355, 1983).
+    """
+    rpm = np.asarray(rpm, dtype=float)
+    order = np.asarray(order, dtype=float)
+    amp = np.asarray(amplitude, dtype=float)
+    if amp.ndim != 2 or amp.shape != (rpm.size, order.size):
+        raise InputError(
+            f"amplitude has shape {amp.shape}; expected (len(rpm), len(order)) = ({rpm.size}, {order.size})"
+        )
+    if order.size < 3:
+        return pd.DataFrame({"rpm": [], "order": [], "amplitude": []})
+    lo_bin = 1 if min_order is None else int(np.searchsorted(order, min_order))
+    lo_bin = max(lo_bin, 1)
+    tiny = np.finfo(float).tiny
+    logs = np.log(np.maximum(amp, tiny))
+    centre = amp[:, 1:-1]
+    is_peak = (centre > amp[:, :-2]) & (centre >= amp[:, 2:])
+    floor = np.median(amp[:, lo_bin:], axis=1, keepdims=True)
+    is_peak &= centre > floor * 10.0 ** (floor_db / 20.0)
+    is_peak[:, : max(lo_bin - 1, 0)] = False
+    rows_b, cols = np.nonzero(is_peak)
+    k = cols + 1
+    a, b, c = logs[rows_b, k - 1], logs[rows_b, k], logs[rows_b, k + 1]
+    denom = a - 2 * b + c
+    with np.errstate(divide="ignore", invalid="ignore"):
+        delta = np.where(denom < 0, 0.5 * (a - c) / denom, 0.0)
+    delta = np.clip(delta, -0.5, 0.5)
+    step = order[1] - order[0]
+    table = pd.DataFrame({"rpm": rpm[rows_b], "order": order[k] + delta * step, "amplitude": amp[rows_b, k]})
+    table = table.sort_values(["rpm", "amplitude"], ascending=[True, False])
+    table = table.groupby("rpm", sort=True, group_keys=False).head(max_per_block)
+    return table.reset_index(drop=True)
+
+
+def predicted_orders(lines, rate_hz, rpm):
+    """Where each line shows in the angle domain after time sampling at ``rate_hz``.
+
+    Parameters
+    ----------
+    lines : sequence of Line
+    rate_hz : float
+        Sample rate of the recording, Hz.
+    rpm : array_like, shape (S,)
+        Reference speeds, rpm (positive).
+
+    Returns
+    -------
+    apparent_order : ndarray, shape (L, S)
+        Apparent frequency divided by the shaft speed.
+    zone : ndarray of int, shape (L, S)
+        Nyquist zone of the true frequency (0 = direct).
+    true_hz : ndarray, shape (L, S)
+    """
+    rpm = np.atleast_1d(np.asarray(rpm, dtype=float))
+    if np.any(rpm <= 0):
+        raise InputError("rpm: speeds must be positive to express frequencies in orders")
+    f_rot = rpm / 60.0
+    orders = np.array([np.nan if ln.order is None else ln.order for ln in lines], dtype=float)
+    fixed = np.array([np.nan if ln.hz is None else ln.hz for ln in lines], dtype=float)
+    true = np.where(np.isnan(orders)[:, None], fixed[:, None], orders[:, None] * f_rot[None, :])
+    app, zone = _fold(true, float(rate_hz))
+    return app / f_rot[None, :], zone, true
+
+
+@dataclass(frozen=True)
+class Identification:
+    """Measured ridges matched to predicted lines.
+
+    Attributes
+    ----------
+    points : pandas.DataFrame
+        One row per ridge point: ``rpm, order, amplitude, line, zone, alias, error_orders``
+        (``line`` is None where no predicted line lies within the tolerance).
+    table : pandas.DataFrame
+        One row per matched predicted line and zone: ``line, kind, zone, alias, points,
+        rpm_min, rpm_max, order_min, order_max, amplitude_max``, aliases first, then by
+        amplitude.
+    unexplained : pandas.DataFrame
+        Ridge points no predicted line explains.
+    """
+
+    points: pd.DataFrame
+    table: pd.DataFrame
+    unexplained: pd.DataFrame
+
+    @property
+    def aliases(self) -> pd.DataFrame:
+        """Rows of :attr:`table` that are folded lines."""
+        return self.table[self.table["alias"]]
+
+
+def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=1.0, min_points=2):
+    """Match ridge points of an order map to the machine's predicted lines.
+
+    Parameters
+    ----------
+    ridges : pandas.DataFrame
+        Columns ``rpm, order, amplitude`` (e.g. from :func:`find_ridges`).
+    lines : sequence of Line or Machine
+    rate_hz : float
+        Sample rate of the recording, Hz.
+    tolerance_orders : float, optional
+        Absolute matching tolerance, orders (use about the order resolution).
+    tolerance_pct : float, optional
+        Relative matching tolerance, percent of the predicted order; the larger of the two
+        tolerances applies.
+    min_points : int, optional
+        A predicted line is listed in the table only when at least this many ridge points
+        match it.
+
+    Returns
+    -------
+    Identification
+
+    Notes
+    -----
+    Each ridge point is given the nearest predicted order (direct or folded) at its speed.
+    Where a direct and a folded prediction are both within tolerance, the nearer wins; the
+    table then lets the analyst see whether a peak in a fault band is the fault or an alias.
+    """
+    if hasattr(lines, "lines") and callable(lines.lines):
+        lines = lines.lines()
+    lines = tuple(lines)
+    rate = float(rate_hz)
+    if not np.isfinite(rate) or rate <= 0:
+        raise InputError(f"rate_hz = {rate_hz!r}: must be a positive number of Hz")
+    pts = ridges[["rpm", "order", "amplitude"]].reset_index(drop=True).copy()
+    names = np.array([ln.name for ln in lines], dtype=object)
+    kinds = np.array([ln.kind for ln in lines], dtype=object)
+    if len(pts) and len(lines):
+        app, zone, _ = predicted_orders(lines, rate, pts["rpm"].to_numpy())
+        err = np.abs(app - pts["order"].to_numpy()[None, :])
+        tol = np.maximum(tolerance_orders, app * tolerance_pct / 100.0)
+        err = np.where(err <= tol, err, np.inf)
+        best = np.argmin(err, axis=0)
+        col = np.arange(len(pts))
+        found = np.isfinite(err[best, col])
+        pts["line"] = np.where(found, names[best], None)
+        pts["kind"] = np.where(found, kinds[best], None)
+        pts["zone"] = np.where(found, zone[best, col], -1)
+        pts["alias"] = found & (zone[best, col] >= 1)
+        pts["error_orders"] = np.where(found, err[best, col], np.nan)
+    else:
+        for c, v in (("line", None), ("kind", None), ("zone", -1), ("alias", False), ("error_orders", np.nan)):
+            pts[c] = pd.Series([v] * len(pts), dtype=object if v is None else None)
+    matched = pts[pts["line"].notna()]
+    if len(matched):
+        g = matched.groupby(["line", "zone"], sort=False)
+        table = g.agg(
+            kind=("kind", "first"),
+            points=("order", "size"),
+            rpm_min=("rpm", "min"),
+            rpm_max=("rpm", "max"),
+            order_min=("order", "min"),
+            order_max=("order", "max"),
+            amplitude_max=("amplitude", "max"),
+        ).reset_index()
+        table["alias"] = table["zone"] >= 1
+        table = table[table["points"] >= min_points]
+        table = table.sort_values(["alias", "amplitude_max"], ascending=[False, False]).reset_index(drop=True)
+        table = table[["line", "kind", "zone", "alias", "points", "rpm_min", "rpm_max", "order_min", "order_max", "amplitude_max"]]
+    else:
+        table = pd.DataFrame(
+            columns=["line", "kind", "zone", "alias", "points", "rpm_min", "rpm_max", "order_min", "order_max", "amplitude_max"]
+        )
+    unexplained = pts[pts["line"].isna()][["rpm", "order", "amplitude"]].reset_index(drop=True)
+    return Identification(points=pts, table=table, unexplained=unexplained)
