@@ -58,8 +58,9 @@ def test_folded_line_identified_as_alias():
     assert bool(t.loc["bearing order", "alias"]) is False
     assert t.loc["mesh order", "points"] == 31
     assert list(ident.aliases["line"]) == ["mesh order"]
-    # Over 900-1500 rpm the alias lies between 3.0 and 29.7 orders but reaches 4.9 orders
-    # only near 1869 rpm (37 f - 1000 = 4.9 f), outside the grid, so the bearing points stay
+    # Over 900-1500 rpm the alias runs from 29.7 down to 3.0 orders and crosses 4.9 orders at
+    # 1432 rpm (1000 / f - 37 = 4.9), between the grid speeds 1420 and 1440 rpm where it is
+    # 5.25 and 4.67 orders, outside the 0.05-order tolerance; so the bearing points stay
     # direct (by hand).
     assert len(ident.unexplained) == 5
 
