@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import InputError
-from workbench.sampling.folding import _fold
+from workbench.sampling.folding import fold
 
 __all__ = ["find_ridges", "predicted_orders", "match_lines", "Identification"]
 
@@ -104,7 +104,7 @@ def predicted_orders(lines, rate_hz, rpm):
     orders = np.array([np.nan if ln.order is None else ln.order for ln in lines], dtype=float)
     fixed = np.array([np.nan if ln.hz is None else ln.hz for ln in lines], dtype=float)
     true = np.where(np.isnan(orders)[:, None], fixed[:, None], orders[:, None] * f_rot[None, :])
-    app, zone = _fold(true, float(rate_hz))
+    app, zone = fold(true, float(rate_hz))
     return app / f_rot[None, :], zone, true
 
 

@@ -4,7 +4,20 @@ Figures are built with the object-oriented API on a ``matplotlib.figure.Figure``
 state), so they are safe in scripts, notebooks, threads and Dask workers.
 """
 
-from workbench.plots.foldmap import plot_fold_map
-from workbench.plots.common import save_figure, new_figure
+from workbench.plots.angle import (plot_order_cuts, plot_order_map, plot_order_spectrum,
+                                   plot_rpm_frequency_map, plot_tacho_check)
+from workbench.plots.common import figure_bytes, new_figure, save_figure
+from workbench.plots.foldmap import draw_fold_map, plot_fold_map
 
-__all__ = ["plot_fold_map", "save_figure", "new_figure"]
+__all__ = [
+    "plot_fold_map",
+    "draw_fold_map",
+    "plot_tacho_check",
+    "plot_order_spectrum",
+    "plot_order_map",
+    "plot_order_cuts",
+    "plot_rpm_frequency_map",
+    "save_figure",
+    "new_figure",
+    "figure_bytes",
+]

@@ -6,7 +6,7 @@ machine layer's line objects, by duck typing).
 
 from workbench.sampling.filters import (ANALOG_KINDS, FILTER_KINDS, MAX_ANALOG_ORDER,
                                         TABLE_UNITS, AntiAliasFilter)
-from workbench.sampling.folding import apparent_frequency, apparent_order, nyquist_zone
+from workbench.sampling.folding import apparent_frequency, apparent_order, fold, nyquist_zone
 from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from_dict,
                                      plan_to_dict, read_plan, write_plan)
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
@@ -18,6 +18,7 @@ __all__ = [
     "apparent_frequency",
     "nyquist_zone",
     "apparent_order",
+    "fold",
     "FILTER_KINDS",
     "ANALOG_KINDS",
     "TABLE_UNITS",

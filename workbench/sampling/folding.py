@@ -24,7 +24,7 @@ import numpy as np
 from workbench.errors import InputError
 from workbench.sampling._checks import freq_array, rate_array
 
-__all__ = ["apparent_frequency", "nyquist_zone", "apparent_order"]
+__all__ = ["apparent_frequency", "nyquist_zone", "apparent_order", "fold"]
 
 # Beyond this many half-rates the zone index no longer fits a float mantissa exactly.
 _MAX_ZONE = 2.0**52
@@ -51,6 +51,26 @@ def _fold(f_hz, rate_hz) -> tuple[np.ndarray, np.ndarray]:
     odd = np.mod(n, 2.0) == 1.0
     apparent = np.where(odd, half - rest, rest)
     return apparent, n.astype(np.int64)
+
+
+def fold(f_hz, rate_hz):
+    """Apparent frequency and Nyquist zone together, in one pass (see the two functions below).
+
+    Parameters
+    ----------
+    f_hz : array_like
+        True frequencies in Hz, finite and not negative.
+    rate_hz : array_like
+        Sample rates in Hz, positive and finite; broadcast against `f_hz`.
+
+    Returns
+    -------
+    apparent_hz : ndarray
+        As :func:`apparent_frequency`.
+    zone : ndarray of int64
+        As :func:`nyquist_zone`.
+    """
+    return _fold(f_hz, rate_hz)
 
 
 def apparent_frequency(f_hz, rate_hz):

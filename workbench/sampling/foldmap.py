@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import InputError
-from workbench.sampling.folding import _fold, apparent_frequency, nyquist_zone
+from workbench.sampling.folding import fold
 
 __all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS"]
 
@@ -96,7 +96,7 @@ class FoldMap:
 
     def _folded(self):
         if "apparent" not in self._cache:
-            self._cache["apparent"], self._cache["zone"] = _fold(self.true_hz, self.rate_hz)
+            self._cache["apparent"], self._cache["zone"] = fold(self.true_hz, self.rate_hz)
         return self._cache["apparent"], self._cache["zone"]
 
     @property
@@ -294,7 +294,7 @@ class _Edges:
             return a
         nyq = self.rate / 2.0
         fa = self.true_hz(idx, a)
-        _, za = _fold(fa, self.rate)
+        _, za = fold(fa, self.rate)
         o = self.orders[idx]
         moving = ~np.isnan(o) & (o > 0)
         # Nearest zone edge from a towards b (speed where f = k * Nyquist).
