@@ -1,0 +1,82 @@
+"""Small helpers shared by the angle layer: argument checks and chunk streams."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterable, Iterator
+from numbers import Integral, Real
+
+import numpy as np
+
+from workbench.errors import InputError
+
+#: Samples per internal chunk when a whole array is processed piece by piece.
+CHUNK_SAMPLES = 1 << 20
+
+
+def positive_rate(rate_hz, name: str = "rate_hz") -> float:
+    """Return ``rate_hz`` as a float after checking it is finite and > 0."""
+    if isinstance(rate_hz, bool) or not isinstance(rate_hz, Real) or not math.isfinite(rate_hz) \
+            or rate_hz <= 0:
+        raise InputError(f"{name} {rate_hz!r} is not valid; allowed: a finite number > 0 (Hz)")
+    return float(rate_hz)
+
+
+def positive_int(value, name: str, minimum: int = 1) -> int:
+    """Return ``value`` as an int after checking it is an integer >= ``minimum``."""
+    if isinstance(value, bool) or not isinstance(value, Integral) or value < minimum:
+        raise InputError(f"{name} {value!r} is not valid; allowed: an integer >= {minimum}")
+    return int(value)
+
+
+def finite_real(value, name: str) -> float:
+    """Return ``value`` as a float after checking it is a finite real number."""
+    if isinstance(value, bool) or not isinstance(value, Real) or not math.isfinite(value):
+        raise InputError(f"{name} {value!r} is not valid; allowed: a finite number")
+    return float(value)
+
+
+def one_d(x, name: str) -> np.ndarray:
+    """A 1-D float view (or copy when the dtype must change) of ``x``; never mutated later."""
+    a = np.asarray(x)
+    if a.ndim != 1:
+        raise InputError(f"{name} has shape {a.shape}; allowed: a 1-D array (time on the only "
+                         "axis)")
+    if not (np.issubdtype(a.dtype, np.floating) or np.issubdtype(a.dtype, np.integer)):
+        raise InputError(f"{name} has dtype {a.dtype}; allowed: real numbers")
+    if not np.issubdtype(a.dtype, np.floating):
+        a = a.astype(np.float64)
+    return a
+
+
+def iter_chunks(x, name: str = "x", chunk: int = CHUNK_SAMPLES) -> Iterator[np.ndarray]:
+    """Yield 1-D chunks of a signal given as an array, an iterable of arrays or a callable.
+
+    Parameters
+    ----------
+    x : array_like, iterable of array_like, or callable
+        A whole 1-D signal; or consecutive 1-D chunks of it (any lengths); or a callable taking
+        no argument and returning such an iterable (so a reader can be opened lazily).
+    name : str
+        Name used in error messages.
+    chunk : int
+        Chunk length used to cut a whole array.
+    """
+    if callable(x) and not isinstance(x, np.ndarray):
+        x = x()
+    if isinstance(x, np.ndarray) or (isinstance(x, (list, tuple)) and len(x) > 0
+                                     and np.isscalar(x[0])):
+        a = one_d(x, name)
+        for i in range(0, len(a), chunk):
+            yield a[i:i + chunk]
+        return
+    if not isinstance(x, Iterable):
+        raise InputError(f"{name} of type {type(x).__name__} is not valid; allowed: a 1-D array, "
+                         "an iterable of 1-D arrays, or a callable returning one")
+    for i, c in enumerate(x):
+        yield one_d(c, f"{name} chunk {i}")
+
+
+def as_chunk_source(x, name: str) -> Callable[[], Iterator[np.ndarray]]:
+    """Wrap ``x`` so the chunk stream can be opened by calling the result."""
+    return lambda: iter_chunks(x, name)

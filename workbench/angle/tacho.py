@@ -1,0 +1,1023 @@
+"""Tacho processing: pulse edges, the shaft angle they imply, and known-speed stand-ins.
+
+A tacho channel gives one voltage pulse per tooth (or per reflective mark) passing a sensor.
+:func:`detect_pulses` (or the streaming :class:`PulseDetector`) turns the channel into pulse
+times with a Schmitt trigger and sub-sample interpolation; :func:`tacho_angle` assigns each pulse
+its shaft angle (handling missing-tooth wheels, double triggers, glitches and lost pulses) and
+fits a smooth angle curve through them, a :class:`ShaftAngle`.  ``ShaftAngle.from_rpm`` and
+``ShaftAngle.from_speed_table`` stand in for a tacho when the speed is known instead.
+
+Conventions: times in seconds from the first sample of the record (sample ``n`` is at
+``n / rate_hz``), shaft angle in revolutions, speed in rpm at the user's edge.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
+from scipy.interpolate import CubicSpline
+
+from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
+                                     positive_int, positive_rate)
+from workbench.errors import FoldlineWarning, InputError, TachoError
+
+__all__ = [
+    "PulseDetector",
+    "detect_pulses",
+    "DoubtedPulses",
+    "ShaftAngle",
+    "tacho_angle",
+    "FIT_METHODS",
+]
+
+#: Angle-fit methods of :func:`tacho_angle`.
+FIT_METHODS = ("spline", "quadratic")
+
+# Percentiles that set the automatic trigger level: robust to a few spikes, and inside the
+# high level of pulses down to about 1 % duty cycle.
+_LEVEL_PERCENTILES = (0.5, 99.5)
+# Default hysteresis as a fraction of the span between those percentiles.
+_HYSTERESIS_FRACTION = 0.2
+# Window (pulse intervals) of the running median that predicts each interval.
+_PITCH_WINDOW = 9
+
+
+# --------------------------------------------------------------------------------------------
+# Pulse detection
+# --------------------------------------------------------------------------------------------
+
+def _robust_span(x: np.ndarray) -> tuple[float, float]:
+    """Low and high levels of a pulse signal from robust percentiles of (a subsample of) it."""
+    step = max(1, len(x) // 2_000_000)
+    lo, hi = np.percentile(x[::step], _LEVEL_PERCENTILES)
+    return float(lo), float(hi)
+
+
+class PulseDetector:
+    """Streaming Schmitt-trigger edge detector with sub-sample crossing times.
+
+    Feed the tacho channel chunk by chunk (any lengths); the detector keeps its state (last
+    sample, trigger state, the crossing that opened the current excursion) across chunks, so the
+    result does not depend on how the record is cut.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate of the tacho channel (Hz).
+    level : float, optional
+        Trigger level in the channel's units.  Default: midway between the 0.5th and 99.5th
+        percentiles of the first chunk that is not flat (give it explicitly when the first chunk
+        may hold no pulse, e.g. a stream that starts at standstill).
+    hysteresis : float, optional
+        Width of the Schmitt band centred on ``level`` (same units, >= 0).  An edge counts once
+        the signal has been below ``level - hysteresis/2`` and then rises above
+        ``level + hysteresis/2``.  Default: 0.2 x the span between those percentiles.
+    edge : {"rising", "falling"}
+        Which edges to time.
+
+    Notes
+    -----
+    Each edge is timed where the signal crosses ``level`` for the last time before it leaves
+    the hysteresis band, by linear interpolation between the two samples around the crossing.
+    Without interpolation the timing error is up to one sample (0.70 degrees of shaft angle at
+    6000 rpm and 51.2 kHz); with it, the error on a smooth edge is a small fraction of a sample.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> t = np.arange(1000) / 1000.0
+    >>> tacho = np.where((t * 10) % 1 < 0.5, 5.0, 0.0)        # 10 pulses per second
+    >>> det = PulseDetector(1000.0)
+    >>> for chunk in np.array_split(tacho, 7):
+    ...     _ = det.feed(chunk)
+    >>> np.round(det.finish()[:3], 4)
+    array([0.0995, 0.1995, 0.2995])
+    """
+
+    def __init__(self, rate_hz: float, *, level: float | None = None,
+                 hysteresis: float | None = None, edge: str = "rising"):
+        self.rate_hz = positive_rate(rate_hz)
+        if edge not in ("rising", "falling"):
+            raise InputError(f"edge {edge!r} is not valid; allowed: 'rising' or 'falling'")
+        self.edge = edge
+        self._sign = 1.0 if edge == "rising" else -1.0
+        self.level = None if level is None else finite_real(level, "level")
+        if hysteresis is not None:
+            hysteresis = finite_real(hysteresis, "hysteresis")
+            if hysteresis < 0:
+                raise InputError(f"hysteresis {hysteresis!r} is not valid; allowed: a number "
+                                 ">= 0 in the tacho's units")
+        self.hysteresis = hysteresis
+        self._n_seen = 0            # samples fed so far
+        self._prev: float | None = None   # last sample (sign-adjusted)
+        self._state = -1            # -1 unknown, 0 low, 1 high
+        self._open_start = math.nan  # crossing position (samples) that opened the open segment
+        self._open_conf = False     # the open segment already passed its threshold
+        self._times: list[np.ndarray] = []
+        self._min = math.inf
+        self._max = -math.inf
+        self._finished = False
+
+    @property
+    def n_samples(self) -> int:
+        """Samples fed so far."""
+        return self._n_seen
+
+    def _set_levels(self, chunk: np.ndarray) -> bool:
+        """Fix level/hysteresis from this chunk if not given; False while the signal is flat."""
+        if self.level is not None and self.hysteresis is not None:
+            return True
+        lo, hi = _robust_span(chunk)
+        if not hi > lo:
+            return False
+        if self.level is None:
+            self.level = 0.5 * (lo + hi)
+        if self.hysteresis is None:
+            self.hysteresis = _HYSTERESIS_FRACTION * (hi - lo)
+        return True
+
+    def feed(self, chunk) -> np.ndarray:
+        """Process the next chunk of the tacho channel.
+
+        Parameters
+        ----------
+        chunk : array_like, shape (n,)
+            Consecutive samples (not modified).
+
+        Returns
+        -------
+        ndarray of float64
+            Times (s) of the edges completed in this chunk.
+        """
+        if self._finished:
+            raise InputError("PulseDetector.feed called after finish(); create a new detector")
+        x = one_d(chunk, "tacho chunk")
+        if len(x) == 0:
+            return np.empty(0)
+        if self.level is None or self.hysteresis is None:
+            cmin, cmax = float(np.min(x)), float(np.max(x))
+            if not (math.isfinite(cmin) and math.isfinite(cmax)):
+                raise InputError(f"tacho chunk starting at sample {self._n_seen} holds NaN or "
+                                 "infinite values; allowed: finite numbers")
+            self._min, self._max = min(self._min, cmin), max(self._max, cmax)
+            if not self._set_levels(x):
+                # Flat so far: nothing can cross; remember the last value only.
+                self._prev = self._sign * float(x[-1])
+                self._n_seen += len(x)
+                return np.empty(0)
+        out = self._process(x)
+        self._n_seen += len(x)
+        if len(out):
+            self._times.append(out)
+        return out
+
+    def _process(self, x: np.ndarray) -> np.ndarray:
+        s = self._sign
+        lev = s * self.level
+        half = 0.5 * self.hysteresis
+        hi_th, lo_th = lev + half, lev - half
+        y = x if s > 0 else -x
+        if self._prev is not None:
+            ye = np.empty(len(y) + 1, dtype=np.float64)
+            ye[0] = self._prev
+            ye[1:] = y
+            base = self._n_seen - 1
+            continuing = True
+        else:
+            ye = np.asarray(y, dtype=np.float64)
+            base = self._n_seen
+            continuing = False
+        above = ye >= lev
+        d = np.flatnonzero(above[1:] != above[:-1]) + 1
+        starts = np.concatenate(([0], d))
+        mx = np.maximum.reduceat(ye, starts)
+        mn = np.minimum.reduceat(ye, starts)
+        if np.isnan(mx).any():
+            raise InputError(f"tacho chunk starting at sample {self._n_seen} holds NaN values; "
+                             "allowed: finite numbers")
+        gmax, gmin = float(mx.max()), float(mn.min())
+        if s > 0:
+            self._min, self._max = min(self._min, gmin), max(self._max, gmax)
+        else:
+            self._min, self._max = min(self._min, -gmax), max(self._max, -gmin)
+        side = above[starts]
+        conf_hi = side & (mx > hi_th)
+        conf_lo = ~side & (mn < lo_th)
+        # Sub-sample position of each level crossing (start of each segment but the first).
+        y0, y1 = ye[d - 1], ye[d]
+        pos = (d - 1) + (lev - y0) / (y1 - y0) + base
+        seg_start = np.concatenate(([self._open_start if continuing else math.nan], pos))
+        conf = conf_hi | conf_lo
+        if continuing and self._open_conf:
+            conf[0] = False          # already counted in the previous chunk
+        ci = np.flatnonzero(conf)
+        times = np.empty(0)
+        if len(ci):
+            types = conf_hi[ci].astype(np.int8)
+            prev_type = np.concatenate(([self._state], types[:-1]))
+            rising = (types == 1) & (prev_type == 0)
+            times = seg_start[ci[rising]] / self.rate_hz
+            self._state = int(types[-1])
+        last = len(starts) - 1
+        self._open_start = float(seg_start[last])
+        self._open_conf = bool(conf_hi[last] | conf_lo[last]) or (
+            last == 0 and continuing and self._open_conf)
+        self._prev = float(ye[-1])
+        return times
+
+    @property
+    def pulse_times_s(self) -> np.ndarray:
+        """Edge times (s) found so far."""
+        return np.concatenate(self._times) if self._times else np.empty(0)
+
+    def finish(self) -> np.ndarray:
+        """End of the stream: return all edge times (s).
+
+        Raises
+        ------
+        TachoError
+            If the channel was flat or no edge crossed the trigger band; the message gives the
+            signal's min and max and the band used.
+        """
+        self._finished = True
+        times = self.pulse_times_s
+        if self._n_seen == 0:
+            raise TachoError("the tacho channel is empty; no pulses can be found")
+        if self.level is None or self.hysteresis is None:
+            raise TachoError(f"the tacho channel is flat (min {self._min:g}, max {self._max:g}): "
+                             "no pulses can be found; check that the tacho channel is the right "
+                             "one and that its sensor was connected")
+        if len(times) == 0:
+            half = 0.5 * self.hysteresis
+            raise TachoError(
+                f"no {self.edge} edges crossed the trigger band {self.level - half:g} .. "
+                f"{self.level + half:g} (level {self.level:g}, hysteresis {self.hysteresis:g}); "
+                f"the tacho signal spans min {self._min:g}, max {self._max:g}; give level and "
+                "hysteresis inside that span, or check the tacho channel")
+        return times
+
+
+def detect_pulses(tacho, rate_hz: float, *, level: float | None = None,
+                  hysteresis: float | None = None, edge: str = "rising") -> np.ndarray:
+    """Pulse times of a tacho channel: Schmitt trigger with sub-sample interpolation.
+
+    Parameters
+    ----------
+    tacho : array_like, shape (n,); or iterable of 1-D chunks; or callable returning one
+        The tacho channel.  A whole array is processed in chunks of about a million samples,
+        so memory stays small; chunks let a record far larger than memory be processed.
+    rate_hz : float
+        Sample rate (Hz).
+    level, hysteresis : float, optional
+        Trigger level and width of the Schmitt band (channel units).  Default: from the 0.5th
+        and 99.5th percentiles of the whole array (of the first non-flat chunk for a stream):
+        level midway, hysteresis 0.2 x their span.
+    edge : {"rising", "falling"}
+        Which edges to time.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_pulses,)
+        Edge times in seconds from the first sample (sample ``i`` is at ``i / rate_hz``).
+
+    Raises
+    ------
+    TachoError
+        A flat channel, or no edge crossing the band (the message gives min and max).
+
+    See Also
+    --------
+    PulseDetector : the streaming detector this wraps.
+    tacho_angle : pulse times to shaft angle.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rate = 10_000.0
+    >>> t = np.arange(20_000) / rate
+    >>> tacho = 2.5 + 2.5 * np.tanh(20 * np.sin(2 * np.pi * 25.0 * t))   # 25 pulses/s
+    >>> np.round(np.diff(detect_pulses(tacho, rate))[:3], 6)
+    array([0.04, 0.04, 0.04])
+    """
+    det = PulseDetector(rate_hz, level=level, hysteresis=hysteresis, edge=edge)
+    if isinstance(tacho, np.ndarray) or isinstance(tacho, (list, tuple)) and tacho \
+            and np.isscalar(tacho[0]):
+        x = one_d(tacho, "tacho")
+        if len(x) == 0:
+            raise TachoError("the tacho channel is empty; no pulses can be found")
+        if (level is None or hysteresis is None):
+            lo, hi = _robust_span(x)
+            if not hi > lo:
+                raise TachoError(f"the tacho channel is flat (min {np.min(x):g}, max "
+                                 f"{np.max(x):g}): no pulses can be found; check that the tacho "
+                                 "channel is the right one and that its sensor was connected")
+            det._set_levels(x)
+        for i in range(0, len(x), CHUNK_SAMPLES):
+            det.feed(x[i:i + CHUNK_SAMPLES])
+        return det.finish()
+    for chunk in iter_chunks(tacho, "tacho"):
+        det.feed(chunk)
+    return det.finish()
+
+
+# --------------------------------------------------------------------------------------------
+# Shaft angle
+# --------------------------------------------------------------------------------------------
+
+def _readonly(a) -> np.ndarray:
+    a = np.array(a, dtype=np.float64, copy=True)
+    a.setflags(write=False)
+    return a
+
+
+@dataclass(frozen=True, eq=False)
+class DoubtedPulses:
+    """Pulses that :func:`tacho_angle` rejected, inferred or doubts, with the reason for each.
+
+    Attributes
+    ----------
+    time_s : ndarray, shape (n,)
+        Time of the pulse (s); for a missing pulse, the time it was expected at.
+    reason : tuple of str, length n
+        What was wrong and what was done, e.g. ``"missing pulse: angle assigned across an
+        interval of 2.00 pitches"``.
+    """
+
+    time_s: np.ndarray
+    reason: tuple[str, ...]
+
+    def __post_init__(self):
+        t = _readonly(np.atleast_1d(self.time_s))
+        object.__setattr__(self, "time_s", t)
+        object.__setattr__(self, "reason", tuple(str(r) for r in self.reason))
+        if t.ndim != 1 or len(t) != len(self.reason):
+            raise InputError(f"DoubtedPulses: time_s has {t.size} values but reason has "
+                             f"{len(self.reason)}; allowed: one reason per time")
+
+    @classmethod
+    def empty(cls) -> DoubtedPulses:
+        """A table with no rows."""
+        return cls(np.empty(0), ())
+
+    def __len__(self) -> int:
+        return len(self.reason)
+
+    def __iter__(self):
+        return iter(zip(self.time_s.tolist(), self.reason))
+
+    def to_frame(self):
+        """The table as a pandas DataFrame with columns ``time_s`` and ``reason``."""
+        import pandas as pd
+        return pd.DataFrame({"time_s": self.time_s, "reason": list(self.reason)})
+
+
+def _piece_speed_extremes(coef: np.ndarray, h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Min and max of the derivative (rev/s) of each cubic piece over its interval."""
+    c1, c2, c3 = coef[1], coef[2], coef[3]
+    d0 = c1
+    d1 = c1 + 2 * c2 * h + 3 * c3 * h * h
+    lo = np.minimum(d0, d1)
+    hi = np.maximum(d0, d1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tv = np.where(c3 != 0, -c2 / (3 * c3), -1.0)
+    inside = (tv > 0) & (tv < h)
+    dv = c1 + 2 * c2 * tv + 3 * c3 * tv * tv
+    lo = np.where(inside, np.minimum(lo, dv), lo)
+    hi = np.where(inside, np.maximum(hi, dv), hi)
+    return lo, hi
+
+
+def _quadratic_pieces(t: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """Fyfe & Munck pieces: on [t_j, t_j+1] the quadratic through pulses j, j+1, j+2."""
+    m = len(t) - 1
+    coef = np.zeros((4, m))
+    if m == 1:
+        coef[0] = r[0]
+        coef[1] = (r[1] - r[0]) / (t[1] - t[0])
+        return coef
+    j = np.arange(m)
+    a = np.where(j + 2 <= m, j, j - 1)           # first of the three pulses
+    ta, tb, tc = t[a], t[a + 1], t[a + 2]
+    ra, rb, rc = r[a], r[a + 1], r[a + 2]
+    # Newton divided differences in the absolute time, then re-centred on t_j.
+    f1 = (rb - ra) / (tb - ta)
+    f2 = ((rc - rb) / (tc - tb) - f1) / (tc - ta)
+    tj = t[j]
+    # p(t) = ra + f1 (t - ta) + f2 (t - ta)(t - tb); expand around tj.
+    u, v = tj - ta, tj - tb
+    coef[0] = ra + f1 * u + f2 * u * v
+    coef[1] = f1 + f2 * (u + v)
+    coef[2] = f2
+    return coef
+
+
+@dataclass(frozen=True, eq=False)
+class ShaftAngle:
+    """Shaft angle (revolutions) as a smooth function of time, fitted through tacho pulses.
+
+    Parameters
+    ----------
+    pulse_times_s : array_like, shape (n,)
+        Times (s) of the kept pulses, strictly increasing (n >= 2).
+    pulse_revs : array_like, shape (n,)
+        Shaft angle (revolutions) of each pulse, strictly increasing.
+    doubted : DoubtedPulses
+        Pulses rejected, inferred or doubted while assigning angles.
+    method : str
+        ``"spline"``: not-a-knot cubic spline of angle against time (C2, de Boor 1978);
+        ``"quadratic"``: on each pulse interval the quadratic (constant angular acceleration)
+        through that pulse and the next two (Fyfe & Munck 1997); ``"constant speed"`` (two
+        points, straight line) and ``"speed table"`` (integrated piecewise-linear speed) come
+        from the constructors.
+
+    Notes
+    -----
+    The angle is defined from the first to the last pulse (:attr:`t_start_s`,
+    :attr:`t_end_s`); outside that span :meth:`revs_at`, :meth:`rpm_at` and
+    :meth:`time_at_revs` return NaN rather than extrapolate.  The fit must rise monotonically;
+    :func:`tacho_angle` refuses data where it does not.
+
+    A linear run-up (constant angular acceleration) makes the angle an exact quadratic of time;
+    both fits reproduce it exactly (the not-a-knot spline reproduces cubics).  Where the
+    acceleration varies, the C2 spline follows it more closely than the piecewise quadratics,
+    whose slope jumps at every pulse (measured in ``tests/test_angle_tacho.py``), so it is the
+    default.
+
+    References
+    ----------
+    .. [1] K. R. Fyfe and E. D. S. Munck, "Analysis of computed order tracking", Mechanical
+       Systems and Signal Processing 11(2):187-205, 1997.
+    .. [2] J. R. Potter and M. Gribler, "Computed order tracking obsoletes older methods",
+       SAE Technical Paper 891131, 1989.
+    .. [3] C. de Boor, "A Practical Guide to Splines", Springer, 1978 (not-a-knot end
+       conditions).
+
+    Examples
+    --------
+    >>> a = ShaftAngle.from_rpm(1800.0, 2.0)
+    >>> float(a.revs_at(1.0)), float(a.rpm_at(0.5)), float(a.time_at_revs(15.0))
+    (30.0, 1800.0, 0.5)
+    """
+
+    pulse_times_s: np.ndarray
+    pulse_revs: np.ndarray
+    doubted: DoubtedPulses = field(default_factory=DoubtedPulses.empty)
+    method: str = "spline"
+    _coef: Any = field(default=None, repr=False, compare=False)
+
+    def __post_init__(self):
+        t = _readonly(self.pulse_times_s)
+        r = _readonly(self.pulse_revs)
+        object.__setattr__(self, "pulse_times_s", t)
+        object.__setattr__(self, "pulse_revs", r)
+        if t.ndim != 1 or r.shape != t.shape:
+            raise InputError(f"ShaftAngle: pulse_times_s has shape {t.shape} and pulse_revs "
+                             f"{r.shape}; allowed: two 1-D arrays of the same length")
+        if len(t) < 2:
+            raise InputError(f"ShaftAngle: {len(t)} pulse(s); allowed: at least 2")
+        if not (np.isfinite(t).all() and np.isfinite(r).all()):
+            raise InputError("ShaftAngle: pulse_times_s and pulse_revs must be finite numbers")
+        for name, a in (("pulse_times_s", t), ("pulse_revs", r)):
+            bad = np.flatnonzero(np.diff(a) <= 0)
+            if len(bad):
+                i = int(bad[0])
+                raise InputError(f"ShaftAngle: {name} must increase strictly; entry {i + 1} "
+                                 f"({a[i + 1]!r}) does not exceed entry {i} ({a[i]!r})")
+        if not isinstance(self.doubted, DoubtedPulses):
+            raise InputError("ShaftAngle: doubted must be a DoubtedPulses table")
+        methods = FIT_METHODS + ("constant speed", "speed table")
+        if self.method not in methods:
+            raise InputError(f"ShaftAngle: method {self.method!r} is not valid; allowed: "
+                             f"{', '.join(repr(m) for m in methods)}")
+        if self._coef is not None:
+            coef = np.array(self._coef, dtype=np.float64)
+            if coef.shape != (4, len(t) - 1):
+                raise InputError("ShaftAngle: internal coefficients do not match the knots")
+        elif self.method == "spline":
+            if len(t) == 2:
+                coef = _quadratic_pieces(t, r)
+            else:
+                cs = CubicSpline(t, r, bc_type="not-a-knot")
+                coef = cs.c[::-1].copy()             # ascending powers of (t - t_j)
+        elif self.method in ("quadratic", "constant speed"):
+            coef = _quadratic_pieces(t, r)
+        else:
+            raise InputError("ShaftAngle: method 'speed table' needs ShaftAngle.from_speed_table")
+        coef.setflags(write=False)
+        object.__setattr__(self, "_coef", coef)
+        h = np.diff(t)
+        lo, hi = _piece_speed_extremes(coef, h)
+        object.__setattr__(self, "_piece_lo", lo)
+        object.__setattr__(self, "_piece_hi", hi)
+
+    # ---- constructors ----------------------------------------------------------------------
+    @classmethod
+    def from_rpm(cls, rpm: float, duration_s: float, *, start_s: float = 0.0) -> ShaftAngle:
+        """Constant speed standing in for a tacho.
+
+        Parameters
+        ----------
+        rpm : float
+            Shaft speed (rpm), > 0.
+        duration_s : float
+            Length of the span (s), > 0.
+        start_s : float
+            Start of the span (s); the angle is 0 there.
+        """
+        rpm = finite_real(rpm, "rpm")
+        if rpm <= 0:
+            raise InputError(f"rpm {rpm!r} is not valid; allowed: a speed > 0 rpm")
+        duration_s = positive_rate(duration_s, "duration_s")
+        start_s = finite_real(start_s, "start_s")
+        return cls(np.array([start_s, start_s + duration_s]),
+                   np.array([0.0, rpm / 60.0 * duration_s]), DoubtedPulses.empty(),
+                   "constant speed")
+
+    @classmethod
+    def from_speed_table(cls, time_s, rpm) -> ShaftAngle:
+        """Known speed against time standing in for a tacho; the angle integrates it.
+
+        Parameters
+        ----------
+        time_s : array_like, shape (n,)
+            Strictly increasing times (s), n >= 2.
+        rpm : array_like, shape (n,)
+            Speed at those times (rpm), >= 0, interpolated linearly in between; at most one
+            isolated zero at the start or the end (the angle must keep rising).
+
+        Notes
+        -----
+        Linear speed between table points makes the angle an exact piecewise quadratic of time
+        (trapezoidal integration is exact for it); the angle is 0 at ``time_s[0]``.
+        """
+        t = one_d(time_s, "time_s").astype(np.float64)
+        f = one_d(rpm, "rpm").astype(np.float64) / 60.0
+        if t.shape != f.shape or len(t) < 2:
+            raise InputError(f"time_s ({t.size} values) and rpm ({f.size} values) must have the "
+                             "same length, at least 2")
+        if not (np.isfinite(t).all() and np.isfinite(f).all()):
+            raise InputError("time_s and rpm must be finite numbers")
+        bad = np.flatnonzero(np.diff(t) <= 0)
+        if len(bad):
+            i = int(bad[0])
+            raise InputError(f"time_s must increase strictly; entry {i + 1} ({t[i + 1]!r}) does "
+                             f"not exceed entry {i} ({t[i]!r})")
+        zero = np.flatnonzero(f <= 0)
+        if np.any(f < 0) or np.any((zero > 0) & (zero < len(f) - 1)):
+            i = int(zero[0])
+            raise InputError(f"rpm entry {i} ({f[i] * 60:g}) is not valid; allowed: speeds > 0 "
+                             "(0 only at the first or last entry)")
+        h = np.diff(t)
+        coef = np.zeros((4, len(h)))
+        coef[1] = f[:-1]
+        coef[2] = 0.5 * np.diff(f) / h
+        revs = np.concatenate(([0.0], np.cumsum(0.5 * (f[:-1] + f[1:]) * h)))
+        coef[0] = revs[:-1]
+        return cls(t, revs, DoubtedPulses.empty(), "speed table", coef)
+
+    # ---- evaluation ------------------------------------------------------------------------
+    @property
+    def t_start_s(self) -> float:
+        """Start of the span where the angle is known (s)."""
+        return float(self.pulse_times_s[0])
+
+    @property
+    def t_end_s(self) -> float:
+        """End of the span where the angle is known (s)."""
+        return float(self.pulse_times_s[-1])
+
+    @property
+    def revolutions(self) -> float:
+        """Revolutions turned over the span."""
+        return float(self.pulse_revs[-1] - self.pulse_revs[0])
+
+    @property
+    def rpm_min(self) -> float:
+        """Lowest speed of the fit over the span (rpm)."""
+        return float(self._piece_lo.min() * 60.0)
+
+    @property
+    def rpm_max(self) -> float:
+        """Highest speed of the fit over the span (rpm)."""
+        return float(self._piece_hi.max() * 60.0)
+
+    def _locate(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        knots = self.pulse_times_s
+        j = np.clip(np.searchsorted(knots, t, side="right") - 1, 0, len(knots) - 2)
+        return j, t - knots[j]
+
+    def revs_at(self, t_s) -> np.ndarray:
+        """Shaft angle (revolutions) at times ``t_s`` (s); NaN outside the span.
+
+        Parameters
+        ----------
+        t_s : array_like
+            Times (s), any shape.
+
+        Returns
+        -------
+        ndarray of float64, same shape as ``t_s``
+        """
+        t = np.asarray(t_s, dtype=np.float64)
+        j, tau = self._locate(t)
+        c = self._coef
+        out = ((c[3, j] * tau + c[2, j]) * tau + c[1, j]) * tau + c[0, j]
+        return np.where((t >= self.pulse_times_s[0]) & (t <= self.pulse_times_s[-1]), out,
+                        np.nan)[()]
+
+    def rpm_at(self, t_s) -> np.ndarray:
+        """Shaft speed (rpm) at times ``t_s`` (s); NaN outside the span.
+
+        Parameters
+        ----------
+        t_s : array_like
+            Times (s), any shape.
+
+        Returns
+        -------
+        ndarray of float64, same shape as ``t_s``
+        """
+        t = np.asarray(t_s, dtype=np.float64)
+        j, tau = self._locate(t)
+        c = self._coef
+        out = 60.0 * ((3 * c[3, j] * tau + 2 * c[2, j]) * tau + c[1, j])
+        return np.where((t >= self.pulse_times_s[0]) & (t <= self.pulse_times_s[-1]), out,
+                        np.nan)[()]
+
+    def _invert(self, revs: np.ndarray, iterations: int = 8) -> tuple[np.ndarray, np.ndarray]:
+        """Times and speeds (rev/s) at angles ``revs``, extrapolating the end pieces."""
+        kr = self.pulse_revs
+        kt = self.pulse_times_s
+        j = np.clip(np.searchsorted(kr, revs, side="right") - 1, 0, len(kr) - 2)
+        c0, c1, c2, c3 = (self._coef[i, j] for i in range(4))
+        h = kt[j + 1] - kt[j]
+        tau = (revs - kr[j]) / (kr[j + 1] - kr[j]) * h        # linear first guess
+        interior = (j > 0) & (j < len(kr) - 2)
+        lo = np.where(interior | (j > 0), 0.0, -np.inf)
+        hi = np.where(interior | (j < len(kr) - 2), h, np.inf)
+        for _ in range(iterations):
+            p = ((c3 * tau + c2) * tau + c1) * tau + c0 - revs
+            dp = (3 * c3 * tau + 2 * c2) * tau + c1
+            step = p / dp
+            tau = np.clip(tau - step, lo, hi)
+            if np.all(np.abs(step) <= 1e-15 * (np.abs(kt[j]) + h)):
+                break
+        dp = (3 * c3 * tau + 2 * c2) * tau + c1
+        return kt[j] + tau, dp
+
+    def time_at_revs(self, revs) -> np.ndarray:
+        """Time (s) at which the shaft reaches angle ``revs`` (revolutions); NaN outside.
+
+        The inverse of :meth:`revs_at`, solved per piece by safeguarded Newton iterations
+        (vectorised); monotone because the fit is.
+
+        Parameters
+        ----------
+        revs : array_like
+            Shaft angles (revolutions), any shape.
+
+        Returns
+        -------
+        ndarray of float64, same shape as ``revs``
+        """
+        r = np.asarray(revs, dtype=np.float64)
+        flat = r.ravel()
+        inside = (flat >= self.pulse_revs[0]) & (flat <= self.pulse_revs[-1])
+        out = np.full(flat.shape, np.nan)
+        if inside.any():
+            out[inside] = self._invert(flat[inside])[0]
+        return out.reshape(r.shape)[()]
+
+    # ---- helpers for the tracker ---------------------------------------------------------------
+    def _speed_range_hz(self, t0: float, t1: float) -> tuple[float, float]:
+        """Lowest and highest speed (rev/s) of the fit over [t0, t1] (exact for the pieces)."""
+        knots = self.pulse_times_s
+        j0 = int(np.clip(np.searchsorted(knots, t0, side="right") - 1, 0, len(knots) - 2))
+        j1 = int(np.clip(np.searchsorted(knots, t1, side="right") - 1, 0, len(knots) - 2))
+        js = np.arange(j0, j1 + 1)
+        c1, c2, c3 = (self._coef[i, js] for i in (1, 2, 3))
+        lo_b = np.maximum(knots[js], t0) - knots[js]
+        hi_b = np.minimum(knots[js + 1], t1) - knots[js]
+        hi_b = np.maximum(hi_b, lo_b)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            tv = np.where(c3 != 0, -c2 / (3 * c3), lo_b)
+        tv = np.clip(tv, lo_b, hi_b)
+        cand = np.concatenate([c1 + (2 * c2 + 3 * c3 * tau) * tau for tau in (lo_b, hi_b, tv)])
+        return float(cand.min()), float(cand.max())
+
+    def _grid_times(self, k0: int, k1: int, samples_per_rev: int
+                    ) -> tuple[np.ndarray, np.ndarray]:
+        """Times (s) and speeds (rpm) at angles ``k / samples_per_rev`` for k in [k0, k1).
+
+        Exact (Newton) at every ``step``-th grid angle, counted from angle 0 so the result does
+        not depend on how a range is split, and cubic Hermite in between (value and slope
+        dt/d(angle) matched at both ends).  The step keeps the Hermite span at 1/16 rev or
+        less, where its error is orders of magnitude below the pulse timing error.
+        """
+        step = max(1, samples_per_rev // 8)
+        g0 = (k0 // step) * step
+        g1 = -((-k1) // step) * step
+        if g1 == g0:
+            g1 = g0 + step
+        coarse = np.arange(g0, g1 + 1, step, dtype=np.float64) / samples_per_rev
+        tc, fc = self._invert(coarse)
+        hspan = step / samples_per_rev
+        m = hspan / fc                          # dt/du at the coarse points
+        basis, dbasis = _hermite_tables(step)
+        # Rows: (t0 - tc0, slope0, t1 - tc0, slope1) per coarse interval; times relative to the
+        # interval start keep the products well conditioned.
+        rows = np.empty((len(tc) - 1, 4))
+        rows[:, 0] = 0.0
+        rows[:, 1] = m[:-1]
+        rows[:, 2] = tc[1:] - tc[:-1]
+        rows[:, 3] = m[1:]
+        t = (rows @ basis + tc[:-1, None]).ravel()
+        rpm = (60.0 * hspan) / (rows @ dbasis).ravel()
+        s = slice(k0 - g0, k1 - g0)
+        return t[s], rpm[s]
+
+
+_HERMITE_CACHE: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+
+def _hermite_tables(step: int) -> tuple[np.ndarray, np.ndarray]:
+    """Cubic Hermite basis (4, step) and its derivative at u = 0, 1/step, ..."""
+    hit = _HERMITE_CACHE.get(step)
+    if hit is None:
+        u = np.arange(step) / step
+        basis = np.array([2 * u ** 3 - 3 * u ** 2 + 1, u ** 3 - 2 * u ** 2 + u,
+                          -2 * u ** 3 + 3 * u ** 2, u ** 3 - u ** 2])
+        dbasis = np.array([6 * u ** 2 - 6 * u, 3 * u ** 2 - 4 * u + 1, -6 * u ** 2 + 6 * u,
+                           3 * u ** 2 - 2 * u])
+        hit = _HERMITE_CACHE[step] = (basis, dbasis)
+    return hit
+
+
+# --------------------------------------------------------------------------------------------
+# Pulse times -> shaft angle
+# --------------------------------------------------------------------------------------------
+
+def _local_pitch(dt: np.ndarray) -> np.ndarray:
+    """Running median of the pulse intervals: the interval each one is predicted to be."""
+    w = _PITCH_WINDOW
+    if len(dt) <= w:
+        return np.full(len(dt), np.median(dt))
+    pad = w // 2
+    ext = np.pad(dt, pad, mode="reflect")
+    return np.median(sliding_window_view(ext, w), axis=1)
+
+
+def _remove_extra_pulses(t: np.ndarray, tol: float) -> tuple[np.ndarray, list, list]:
+    """Drop double triggers and glitches: pulses that split an interval into non-whole parts."""
+    keep = np.ones(len(t), dtype=bool)
+    times, reasons = [], []
+    for _ in range(50):
+        idx = np.flatnonzero(keep)
+        tk = t[idx]
+        if len(tk) < 4:
+            break
+        dt = np.diff(tk)
+        p = _local_pitch(dt)
+        r = dt / p
+        nr = np.rint(r)
+        bad = (nr < 1) | (np.abs(r - nr) > tol)
+        cand = np.flatnonzero(bad)
+        if len(cand) == 0:
+            break
+        cand = cand[np.argsort(r[cand], kind="stable")]
+        touched = np.zeros(len(dt), dtype=bool)
+        removed_any = False
+        for i in cand:
+            lo_i, hi_i = max(i - 1, 0), min(i + 2, len(dt))
+            if touched[lo_i:hi_i].any():
+                continue
+            best = None
+            for kind, j0 in (("prev", i - 1), ("next", i)):
+                if j0 < 0 or j0 + 1 >= len(dt):
+                    continue
+                merged = (dt[j0] + dt[j0 + 1]) / p[i]
+                n = np.rint(merged)
+                dev = abs(merged - n)
+                if n >= 1 and dev <= tol and (best is None or dev < best[0]):
+                    best = (dev, kind, j0)
+            if best is None:
+                continue
+            _, kind, j0 = best
+            drop = j0 + 1            # the pulse between intervals j0 and j0 + 1
+            keep[idx[drop]] = False
+            times.append(tk[drop])
+            reasons.append(f"extra pulse removed (double trigger or glitch): it split an "
+                           f"interval of {dt[j0] / p[i] + dt[j0 + 1] / p[i]:.2f} pitches into "
+                           f"{dt[j0] / p[i]:.2f} + {dt[j0 + 1] / p[i]:.2f}")
+            touched[max(j0 - 1, 0):min(j0 + 3, len(dt))] = True
+            removed_any = True
+        if not removed_any:
+            break
+    return keep, times, reasons
+
+
+def _unusable(message: str, t_a: np.ndarray, t_b: np.ndarray) -> TachoError:
+    spans = ", ".join(f"{a:.3f}-{b:.3f} s" for a, b in zip(t_a[:5], t_b[:5]))
+    more = f" and {len(t_a) - 5} more" if len(t_a) > 5 else ""
+    return TachoError(f"{message}: unusable seconds {spans}{more}; cut the record to the usable "
+                      "part (or give a speed table) and track each part on its own")
+
+
+def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int = 0,
+                method: str = "spline", tolerance: float = 0.3,
+                min_rpm: float | None = None) -> ShaftAngle:
+    """Assign each tacho pulse its shaft angle and fit the angle curve through them.
+
+    Parameters
+    ----------
+    pulse_times_s : array_like, shape (n,)
+        Pulse times (s), strictly increasing (from :func:`detect_pulses`).
+    pulses_per_rev : int
+        Tooth positions per revolution, counting missing ones (a 60-2 wheel is 60).
+    missing_pulses : int
+        Teeth missing in the wheel's gap (2 for a 60-2 wheel); 0 for a regular wheel or a
+        once-per-revolution mark.  ``pulses_per_rev - missing_pulses`` must be at least 3
+        when teeth are missing.
+    method : {"spline", "quadratic"}
+        Angle fit through the pulses, see :class:`ShaftAngle`.
+    tolerance : float
+        How far (in pitches, 0 < tolerance < 0.5) an interval may be from a whole number of
+        pitches before it is doubted.
+    min_rpm : float, optional
+        Refuse intervals slower than this (rpm); default: no speed floor.
+
+    Returns
+    -------
+    ShaftAngle
+        Angle fit; ``doubted`` lists removed, inferred and doubted pulses with reasons.
+
+    Raises
+    ------
+    TachoError
+        Fewer than 3 pulses; the machine stopped, slowed abruptly or reversed (an interval
+        longer than ``missing_pulses + 2`` pitches, or slower than ``min_rpm``), naming the
+        unusable seconds; a missing-tooth gap not found or not recurring once per revolution.
+        The whole record is refused rather than tracked in part: cut it to the usable span.
+
+    Notes
+    -----
+    Each interval is compared with the running median of its neighbours (nine intervals, the
+    pitch it is predicted to be), so the speed must change by less than about 25 % over nine
+    pulses.  Then:
+
+    * an interval much shorter than predicted (not a whole number of pitches) comes from an
+      extra pulse (a double trigger or a glitch): the pulse whose removal leaves the merged
+      interval closest to a whole number of pitches is dropped;
+    * an interval of about two pitches hides a missing pulse: the angle advances by two
+      pitches across it (no pulse time is invented);
+    * on a missing-tooth wheel the gap is an interval of about ``missing_pulses + 1``
+      pitches; its position within the revolution must recur once per revolution.  The first
+      tooth after the gap is at a whole number of revolutions (the first one at 0); on a
+      regular wheel the first pulse is at angle 0.
+
+    A single tacho cannot tell the direction of rotation: a reversal is only caught when the
+    interval around it is long compared with its neighbours (or, on a missing-tooth wheel,
+    when the gap stops recurring where expected).
+
+    References
+    ----------
+    .. [1] K. R. Fyfe and E. D. S. Munck, "Analysis of computed order tracking", Mechanical
+       Systems and Signal Processing 11(2):187-205, 1997.
+    .. [2] J. R. Potter and M. Gribler, "Computed order tracking obsoletes older methods",
+       SAE Technical Paper 891131, 1989.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> times = np.arange(0, 2, 1 / 30.0)                  # 1800 rpm, 1 pulse per rev
+    >>> times = np.delete(times, 20)                       # one lost pulse
+    >>> a = tacho_angle(times)
+    >>> round(float(a.rpm_at(1.0)), 6), len(a.doubted)
+    (1800.0, 1)
+    """
+    t = one_d(pulse_times_s, "pulse_times_s").astype(np.float64)
+    n_pr = positive_int(pulses_per_rev, "pulses_per_rev")
+    if isinstance(missing_pulses, bool) or not isinstance(missing_pulses, (int, np.integer)) \
+            or missing_pulses < 0:
+        raise InputError(f"missing_pulses {missing_pulses!r} is not valid; allowed: an integer "
+                         ">= 0")
+    m_miss = int(missing_pulses)
+    if m_miss > 0 and n_pr - m_miss < 3:
+        raise InputError(f"pulses_per_rev {n_pr} with missing_pulses {m_miss} leaves "
+                         f"{n_pr - m_miss} teeth; allowed: at least 3 teeth on a missing-tooth "
+                         "wheel (pulses_per_rev counts the missing positions too)")
+    if method not in FIT_METHODS:
+        raise InputError(f"method {method!r} is not valid; allowed: "
+                         f"{', '.join(repr(m) for m in FIT_METHODS)}")
+    tolerance = finite_real(tolerance, "tolerance")
+    if not 0 < tolerance < 0.5:
+        raise InputError(f"tolerance {tolerance!r} is not valid; allowed: 0 < tolerance < 0.5 "
+                         "(pitches)")
+    if min_rpm is not None:
+        min_rpm = finite_real(min_rpm, "min_rpm")
+        if min_rpm <= 0:
+            raise InputError(f"min_rpm {min_rpm!r} is not valid; allowed: a speed > 0 rpm")
+    if not np.isfinite(t).all():
+        raise InputError("pulse_times_s holds NaN or infinite values; allowed: finite times")
+    bad = np.flatnonzero(np.diff(t) <= 0)
+    if len(bad):
+        i = int(bad[0])
+        raise InputError(f"pulse_times_s must increase strictly; entry {i + 1} ({t[i + 1]!r}) "
+                         f"does not exceed entry {i} ({t[i]!r})")
+    need = 3 if m_miss == 0 else 2 * (n_pr - m_miss) + 1
+    if len(t) < need:
+        raise TachoError(f"{len(t)} pulses are too few to find a shaft angle; allowed: at least "
+                         f"{need} (two revolutions of a missing-tooth wheel, else 3)")
+
+    d_times: list[float] = []
+    d_reasons: list[str] = []
+    keep, xt, xr = _remove_extra_pulses(t, tolerance)
+    d_times += xt
+    d_reasons += xr
+    tk = t[keep]
+    dt = np.diff(tk)
+    p = _local_pitch(dt)
+    r = dt / p
+    n = np.maximum(np.rint(r), 1).astype(np.int64)
+    off = np.abs(r - np.rint(r)) > tolerance
+    for i in np.flatnonzero(off):
+        d_times.append(float(tk[i + 1]))
+        d_reasons.append(f"interval of {r[i]:.2f} pitches before this pulse is not a whole "
+                         f"number of pitches; counted as {n[i]}")
+    too_long = n > m_miss + 2
+    if min_rpm is not None:
+        too_long |= (60.0 / (dt / n * n_pr)) < min_rpm
+    if too_long.any():
+        i = np.flatnonzero(too_long)
+        raise _unusable("the shaft stopped, slowed abruptly or reversed (a pulse interval far "
+                        "longer than its neighbours predict" +
+                        (f", or slower than {min_rpm:g} rpm)" if min_rpm else ")"),
+                        tk[i], tk[i + 1])
+    c = np.concatenate(([0], np.cumsum(n)))
+    if m_miss == 0:
+        for i in np.flatnonzero(n >= 2):
+            for k in range(1, n[i]):
+                d_times.append(float(tk[i] + k * dt[i] / n[i]))
+                d_reasons.append(f"missing pulse: angle assigned across an interval of "
+                                 f"{r[i]:.2f} pitches")
+        revs = c / n_pr
+    else:
+        revs = _gap_angles(tk, dt, r, n, c, n_pr, m_miss, d_times, d_reasons)
+    order = np.argsort(d_times, kind="stable")
+    doubted = DoubtedPulses(np.asarray(d_times, dtype=np.float64)[order],
+                            tuple(d_reasons[i] for i in order))
+    angle = ShaftAngle(tk, revs, doubted, method)
+    if angle.rpm_min <= 0:
+        bad = np.flatnonzero(angle._piece_lo <= 0)
+        raise _unusable("the angle fitted through the pulses does not rise monotonically (the "
+                        "speed changes too abruptly between pulses)", tk[bad], tk[bad + 1])
+    return angle
+
+
+def _gap_angles(tk, dt, r, n, c, n_pr, m_miss, d_times, d_reasons) -> np.ndarray:
+    """Angles on a missing-tooth wheel: find the gap, check it recurs once per revolution."""
+    gap_len = m_miss + 1
+    cand = np.flatnonzero(n == gap_len)
+    if len(cand) == 0:
+        raise TachoError(f"no interval of about {gap_len} pitches (the gap of {m_miss} missing "
+                         f"teeth) among {len(tk)} pulses; check pulses_per_rev ({n_pr}) and "
+                         f"missing_pulses ({m_miss}), or pass missing_pulses=0 for a regular "
+                         "wheel")
+    phase = c[cand + 1] % n_pr
+    g_star = int(np.bincount(phase, minlength=n_pr).argmax())
+    n_revs = (c[-1] - c[0]) / n_pr
+    agree = phase == g_star
+    if agree.sum() < max(1, 0.8 * (np.floor(n_revs) - 1)):
+        where = tk[cand[~agree] + 1] if (~agree).any() else tk[-1:]
+        raise TachoError(f"the gap of {m_miss} missing teeth does not recur once per revolution "
+                         f"({n_pr} pitches): found {agree.sum()} gaps in the expected place over "
+                         f"{n_revs:.1f} revolutions; first misplaced near {where[0]:.3f} s "
+                         "(a reversal, a wrong pulses_per_rev/missing_pulses, or a damaged "
+                         "wheel)")
+    for i in cand[~agree]:
+        d_times.append(float(tk[i + 1]))
+        d_reasons.append(f"interval of {r[i]:.2f} pitches where no gap is expected")
+
+    # Count, per interval, the intermediate positions that are gap teeth.
+    def gap_teeth_upto(x):
+        q = x - (g_star - m_miss)
+        return (q // n_pr) * m_miss + np.minimum(q % n_pr + 1, m_miss)
+
+    inner_gap = gap_teeth_upto(c[1:] - 1) - gap_teeth_upto(c[:-1])
+    lost = (n - 1) - inner_gap
+    for i in np.flatnonzero(lost > 0):
+        for k in range(int(lost[i])):
+            d_times.append(float(tk[i] + (k + 1) * dt[i] / n[i]))
+            d_reasons.append(f"missing pulse: angle assigned across an interval of {r[i]:.2f} "
+                             "pitches")
+    on_gap = ((c - (g_star - m_miss)) % n_pr) < m_miss
+    for i in np.flatnonzero(on_gap):
+        d_times.append(float(tk[i]))
+        d_reasons.append("pulse counted at a missing-tooth position (counting doubtful here)")
+    c_ref = c[0] + ((g_star - c[0]) % n_pr)
+    return (c - c_ref) / n_pr
