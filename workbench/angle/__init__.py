@@ -1,1 +1,33 @@
-"""angle layer."""
+"""Angle layer: tacho processing, computed order tracking and order analysis.
+
+Numpy arrays in, frozen dataclasses out; never imports the run layer.
+
+Typical flow::
+
+    pulses = detect_pulses(tacho, rate_hz)
+    angle = tacho_angle(pulses, pulses_per_rev=60, missing_pulses=2)
+    sig = order_track(x, rate_hz, angle, samples_per_rev=256)
+    spec = order_spectrum(sig, revs_per_block=32)
+
+For records larger than memory, feed chunks to :func:`detect_pulses` and stream the tracked
+signal into :func:`order_map` with :func:`iter_order_track`.
+"""
+
+from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPeaks,
+                                     OrderSpectrum, RpmFrequencyMap, WindowGains,
+                                     envelope_order_spectrum, find_order_peaks, order_cut,
+                                     order_map, order_spectrum, rpm_frequency_map, window_gains)
+from workbench.angle.tacho import (DoubtedPulses, PulseDetector, ShaftAngle, detect_pulses,
+                                   tacho_angle)
+from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
+
+#: The name the contributor guide lists for :func:`find_order_peaks`.
+find_peaks_orders = find_order_peaks
+
+__all__ = [
+    "PulseDetector", "detect_pulses", "DoubtedPulses", "ShaftAngle", "tacho_angle",
+    "AngleSignal", "OrderTracker", "order_track", "iter_order_track",
+    "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
+    "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
+    "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks", "find_peaks_orders",
+]
