@@ -210,7 +210,8 @@ class PulseDetector:
         conf_lo = ~side & (mn < lo_th)
         # Sub-sample position of each level crossing (start of each segment but the first).
         y0, y1 = ye[d - 1], ye[d]
-        pos = (d - 1) + (lev - y0) / (y1 - y0) + base
+        pos = (d - 1 + base) + (lev - y0) / (y1 - y0)     # integer part first: same bits
+                                                          # however the record is cut
         seg_start = np.concatenate(([self._open_start if continuing else math.nan], pos))
         conf = conf_hi | conf_lo
         if continuing and self._open_conf:
