@@ -422,8 +422,10 @@ class OrderTracker:
         lim = self._k_stop
         if self._finished:
             t_last = (self._n_in - 1) / self.rate_hz
-            if t_last < self.angle.t_end_s:
-                r = float(self.angle.revs_at(max(t_last, self.angle.t_start_s)))
+            if t_last < self.angle.t_start_s:
+                lim = min(lim, self._k_next)
+            elif t_last < self.angle.t_end_s:
+                r = float(self.angle.revs_at(t_last))
                 lim = min(lim, math.floor(self.samples_per_rev * r + 1e-9) + 1)
         return lim
 
