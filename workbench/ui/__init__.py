@@ -1,1 +1,12 @@
-"""ui layer."""
+"""Notebook panels (presentation layer): ipywidgets controls around the package's functions.
+
+Each panel is a small class whose controls are attributes (so code and tests can drive them)
+and whose ``widget`` is shown with ``panel.show()`` or by leaving the panel last in a cell.
+
+- :class:`FoldMapPanel` -- rate, filter, speed range, threshold, sources and bands against the
+  fold map, the collision table and the advisor's verdict.
+"""
+
+from workbench.ui.foldmap_panel import FoldMapPanel
+
+__all__ = ["FoldMapPanel"]

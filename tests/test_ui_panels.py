@@ -1,0 +1,255 @@
+"""Notebook panels driven from code: set controls as a person would, then check that the
+picture, the tables and the verdict show what the computation layers say for the same inputs.
+
+Expected values: the sampling layer's own functions called directly on independently built
+inputs (the panel must pass them through unchanged), plus hand-derived folding figures where
+noted (folding rule: a line at f in zone 1 shows at rate - f; common practice, no source).
+"""
+
+from __future__ import annotations
+
+import warnings
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+pytest.importorskip("ipywidgets")
+
+from workbench.errors import FoldlineWarning  # noqa: E402
+from workbench.machine import read_machine  # noqa: E402
+from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
+                                read_plan)
+from workbench.ui import FoldMapPanel  # noqa: E402
+
+ROOT = Path(__file__).resolve().parents[1]
+MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
+PLAN = ROOT / "sample_runs" / "runup_plan.toml"
+
+
+class _Tables(HTMLParser):
+    """Cell texts of every table of a page, keyed by the table's classes."""
+
+    def __init__(self):
+        super().__init__()
+        self.tables, self._rows, self._cell = {}, None, None
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag == "table":
+            self._rows = []
+            for cls in (attrs.get("class") or "").split():
+                self.tables[cls] = self._rows
+        elif tag == "tr" and self._rows is not None:
+            self._rows.append([])
+        elif tag in ("td", "th") and self._rows is not None:
+            self._cell = []
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th") and self._cell is not None:
+            self._rows[-1].append("".join(self._cell).strip())
+            self._cell = None
+        elif tag == "table":
+            self._rows = None
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def table_rows(page: str, css_class: str) -> list:
+    """Body rows (lists of cell texts) of the table with class ``css_class``; [] if absent."""
+    parser = _Tables()
+    parser.feed(page)
+    rows = parser.tables.get(css_class, [])
+    return rows[1:]
+
+
+@pytest.fixture(scope="module")
+def machine():
+    return read_machine(MACHINE)
+
+
+@pytest.fixture(scope="module")
+def plan():
+    return read_plan(PLAN)
+
+
+@pytest.fixture(scope="module")
+def advice(machine, plan):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FoldlineWarning)
+        return advise(machine, plan)
+
+
+@pytest.fixture(scope="module")
+def shared_panel(machine, plan):
+    return FoldMapPanel(machine, plan)
+
+
+@pytest.fixture()
+def panel(shared_panel):
+    """One panel for the module (its caches make the tests fast), reset before each test."""
+    shared_panel.reset()
+    return shared_panel
+
+
+def _plan_with(plan, **changes):
+    """The plan rebuilt from its dictionary with [section] keys changed (independent of the panel)."""
+    d = plan_to_dict(plan)
+    for section, values in changes.items():
+        d[section] = {**d[section], **values}
+    return plan_from_dict(d)
+
+
+def _expected_rows(machine, plan, rate_hz):
+    table = find_collisions(machine, plan, rate_hz)
+    coll = table[table["kind"] == "collision"]
+    return [(r.line, r.band, f"{r.rpm_min:.0f}", f"{r.rpm_max:.0f}", f"{r.residual_db:.1f}")
+            for r in coll.itertuples()]
+
+
+def _shown_rows(panel):
+    return [(r[0], r[1], r[2], r[3], r[9]) for r in table_rows(panel.table.value, "foldline-collisions")]
+
+
+# -- FoldMapPanel ----------------------------------------------------------------------------
+def test_fold_map_panel_opens_on_the_advisors_rate(panel, advice):
+    # Expected: the advisor called directly on the same machine and plan.
+    assert panel.rate_hz.value == advice.recommended_rate_hz
+    assert panel.rate_choice.value == advice.recommended_rate_hz
+    assert panel.figure.value[:8] == b"\x89PNG\r\n\x1a\n"
+    assert f"recommended rate: {advice.recommended_rate_hz:g} Hz" in panel.verdict.value
+    assert f"{advice.resampling.samples_per_rev} samples per rev" in panel.verdict.value
+    assert table_rows(panel.table.value, "foldline-collisions") == []
+    assert 'class="foldline-ok"' in panel.verdict.value
+
+
+def test_reset_restores_the_opening_state(panel, advice):
+    png, table, verdict = panel.figure.value, panel.table.value, panel.verdict.value
+    panel.rate_choice.value = 2560.0
+    panel.view.value = "order"
+    panel.filter_kind.value = "bessel"
+    panel.reset()
+    assert panel.rate_hz.value == advice.recommended_rate_hz and panel.view.value == "hz"
+    assert (panel.figure.value, panel.table.value, panel.verdict.value) == (png, table, verdict)
+
+
+def test_rate_change_updates_figure_table_and_verdict_together(panel, machine, plan):
+    before = panel.figure.value
+    panel.rate_choice.value = 2560.0
+    assert panel.rate_hz.value == 2560.0
+    assert panel.figure.value != before
+    expected = _expected_rows(machine, plan, 2560.0)
+    assert len(expected) > 0
+    assert _shown_rows(panel) == expected
+    assert "2560 Hz is not clean" in panel.verdict.value
+    assert f"{len(expected)} collision(s)" in panel.verdict.value
+    # Hand check: stage 1 mesh x3 is order 3 x 29 = 87; in zone 1 it shows at 2560 - f, inside
+    # the housing resonance band 640..760 Hz for f in 1800..1920 Hz, i.e. 1241.4..1324.1 rpm.
+    row = next(r for r in _shown_rows(panel) if r[:2] == ("stage 1 mesh x3", "housing resonance"))
+    assert row[2:4] == ("1241", "1324")
+
+
+def test_free_rate_clears_the_plan_choice(panel, machine, plan):
+    panel.rate_hz.value = 3000.0
+    assert panel.rate_choice.value is None
+    assert _shown_rows(panel) == _expected_rows(machine, plan, 3000.0)
+    assert "3000 Hz" in panel.header.value
+
+
+def test_filter_change_matches_a_plan_with_that_filter(panel, machine, plan):
+    panel.rate_choice.value = 2560.0
+    before_png, before_verdict = panel.figure.value, panel.verdict.value
+    panel.filter_kind.value = "elliptic"
+    panel.filter_order.value = 6
+    panel.cutoff.value = 0.36
+    expected_plan = _plan_with(plan, acquisition={"filter": "elliptic", "filter_order": 6, "cutoff": 0.36})
+    assert panel.current_filter() == expected_plan.filter
+    assert _shown_rows(panel) == _expected_rows(machine, expected_plan, 2560.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FoldlineWarning)
+        rec = advise(machine, expected_plan).recommended_rate_hz
+    assert f"recommended rate: {rec:g} Hz" in panel.verdict.value
+    assert panel.figure.value != before_png and panel.verdict.value != before_verdict
+    assert "elliptic" in panel.header.value
+    assert panel.filter_order.disabled is False
+    panel.filter_kind.value = "none"
+    assert panel.filter_order.disabled and panel.cutoff.disabled
+
+
+def test_threshold_change_matches_the_collision_search(panel, machine, plan):
+    panel.rate_choice.value = 2560.0
+    n_before = len(_shown_rows(panel))
+    panel.threshold_db.value = -40.0
+    expected = _expected_rows(machine, _plan_with(plan, acquisition={"threshold_db": -40.0}), 2560.0)
+    assert _shown_rows(panel) == expected
+    assert 0 < len(expected) < n_before
+
+
+def test_speed_range_limits_the_map(panel, machine, plan):
+    panel.rate_choice.value = 2560.0
+    panel.speed_range.value = (300.0, 1200.0)
+    # A linear 300..1200 rpm profile: the collisions found on that speed range.
+    narrow = _plan_with(plan, speed={"profile": "linear", "start_rpm": 300.0, "end_rpm": 1200.0,
+                                     "duration_s": 36.0})
+    assert _shown_rows(panel) == _expected_rows(machine, narrow, 2560.0)
+    assert panel.current_plan().speed.max_sweep_rate_rpm_per_s == pytest.approx(25.0)  # 1500 rpm / 60 s
+    assert "300-1200 rpm" in panel.header.value
+
+
+def test_hiding_a_source_redraws_lines_and_filters_the_table(panel, machine):
+    panel.rate_choice.value = 2560.0
+    full_png, verdict = panel.figure.value, panel.verdict.value
+    n = len(_shown_rows(panel))
+    assert all(r[0].startswith("stage 1 ") for r in _shown_rows(panel))
+    panel.sources.value = tuple(v for v in panel.sources.value if v != "stage 1")
+    assert panel.figure.value != full_png
+    assert _shown_rows(panel) == []
+    assert f"{n} more in hidden sources or bands" in panel.table.value
+    assert panel.verdict.value == verdict  # the verdict is about the whole machine
+    panel.sources.value = tuple(v for _, v in panel.sources.options)
+    assert panel.figure.value == full_png
+
+
+def test_hiding_a_band_drops_its_rows(panel):
+    panel.rate_choice.value = 2560.0
+    before = panel.figure.value
+    panel.bands.value = tuple(b for b in panel.bands.value if b != "housing resonance")
+    rows = _shown_rows(panel)
+    assert rows and all(r[1] != "housing resonance" for r in rows)
+    assert panel.figure.value != before
+
+
+def test_view_switch_changes_only_the_picture(panel):
+    panel.rate_choice.value = 2560.0
+    png, table, verdict = panel.figure.value, panel.table.value, panel.verdict.value
+    panel.view.value = "order"
+    assert panel.figure.value != png
+    assert (panel.table.value, panel.verdict.value) == (table, verdict)
+    panel.view.value = "hz"
+    assert panel.figure.value == png
+
+
+def test_bad_values_show_an_error_and_keep_the_picture(panel):
+    png = panel.figure.value
+    panel.speed_range.value = (500.0, 500.0)
+    assert 'class="foldline-error"' in panel.verdict.value and "speed range" in panel.verdict.value
+    assert panel.figure.value == png
+    panel.speed_range.value = (300.0, 1800.0)
+    assert 'class="foldline-error"' not in panel.verdict.value
+    panel.rate_hz.value = -5.0
+    assert "positive sample rate" in panel.verdict.value
+
+
+def test_adjusted_filter_values_are_reported(panel):
+    panel.cutoff.value = 0.6  # above Nyquist: the filter model warns
+    assert "lies above Nyquist" in panel.verdict.value
+
+
+def test_panel_accepts_paths_and_exposes_its_widget(machine):
+    panel = FoldMapPanel(str(MACHINE), str(PLAN), rate_hz=5120.0)
+    assert panel.machine == machine
+    assert panel.rate_choice.value == 5120.0
+    assert "foldline-foldmap-panel" in panel.widget._dom_classes
+    assert panel.sources.value == tuple(dict.fromkeys(ln.entry for ln in machine.lines()))

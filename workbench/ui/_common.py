@@ -1,0 +1,211 @@
+"""Helpers shared by the notebook panels: inputs, figure rendering, HTML tables and styles.
+
+Presentation layer: the only place (with the panels) that imports ipywidgets.
+"""
+
+from __future__ import annotations
+
+import html
+import io
+import math
+import warnings
+from collections import OrderedDict
+from pathlib import Path
+
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from workbench.errors import FoldlineWarning, InputError
+
+__all__ = [
+    "as_machine",
+    "as_plan",
+    "agg_figure",
+    "png_bytes",
+    "html_table",
+    "STYLE",
+    "Cache",
+    "collect_warnings",
+    "fmt_rate",
+]
+
+#: Figure size (inches) and resolution (dots per inch) of the panels' pictures: 800 x 368 px.
+FIGSIZE_IN = (10.0, 4.6)
+DPI = 80
+
+#: Styles of the panels' HTML (tables, verdicts, errors); every class starts with "foldline-".
+STYLE = """<style>
+.foldline-table {border-collapse: collapse; font-size: 12px; margin: 4px 0;}
+.foldline-table th {background: #f0f0f0; padding: 2px 8px; text-align: left;
+  border-bottom: 1px solid #999;}
+.foldline-table td {padding: 1px 8px; border-bottom: 1px solid #e4e4e4; text-align: right;}
+.foldline-table td.foldline-text {text-align: left;}
+.foldline-table tr.foldline-changed td {background: #fff4d6;}
+.foldline-verdict {font-size: 13px; line-height: 1.45;}
+.foldline-verdict ul {margin: 2px 0 2px 18px; padding: 0;}
+.foldline-ok {color: #1a7f37; font-weight: bold;}
+.foldline-bad {color: #b00020; font-weight: bold;}
+.foldline-error {color: #b00020; white-space: pre-wrap;}
+.foldline-note {color: #555; font-size: 12px;}
+</style>"""
+
+
+def as_machine(machine):
+    """A Machine from a Machine or a machine file path."""
+    from workbench.machine import Machine, read_machine
+
+    if isinstance(machine, Machine):
+        return machine
+    if isinstance(machine, (str, Path)):
+        return read_machine(machine)
+    raise InputError(f"machine = {machine!r}: give a Machine or the path of a machine file")
+
+
+def as_plan(plan):
+    """A Plan from a Plan or a plan file path."""
+    from workbench.sampling import Plan, read_plan
+
+    if isinstance(plan, Plan):
+        return plan
+    if isinstance(plan, (str, Path)):
+        return read_plan(plan)
+    raise InputError(f"plan = {plan!r}: give a Plan or the path of a plan file")
+
+
+def agg_figure(figsize=FIGSIZE_IN, dpi=DPI) -> Figure:
+    """A pyplot-free Figure with an Agg canvas attached (no global state, no GUI)."""
+    fig = Figure(figsize=figsize, dpi=dpi)
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def png_bytes(fig) -> bytes:
+    """PNG bytes of the pixels now in ``fig``'s Agg canvas (call after drawing).
+
+    Uses PIL with the fastest zlib level: the pictures travel to the browser over a local
+    socket, where a few more kilobytes cost less than a slower encoder.
+    """
+    from PIL import Image
+
+    width, height = fig.canvas.get_width_height()
+    image = Image.frombuffer("RGBA", (width, height), fig.canvas.buffer_rgba(), "raw", "RGBA", 0, 1)
+    buf = io.BytesIO()
+    image.save(buf, format="png", compress_level=1)
+    return buf.getvalue()
+
+
+def _cell(value, fmt):
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "<td>&ndash;</td>"
+    if isinstance(value, str):
+        return f'<td class="foldline-text">{html.escape(value)}</td>'
+    if isinstance(value, (bool, np.bool_)):
+        return f"<td>{'yes' if value else 'no'}</td>"
+    if isinstance(value, float) and math.isinf(value):
+        return f"<td>{'-' if value < 0 else ''}&infin;</td>"
+    return f"<td>{html.escape(format(value, fmt))}</td>"
+
+
+def html_table(rows, columns, *, css_class, formats=None, changed=None, empty="(none)") -> str:
+    """An HTML table with the class ``foldline-table`` and ``css_class``.
+
+    Parameters
+    ----------
+    rows : iterable of mapping
+        One mapping per row.
+    columns : sequence of (key, heading)
+        Which keys to show, with their headings (units in the headings).
+    css_class : str
+        Extra class naming the table (tests and styles find it by this class).
+    formats : dict of str to str, optional
+        Format spec per key (default ``"g"``).
+    changed : sequence of bool, optional
+        Rows to mark with the class ``foldline-changed``.
+    empty : str
+        Text shown instead of the table when there are no rows.
+    """
+    rows = list(rows)
+    if not rows:
+        return f'<p class="foldline-note {css_class}-empty">{html.escape(empty)}</p>'
+    formats = formats or {}
+    head = "".join(f"<th>{html.escape(h)}</th>" for _, h in columns)
+    body = []
+    for i, row in enumerate(rows):
+        mark = ' class="foldline-changed"' if changed is not None and changed[i] else ""
+        cells = "".join(_cell(_plain(row.get(k)), formats.get(k, "g")) for k, _ in columns)
+        body.append(f"<tr{mark}>{cells}</tr>")
+    return (f'<table class="foldline-table {css_class}"><thead><tr>{head}</tr></thead>'
+            f'<tbody>{"".join(body)}</tbody></table>')
+
+
+def _plain(value):
+    """numpy scalars to Python scalars, so formatting and type checks behave."""
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+class Cache:
+    """A small least-recently-used mapping (the panels' memo of fold maps, tables, figures)."""
+
+    def __init__(self, size: int):
+        self.size = int(size)
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, key, make):
+        """The value stored under ``key``, made by ``make()`` when missing."""
+        if key in self._items:
+            self._items.move_to_end(key)
+            return self._items[key]
+        value = make()
+        self._items[key] = value
+        while len(self._items) > self.size:
+            self._items.popitem(last=False)
+        return value
+
+    def put(self, key, value):
+        self._items[key] = value
+        self._items.move_to_end(key)
+        while len(self._items) > self.size:
+            self._items.popitem(last=False)
+
+    def __contains__(self, key):
+        return key in self._items
+
+    def __len__(self):
+        return len(self._items)
+
+    def clear(self):
+        self._items.clear()
+
+
+class collect_warnings(warnings.catch_warnings):
+    """Record foldline warnings raised inside the block (they are shown in the panel)."""
+
+    def __init__(self):
+        super().__init__(record=True)
+
+    def __enter__(self):
+        self.records = super().__enter__()
+        warnings.simplefilter("always", FoldlineWarning)
+        return self
+
+    @property
+    def messages(self) -> list:
+        seen = []
+        for w in self.records:
+            text = str(w.message)
+            if issubclass(w.category, FoldlineWarning) and text not in seen:
+                seen.append(text)
+        return seen
+
+
+def fmt_rate(rate_hz: float) -> str:
+    """A rate as people write it: ``"10240 Hz"``, ``"2560 Hz"``, ``"4410.5 Hz"``."""
+    return f"{float(rate_hz):g} Hz"
+
+
+def error_html(exc: Exception) -> str:
+    """An error message the panel shows in place of a result."""
+    return f'<div class="foldline-error">{html.escape(str(exc))}</div>'

@@ -1,0 +1,430 @@
+"""Fold map panel: pick a rate, a filter, a speed range and a threshold; see what folds where.
+
+The panel shows the fold map figure, the collision table and the advisor's verdict, and keeps
+the three in step with its controls.  Every control is an attribute, so code (and tests) can
+drive the panel exactly as a person does::
+
+    panel = FoldMapPanel("machine.toml", "plan.toml")
+    panel.rate_choice.value = 2560.0        # the candidate rates of the plan
+    panel.rate_hz.value = 3000.0            # or any rate
+    panel.view.value = "order"
+    panel.sources.value = ("stage 1",)      # show only these entries
+
+Work is cached: a fold map per (rate, filter, speed range), a collision table per (rate, filter,
+speed range, threshold), the advice per (filter, speed range, threshold) and a picture per
+(rate, filter, speed range, threshold, view, bands).  Showing or hiding a source only redraws
+the line artists of the cached picture (see :class:`workbench.ui.scene.FoldScene`).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import html
+import math
+
+import ipywidgets as widgets
+
+from workbench.errors import FoldlineError, InputError
+from workbench.sampling import (ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter, SpeedProfile, advise,
+                                find_collisions, fold_map)
+from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
+                                  fmt_rate, html_table)
+from workbench.ui.scene import FoldScene
+
+__all__ = ["FoldMapPanel", "narrowed_speed", "COLLISION_TABLE_COLUMNS"]
+
+#: Columns of the panel's collision table: (key of find_collisions' table, heading with units).
+COLLISION_TABLE_COLUMNS = (
+    ("line", "line"),
+    ("band", "band"),
+    ("rpm_min", "from (rpm)"),
+    ("rpm_max", "to (rpm)"),
+    ("zone", "zone"),
+    ("true_hz_min", "true from (Hz)"),
+    ("true_hz_max", "true to (Hz)"),
+    ("apparent_hz_min", "shows from (Hz)"),
+    ("apparent_hz_max", "shows to (Hz)"),
+    ("residual_db", "residual (dB)"),
+)
+_TABLE_FORMATS = {"rpm_min": ".0f", "rpm_max": ".0f", "zone": "d", "true_hz_min": ".1f",
+                  "true_hz_max": ".1f", "apparent_hz_min": ".1f", "apparent_hz_max": ".1f",
+                  "residual_db": ".1f"}
+
+_ENTRY_KINDS = {"shaft": "shaft", "gear_stage": "gear stage", "planetary_stage": "planetary stage",
+                "bearing": "bearing", "rotor": "rotor", "order": "order", "line": "fixed line"}
+_FILTER_LABELS = {"none": "none", "ideal": "ideal (brick wall)", "butterworth": "Butterworth",
+                  "bessel": "Bessel", "chebyshev1": "Chebyshev type I", "elliptic": "elliptic",
+                  "digital": "digital (delta-sigma)", "table": "table (from the plan)"}
+
+
+def narrowed_speed(speed: SpeedProfile, rpm_lo: float, rpm_hi: float) -> SpeedProfile:
+    """The speed profile limited to ``rpm_lo``..``rpm_hi`` rpm, at the profile's fastest sweep.
+
+    Parameters
+    ----------
+    speed : SpeedProfile
+        The plan's profile.
+    rpm_lo, rpm_hi : float
+        Speed range to keep, rpm, ``0 <= rpm_lo < rpm_hi``.
+
+    Returns
+    -------
+    SpeedProfile
+        ``speed`` itself when the range is the profile's own; otherwise a linear profile over
+        the range in the profile's direction (run-up or coast-down), lasting as long as the
+        range takes at the profile's fastest sweep rate (so the advisor's smearing estimate is
+        unchanged).
+    """
+    lo, hi = float(rpm_lo), float(rpm_hi)
+    if not (math.isfinite(lo) and math.isfinite(hi)) or lo < 0 or not lo < hi:
+        raise InputError(f"speed range {lo:g} to {hi:g} rpm: choose 0 <= low < high")
+    if lo == speed.rpm_min and hi == speed.rpm_max:
+        return speed
+    sweep = float(speed.max_sweep_rate_rpm_per_s)
+    duration = (hi - lo) / sweep if sweep > 0 else float(speed.duration_s)
+    start, end = (hi, lo) if speed.start_rpm > speed.end_rpm else (lo, hi)
+    return SpeedProfile("linear", start_rpm=start, end_rpm=end, duration_s=duration)
+
+
+def _nice_ceiling(x: float) -> float:
+    """A round number at or above ``x`` (1, 2 or 5 times a power of ten, times 10)."""
+    if x <= 0:
+        return 100.0
+    step = 10 ** math.floor(math.log10(x))
+    for m in (1, 2, 2.5, 5, 10):
+        if m * step >= x:
+            return m * step
+    return 10 * step
+
+
+class FoldMapPanel:
+    """Interactive fold map of one machine and plan.
+
+    Parameters
+    ----------
+    machine : Machine or path
+        The drive train (or its machine file).
+    plan : Plan or path
+        The test plan (or its plan file).
+    rate_hz : float, optional
+        Rate shown first (default: the advisor's recommendation, else the first candidate).
+    n_speeds : int, optional
+        Speed grid of the fold maps (default 2000, the advisor's).
+
+    Attributes
+    ----------
+    rate_choice : ipywidgets.Dropdown
+        The plan's candidate rates, Hz (None when ``rate_hz`` holds another rate).
+    rate_hz : ipywidgets.FloatText
+        The rate in use, Hz; any positive value.
+    filter_kind : ipywidgets.Dropdown
+        Anti-alias filter model (see :data:`workbench.sampling.FILTER_KINDS`).
+    filter_order : ipywidgets.BoundedIntText
+        Filter order (analog kinds).
+    cutoff : ipywidgets.BoundedFloatText
+        Filter cutoff as a fraction of the rate (analog kinds and ideal).
+    speed_range : ipywidgets.FloatRangeSlider
+        Reference shaft speeds mapped, rpm.
+    threshold_db : ipywidgets.FloatSlider
+        Residual above which a folded line in a band is a collision, dB.
+    sources : ipywidgets.SelectMultiple
+        Machine entries whose lines are drawn and listed.
+    bands : ipywidgets.SelectMultiple
+        Bands drawn and listed.
+    view : ipywidgets.ToggleButtons
+        ``"hz"`` (apparent frequency) or ``"order"`` (apparent order).
+    figure : ipywidgets.Image
+        The fold map, PNG.
+    table : ipywidgets.HTML
+        Collisions of the shown sources with the shown bands (class ``foldline-collisions``)
+        and, folded away, the direct lines inside bands (class ``foldline-overlaps``).
+    verdict : ipywidgets.HTML
+        The advisor's verdict on the rate in use and its recommendation (class
+        ``foldline-verdict``).
+    widget : ipywidgets.VBox
+        The whole panel.
+    """
+
+    def __init__(self, machine, plan, *, rate_hz=None, n_speeds=2000):
+        self.machine = as_machine(machine)
+        self.plan = as_plan(plan)
+        self.lines = self.machine.lines()
+        self.plan.check_against(self.lines)
+        self.n_speeds = int(n_speeds)
+        self._fmaps = Cache(16)
+        self._tables = Cache(32)
+        self._advice = Cache(8)
+        self._scenes = Cache(8)
+        self.timings = {}
+        self._build_controls(rate_hz)
+        self._defaults = {c: c.value for c in self._controls()}
+        self._build_layout()
+        self._quiet = False
+        self.refresh()
+        for control in self._controls():
+            if control is not self.rate_choice:
+                control.observe(self._on_change, names="value")
+        self.rate_choice.observe(self._on_rate_choice, names="value")
+
+    def _controls(self):
+        return (self.rate_choice, self.rate_hz, self.filter_kind, self.filter_order, self.cutoff,
+                self.speed_range, self.threshold_db, self.sources, self.bands, self.view)
+
+    def reset(self):
+        """Put every control back to the value it opened with, then redraw once."""
+        self._quiet = True
+        try:
+            for control, value in self._defaults.items():
+                control.value = value
+        finally:
+            self._quiet = False
+        self._sync_filter_fields()
+        self.refresh()
+
+    # -- controls -------------------------------------------------------------------------
+    def _build_controls(self, rate_hz):
+        plan, style = self.plan, {"description_width": "118px"}
+        wide = widgets.Layout(width="330px")
+        with collect_warnings():
+            advice = self._advice_for(plan)
+        recommended = advice.recommended_rate_hz
+        options = []
+        for rate in sorted(plan.rates_hz):
+            label = fmt_rate(rate) + ("  (recommended)" if rate == recommended else "")
+            options.append((label, float(rate)))
+        if rate_hz is None:
+            rate_hz = recommended if recommended is not None else float(sorted(plan.rates_hz)[0])
+        rate_hz = float(rate_hz)
+        self.rate_choice = widgets.Dropdown(options=options, value=rate_hz if rate_hz in plan.rates_hz else None,
+                                            description="plan's rates", style=style, layout=wide)
+        self.rate_hz = widgets.FloatText(value=rate_hz, description="rate in use (Hz)", style=style,
+                                         layout=wide)
+        filt = plan.filter
+        kinds = [k for k in FILTER_KINDS if k != "table" or filt.kind == "table"]
+        self.filter_kind = widgets.Dropdown(options=[(_FILTER_LABELS[k], k) for k in kinds], value=filt.kind,
+                                            description="anti-alias filter", style=style, layout=wide)
+        self.filter_order = widgets.BoundedIntText(value=filt.order or 6, min=1, max=32,
+                                                   description="filter order", style=style, layout=wide)
+        self.cutoff = widgets.BoundedFloatText(value=filt.cutoff or 0.4, min=0.01, max=0.99, step=0.01,
+                                               description="cutoff (x rate)", style=style, layout=wide)
+        lo, hi = float(plan.speed.rpm_min), float(plan.speed.rpm_max)
+        top = _nice_ceiling(1.25 * hi)
+        self.speed_range = widgets.FloatRangeSlider(value=(lo, hi), min=0.0, max=max(top, hi), step=10.0,
+                                                    description="speed (rpm)", readout_format=".0f",
+                                                    continuous_update=False, style=style, layout=wide)
+        thr = float(plan.threshold_db)
+        self.threshold_db = widgets.FloatSlider(value=thr, min=min(-160.0, thr), max=max(20.0, thr), step=1.0,
+                                                description="threshold (dB)", readout_format=".0f",
+                                                continuous_update=False, style=style, layout=wide)
+        entries = list(dict.fromkeys(ln.entry for ln in self.lines))
+        by_entry = {e: sum(1 for ln in self.lines if ln.entry == e) for e in entries}
+        table_of = {name: getattr(item, "table", "") for name, item in self.machine.entries.items()}
+        self.sources = widgets.SelectMultiple(
+            options=[(f"{e}  ({_ENTRY_KINDS.get(table_of.get(e), 'entry')}, {by_entry[e]} line{'s' if by_entry[e] != 1 else ''})", e)
+                     for e in entries],
+            value=tuple(entries), rows=min(7, max(2, len(entries))), description="sources shown",
+            style=style, layout=wide)
+        self.bands = widgets.SelectMultiple(
+            options=[b.name for b in plan.bands], value=tuple(b.name for b in plan.bands),
+            rows=min(4, max(1, len(plan.bands))), description="bands shown", style=style, layout=wide)
+        self.view = widgets.ToggleButtons(options=[("Hz", "hz"), ("orders", "order")], value="hz",
+                                          description="vertical axis", style={**style, "button_width": "90px"})
+        self._sync_filter_fields()
+
+    def _build_layout(self):
+        self.header = widgets.HTML()
+        self.figure = widgets.Image(format="png", layout=widgets.Layout(max_width="100%"))
+        self.figure.add_class("foldline-figure")
+        self.table = widgets.HTML()
+        self.table.add_class("foldline-table-box")
+        self.legend = widgets.HTML()
+        self.legend.add_class("foldline-legend-box")
+        self.verdict = widgets.HTML()
+        self.verdict.add_class("foldline-verdict-box")
+        hint = widgets.HTML('<span class="foldline-note">Ctrl/Shift-click to pick several '
+                            'sources or bands.</span>')
+        controls = widgets.VBox([
+            self.rate_choice, self.rate_hz, self.filter_kind, self.filter_order, self.cutoff,
+            self.speed_range, self.threshold_db, self.sources, self.bands, hint, self.view,
+        ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
+        body = widgets.HBox([controls, widgets.VBox([self.figure, self.legend, self.verdict])])
+        self.widget = widgets.VBox([self.header, body, self.table])
+        self.widget.add_class("foldline-foldmap-panel")
+
+    def _sync_filter_fields(self):
+        kind = self.filter_kind.value
+        self.filter_order.disabled = kind not in ANALOG_KINDS
+        self.cutoff.disabled = kind not in ANALOG_KINDS + ("ideal",)
+
+    def _on_rate_choice(self, change):
+        if change["new"] is not None and not self._quiet:
+            self.rate_hz.value = float(change["new"])
+
+    def _on_change(self, change):
+        if self._quiet:
+            return
+        if change["owner"] is self.filter_kind:
+            self._sync_filter_fields()
+        if change["owner"] is self.rate_hz:
+            rate = float(change["new"])
+            self.rate_choice.value = rate if rate in self.plan.rates_hz else None
+        self.refresh()
+
+    # -- computation ----------------------------------------------------------------------
+    def current_filter(self) -> AntiAliasFilter:
+        """The anti-alias filter the controls describe."""
+        base, kind = self.plan.filter, self.filter_kind.value
+        fields = {}
+        if kind in ANALOG_KINDS:
+            fields = {"order": int(self.filter_order.value), "cutoff": float(self.cutoff.value)}
+        elif kind == "ideal":
+            fields = {"cutoff": float(self.cutoff.value)}
+        if kind == base.kind:
+            return dataclasses.replace(base, **fields)
+        return AntiAliasFilter(kind, passband_edge=base.passband_edge, stopband_edge=base.stopband_edge,
+                               stopband_db=base.stopband_db, passband_ripple_db=base.passband_ripple_db,
+                               **fields)
+
+    def current_plan(self):
+        """The plan the controls describe: the plan's bands with the chosen filter, threshold
+        and speed range."""
+        lo, hi = self.speed_range.value
+        return dataclasses.replace(
+            self.plan,
+            filter=self.current_filter(),
+            threshold_db=float(self.threshold_db.value),
+            speed=narrowed_speed(self.plan.speed, lo, hi),
+        )
+
+    def _advice_for(self, plan):
+        key = (plan.filter, plan.speed, plan.threshold_db)
+
+        def make():
+            advice = advise(self.lines, plan, n_speeds=self.n_speeds)
+            for rate, table in advice.collisions.items():  # the advisor's tables are reused
+                self._tables.put((rate,) + key, table)
+            return advice
+
+        return self._advice.get(key, make)
+
+    def _fold_map_for(self, plan, rate):
+        key = (rate, plan.filter, plan.speed)
+        return self._fmaps.get(key, lambda: fold_map(self.lines, plan, rate, n_speeds=self.n_speeds))
+
+    def _table_for(self, plan, rate, fmap):
+        key = (rate, plan.filter, plan.speed, plan.threshold_db)
+        return self._tables.get(key, lambda: find_collisions(self.lines, plan, rate, fmap=fmap))
+
+    def _scene_for(self, plan, rate, fmap, table, view, bands):
+        key = (rate, plan.filter, plan.speed, plan.threshold_db, view, bands)
+
+        def make():
+            return FoldScene(fmap, plan, table, view=view, bands=set(bands), labels=False)
+
+        return self._scenes.get(key, make)
+
+    def visible_lines(self) -> frozenset:
+        """Names of the lines of the sources now shown."""
+        shown = set(self.sources.value)
+        return frozenset(ln.name for ln in self.lines if ln.entry in shown)
+
+    def refresh(self):
+        """Recompute what the controls changed and update figure, table and verdict."""
+        import time
+
+        t0 = time.perf_counter()
+        with collect_warnings() as caught:
+            try:
+                plan = self.current_plan()
+                rate = float(self.rate_hz.value)
+                if not math.isfinite(rate) or rate <= 0:
+                    raise InputError(f"rate {self.rate_hz.value!r} Hz: give a positive sample rate")
+                advice = self._advice_for(plan)
+                fmap = self._fold_map_for(plan, rate)
+                table = self._table_for(plan, rate, fmap)
+                t1 = time.perf_counter()
+                bands = frozenset(self.bands.value)
+                scene = self._scene_for(plan, rate, fmap, table, self.view.value, bands)
+                png = scene.png(self.visible_lines())
+            except FoldlineError as exc:
+                self.verdict.value = STYLE + error_html(exc)
+                self.error = exc
+                return
+        self.error = None
+        self.fold_map, self.collisions, self.advice = fmap, table, advice
+        self.figure.value = png
+        self.legend.value = scene.legend_html
+        self.table.value = self._table_html(table, bands)
+        self.verdict.value = self._verdict_html(plan, rate, table, advice, caught.messages)
+        n = int((table["kind"] == "collision").sum())
+        self.header.value = STYLE + (
+            f'<b>{html.escape(self.machine.name)}</b>: fold map at {fmt_rate(rate)} '
+            f'(Nyquist {fmap.nyquist_hz:g} Hz), {html.escape(fmap.filter_label)}, '
+            f'{plan.speed.rpm_min:.0f}-{plan.speed.rpm_max:.0f} rpm: {n} collision(s)')
+        t2 = time.perf_counter()
+        self.timings = {"compute_s": t1 - t0, "figure_s": t2 - t1, "total_s": t2 - t0}
+
+    # -- HTML -----------------------------------------------------------------------------
+    def shown_collisions(self):
+        """The current collision table restricted to the shown sources and bands."""
+        table = self.collisions
+        keep = table["line"].isin(self.visible_lines()) & table["band"].isin(set(self.bands.value))
+        return table[keep]
+
+    def _table_html(self, table, bands):
+        shown = table["line"].isin(self.visible_lines()) & table["band"].isin(bands)
+        coll = table[shown & (table["kind"] == "collision")]
+        over = table[shown & (table["kind"] == "overlap")]
+        hidden = int(((table["kind"] == "collision") & ~shown).sum())
+        head = (f"<b>Collisions</b> (folded lines above {self.threshold_db.value:g} dB inside a band): "
+                f"{len(coll)} shown" + (f", {hidden} more in hidden sources or bands" if hidden else ""))
+        body = html_table(coll.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-collisions",
+                          formats=_TABLE_FORMATS, empty="No folded line enters a shown band above the threshold.")
+        overlaps = html_table(over.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-overlaps",
+                              formats=_TABLE_FORMATS, empty="none")
+        return (STYLE + f"<div>{head}</div>{body}<details><summary>Direct lines inside bands "
+                f"(overlaps, not folded): {len(over)}</summary>{overlaps}</details>")
+
+    def _verdict_html(self, plan, rate, table, advice, messages):
+        coll = table[table["kind"] == "collision"]
+        s = advice.resampling
+        top_hz = s.max_order * s.top_speed_rpm / 60.0
+        edge = plan.filter.usable_edge_hz(rate)
+        captures = edge >= top_hz
+        items = []
+        if len(coll) == 0 and captures:
+            head = f'<span class="foldline-ok">{fmt_rate(rate)} is clean</span>'
+        else:
+            head = f'<span class="foldline-bad">{fmt_rate(rate)} is not clean</span>'
+        if len(coll):
+            first = coll.iloc[0]
+            items.append(f"{len(coll)} collision(s); worst: {html.escape(first['line'])} folds into "
+                         f"{html.escape(first['band'])} at {first['rpm_min']:.0f}-{first['rpm_max']:.0f} rpm, "
+                         f"residual {first['residual_db']:.1f} dB")
+        else:
+            items.append(f"no folded line above {plan.threshold_db:g} dB enters a band")
+        items.append(f"order {s.max_order:g} at {s.top_speed_rpm:g} rpm ({top_hz:.0f} Hz) "
+                     + ("lies inside" if captures else "lies beyond")
+                     + f" the filter's usable band ({edge:.0f} Hz)")
+        rec = advice.recommended_rate_hz
+        rec_text = (f"<b>recommended rate: {fmt_rate(rec)}</b>" if rec is not None
+                    else '<b class="foldline-bad">no clean rate found</b>')
+        notes = "".join(f"<li>{html.escape(n)}</li>" for n in advice.notes)
+        warn = "".join(f"<li>{html.escape(m)}</li>" for m in messages)
+        return (STYLE + '<div class="foldline-verdict">' + head + "<ul>"
+                + "".join(f"<li>{i}</li>" for i in items) + "</ul>" + rec_text
+                + f" &mdash; angle domain: {s.samples_per_rev} samples per rev, "
+                  f"{s.revs_per_block} revs per block ({s.order_resolution:g} order resolution), "
+                  f"rate at least {s.min_rate_hz:.0f} Hz"
+                + f'<details><summary>advisor notes</summary><ul class="foldline-note">{notes}</ul></details>'
+                + (f'<ul class="foldline-note">{warn}</ul>' if warn else "") + "</div>")
+
+    # -- display --------------------------------------------------------------------------
+    def show(self):
+        """Display the panel in the notebook."""
+        from IPython.display import display
+
+        display(self.widget)
+
+    def _ipython_display_(self):
+        self.show()
