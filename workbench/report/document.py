@@ -1,0 +1,767 @@
+"""The shareable report: one self-contained HTML file for a machine, a plan and optionally a run.
+
+:func:`build_report` turns objects already in memory (machine, plan, optionally a
+:class:`~workbench.runs.analysis.RunAnalysis`) into a :class:`Report`; :func:`write_report`
+reads the files, tracks the run, builds the report and writes it through a temporary name.
+
+The report holds: a job summary; the machine and its line table; the plan (speed profile,
+candidate rates, filter, threshold, bands); the recommended rate and the advisor's reasons;
+the collision table of every candidate rate; fold maps (Hz and order views) of the worst
+candidate and of the recommended rate; the angle-domain settings; with a run, its tacho check,
+order spectrum and peaks, order map and order cuts with the predicted lines, and the
+identification of measured lines (aliases first); the safety caution; and the provenance
+(foldline version, every input file with its SHA-256, the date and time in UTC).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import sys
+import warnings
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+
+import numpy as np
+
+from workbench import __version__
+from workbench.errors import FoldlineWarning, InputError
+from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
+                                   table_html, yes_no)
+
+__all__ = ["Report", "InputFile", "build_report", "write_report", "SAFETY_TEXT", "SECTION_TITLES",
+           "default_cut_orders", "file_sha256"]
+
+#: The caution printed in every report; the same words as the README's Safety section.
+SAFETY_TEXT = (
+    "Run-up and coast-down tests take machines through resonances and up to their speed limits. "
+    "foldline plans acquisition and analysis only; it does not judge whether a test is safe, and "
+    "a clean fold map says nothing about the machine's mechanical limits. Follow the machine "
+    "maker's limits (speed, acceleration, time at resonance, temperatures), your site's "
+    "procedures and local codes, keep guards in place, and have qualified people run the test."
+)
+
+#: Section id -> heading, in page order (run sections appear only with a run).
+SECTION_TITLES = {
+    "summary": "Job summary",
+    "machine": "Machine",
+    "plan": "Test plan",
+    "recommendation": "Recommended rate",
+    "collisions": "Collisions by candidate rate",
+    "fold-maps": "Fold maps",
+    "angle-settings": "Angle-domain settings",
+    "run": "Recorded run",
+    "tacho": "Tacho check",
+    "order-spectrum": "Order spectrum",
+    "order-map": "Order map",
+    "order-cuts": "Order cuts",
+    "rpm-frequency-map": "rpm-frequency map",
+    "identification": "Identified lines and aliases",
+    "safety": "Safety",
+    "provenance": "Provenance",
+}
+
+_CHUNK = 1 << 20
+
+
+def file_sha256(path) -> str:
+    """SHA-256 (hex) of a file's bytes, read in 1 MiB chunks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(_CHUNK), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+@dataclass(frozen=True)
+class InputFile:
+    """One input of the report, for the provenance table.
+
+    Attributes
+    ----------
+    role : str
+        What the file is (``"machine"``, ``"plan"``, ``"run"``, ``"run sidecar"``, ...).
+    name : str
+        File name as given (shown; never opened again by the report).
+    sha256 : str
+        Hex digest of the file's bytes.
+    size_bytes : int
+    """
+
+    role: str
+    name: str
+    sha256: str
+    size_bytes: int
+
+    @classmethod
+    def of(cls, role: str, path) -> InputFile:
+        """Hash ``path`` and describe it."""
+        p = Path(path)
+        return cls(role, str(path), file_sha256(p), p.stat().st_size)
+
+
+@dataclass(frozen=True)
+class Report:
+    """A rendered report.
+
+    Attributes
+    ----------
+    html : str
+        The whole document.
+    sections : tuple of str
+        Ids of the sections present, in page order (keys of :data:`SECTION_TITLES`).
+    collisions_by_rate : dict
+        Number of collisions (folded lines inside a band above the threshold) at each rate
+        the report tabulates, rate (Hz) -> count.
+    recommended_rate_hz : float or None
+    fold_map_rates_hz : tuple of float
+        Rates whose fold maps are drawn (worst candidate first, then the recommended rate).
+    aliases : tuple of str or None
+        Lines identified as aliases in the run (None without a run or without identification).
+    created_utc : str
+        Date and time the report was made, UTC, ISO 8601.
+    """
+
+    html: str
+    sections: tuple
+    collisions_by_rate: dict
+    recommended_rate_hz: float | None
+    fold_map_rates_hz: tuple
+    aliases: tuple | None
+    created_utc: str
+    inputs: tuple = field(default=())
+
+    @property
+    def collisions(self) -> int:
+        """Collisions listed in the report, all tabulated rates together."""
+        return int(sum(self.collisions_by_rate.values()))
+
+    @property
+    def sha256(self) -> str:
+        """SHA-256 (hex) of the document's UTF-8 bytes (the file written)."""
+        return hashlib.sha256(self.html.encode("utf-8")).hexdigest()
+
+    def to_dict(self) -> dict:
+        """Summary for ``foldline report --json`` (without the output path)."""
+        return {
+            "sha256": self.sha256,
+            "bytes": len(self.html.encode("utf-8")),
+            "sections": list(self.sections),
+            "collisions": self.collisions,
+            "collisions_by_rate": {f"{r:g}": int(n) for r, n in self.collisions_by_rate.items()},
+            "recommended_rate_hz": self.recommended_rate_hz,
+            "fold_map_rates_hz": list(self.fold_map_rates_hz),
+            "aliases": None if self.aliases is None else list(self.aliases),
+            "created_utc": self.created_utc,
+            "inputs": [{"role": f.role, "name": f.name, "sha256": f.sha256} for f in self.inputs],
+        }
+
+
+# --------------------------------------------------------------------------------------------
+# tables
+
+
+def _order_text(v):
+    return f"{float(v):.4f}"
+
+
+_LINE_COLUMNS = (
+    Column("name", "line"),
+    Column("entry", "source"),
+    Column("kind", "kind"),
+    Column("harmonic", "harmonic", str, numeric=True),
+    Column("order", "order", _order_text, numeric=True),
+    Column("hz", "fixed Hz", fixed(2), numeric=True),
+    Column("level_db", "level (dB)", fixed(1), numeric=True),
+)
+
+_CANDIDATE_COLUMNS = (
+    Column("rate_hz", "rate (Hz)", general(8), numeric=True),
+    Column("clean", "clean", yes_no),
+    Column("collisions", "collisions", str, numeric=True),
+    Column("worst_residual_db", "worst folded residual in a band (dB)", fixed(1), numeric=True),
+    Column("captures_max_order", "captures highest order", yes_no),
+)
+
+_COLLISION_COLUMNS = (
+    Column("line", "line"),
+    Column("band", "band"),
+    Column("rpm_min", "from (rpm)", fixed(0), numeric=True),
+    Column("rpm_max", "to (rpm)", fixed(0), numeric=True),
+    Column("zone", "zone", str, numeric=True),
+    Column("apparent_hz_min", "apparent from (Hz)", fixed(1), numeric=True),
+    Column("apparent_hz_max", "apparent to (Hz)", fixed(1), numeric=True),
+    Column("residual_db", "residual (dB)", fixed(1), numeric=True),
+)
+
+_BAND_COLUMNS = (
+    Column("name", "band"),
+    Column("kind", "defined by"),
+    Column("definition", "definition"),
+    Column("lo_at_min", "limits at lowest speed (Hz)"),
+    Column("lo_at_max", "limits at top speed (Hz)"),
+)
+
+_PEAK_COLUMNS = (
+    Column("order", "order", _order_text, numeric=True),
+    Column("amplitude", "amplitude (peak)", general(4), numeric=True),
+    Column("nearest", "nearest predicted direct line"),
+)
+
+_IDENT_COLUMNS = (
+    Column("line", "predicted line"),
+    Column("kind", "kind"),
+    Column("zone", "zone", str, numeric=True),
+    Column("alias", "alias", yes_no),
+    Column("points", "ridge points", str, numeric=True),
+    Column("rpm_min", "from (rpm)", fixed(0), numeric=True),
+    Column("rpm_max", "to (rpm)", fixed(0), numeric=True),
+    Column("order_min", "order from", fixed(3), numeric=True),
+    Column("order_max", "order to", fixed(3), numeric=True),
+    Column("amplitude_max", "largest amplitude", general(4), numeric=True),
+)
+
+_DOUBT_COLUMNS = (
+    Column("time_s", "time (s)", fixed(4), numeric=True),
+    Column("reason", "what was found and done"),
+)
+
+
+def _line_records(lines):
+    recs = [
+        {
+            "name": ln.name, "entry": ln.entry, "kind": ln.kind, "harmonic": int(ln.harmonic),
+            "order": ln.order, "hz": ln.hz, "level_db": float(ln.level_db),
+        }
+        for ln in lines
+    ]
+    # Order lines by order, then fixed lines by frequency.
+    recs.sort(key=lambda r: (r["order"] is None, r["order"] if r["order"] is not None else r["hz"]))
+    return recs
+
+
+def _band_records(plan, lines):
+    rpm = np.array([plan.speed.rpm_min, plan.speed.rpm_max], dtype=float)
+    recs = []
+    for band in plan.bands:
+        if band.kind == "hz":
+            definition = f"{band.hz[0]:g} to {band.hz[1]:g} Hz"
+        elif band.kind == "orders":
+            definition = f"orders {band.orders[0]:g} to {band.orders[1]:g}"
+        else:
+            definition = f"{band.width_pct:g} % around {band.around}"
+        lo, hi = band.limits_hz(rpm, lines)
+        recs.append({
+            "name": band.name, "kind": band.kind, "definition": definition,
+            "lo_at_min": f"{lo[0]:.1f} to {hi[0]:.1f}", "lo_at_max": f"{lo[1]:.1f} to {hi[1]:.1f}",
+        })
+    return recs
+
+
+def _nearest_direct(order, lines, tolerance):
+    best, err = "", tolerance
+    for ln in lines:
+        if ln.order is None:
+            continue
+        e = abs(ln.order - order)
+        if e <= err:
+            best, err = ln.name, e
+    return best
+
+
+# --------------------------------------------------------------------------------------------
+# building
+
+
+def default_cut_orders(machine, plan, *, max_order=None) -> tuple:
+    """Orders to cut by default: order 1 and the order of every line a plan band follows.
+
+    Parameters
+    ----------
+    machine : Machine
+    plan : Plan
+    max_order : float, optional
+        Leave out orders above this.
+
+    Returns
+    -------
+    tuple of float
+        Distinct orders, ascending.
+    """
+    orders = {1.0}
+    by_name = {ln.name: ln for ln in machine.lines()}
+    for band in plan.bands:
+        if band.kind == "around":
+            ln = by_name.get(band.around)
+            if ln is not None and ln.order is not None:
+                orders.add(round(float(ln.order), 6))
+        elif band.kind == "orders":
+            orders.add(round(0.5 * (band.orders[0] + band.orders[1]), 6))
+    out = sorted(o for o in orders if max_order is None or o <= max_order)
+    return tuple(out)
+
+
+def _fold_rates(advice):
+    cand = advice.candidates
+    rates = []
+    if len(cand):
+        worst = cand.sort_values(["collisions", "rate_hz"], ascending=[False, True]).iloc[0]
+        if int(worst["collisions"]) > 0:
+            rates.append(float(worst["rate_hz"]))
+    rec = advice.recommended_rate_hz
+    if rec is not None and float(rec) not in rates:
+        rates.append(float(rec))
+    if not rates and len(cand):
+        rates.append(float(cand["rate_hz"].max()))
+    return rates
+
+
+def _section(sid, inner, sections):
+    sections.append(sid)
+    return f'<section id="{esc(sid)}"><h2>{esc(SECTION_TITLES[sid])}</h2>\n{inner}\n</section>'
+
+
+def _sub(sid, inner, sections):
+    sections.append(sid)
+    return f'<section id="{esc(sid)}"><h3>{esc(SECTION_TITLES[sid])}</h3>\n{inner}\n</section>'
+
+
+def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None,
+                 created_utc=None, title=None, progress=None) -> Report:
+    """Render the report of a machine under a plan, and of a tracked run when given.
+
+    Parameters
+    ----------
+    machine : Machine
+    plan : Plan
+    analysis : RunAnalysis, optional
+        A run tracked with :func:`workbench.runs.analysis.track_run` (with the machine, so that
+        predicted lines are overlaid and aliases identified).
+    inputs : sequence of InputFile
+        Input files for the provenance table.
+    track_settings : mapping, optional
+        Tracking options used, shown with the run.
+    created_utc : datetime or str, optional
+        Time stamp to print (default: now).  A datetime is converted to UTC.
+    title : str, optional
+        Page title (default from the machine's name).
+    progress : callable, optional
+        Called with a short text as each part is built.
+
+    Returns
+    -------
+    Report
+    """
+    from workbench.plots import plot_fold_map
+    from workbench.sampling import advise, find_collisions, fold_map
+
+    say = progress or (lambda _text: None)
+    lines = machine.lines()
+    plan.check_against(lines)
+    stamp = _utc_text(created_utc)
+    say("advising on the candidate rates")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FoldlineWarning)
+        advice = advise(machine, plan)
+    warn_texts = [str(w.message) for w in caught]
+
+    # The collision table of each candidate rate (and of a recommended standard rate), computed
+    # exactly as `foldline foldmap` does, so the report and the command agree row for row.
+    rates = sorted({float(r) for r in plan.rates_hz} | (
+        {float(advice.recommended_rate_hz)} if advice.recommended_rate_hz is not None else set()))
+    fmaps, tables = {}, {}
+    for rate in rates:
+        fmaps[rate] = fold_map(machine, plan, rate)
+        tables[rate] = find_collisions(machine, plan, rate, fmap=fmaps[rate])
+    shown_rates = _fold_rates(advice)
+    coll_count = {r: int((t["kind"] == "collision").sum()) for r, t in tables.items()}
+
+    sections: list[str] = []
+    parts: list[str] = []
+    rec = advice.recommended_rate_hz
+    rs = advice.resampling
+
+    # ---- summary -----------------------------------------------------------------------
+    summary_items = [
+        f"Machine <b>{esc(machine.name)}</b>, reference shaft <b>{esc(machine.reference)}</b>, "
+        f"{len(lines)} lines.",
+        f"Test: {esc(plan.speed.kind)} profile {plan.speed.rpm_min:g} to {plan.speed.rpm_max:g} rpm"
+        + (f" in {plan.speed.duration_s:g} s" if plan.speed.duration_s else "")
+        + f"; filter {esc(plan.filter.describe())}; threshold {plan.threshold_db:g} dB; "
+        f"{len(plan.bands)} protected band(s).",
+    ]
+    if rec is not None:
+        summary_items.append(
+            f'<span class="verdict good">Recommended rate: {rec:g} S/s</span> '
+            f"({coll_count.get(float(rec), 0)} collisions).")
+    else:
+        summary_items.append('<span class="verdict bad">No clean rate found</span> among the '
+                             "candidates or the standard rates.")
+    worst_rates = [r for r in shown_rates if coll_count.get(r, 0) > 0]
+    for r in worst_rates:
+        summary_items.append(
+            f'<span class="bad">{r:g} S/s: {coll_count[r]} collision(s)</span> '
+            "of folded lines with the protected bands.")
+    summary_items.append(
+        f"Angle domain: {rs.samples_per_rev} samples/rev, {rs.revs_per_block} revs/block "
+        f"(order resolution {rs.order_resolution:g}), highest order {rs.max_order:g}.")
+    if analysis is not None:
+        ident = getattr(analysis, "identification", None)
+        n_alias = None if ident is None else int(len(ident.aliases))
+        summary_items.append(
+            f"Run <span class=\"mono\">{esc(Path(str(analysis.source)).name)}</span>: "
+            f"{analysis.rate_hz:g} S/s, {analysis.duration_s:.1f} s, "
+            f"{analysis.shaft_angle.rpm_min:.0f} to {analysis.shaft_angle.rpm_max:.0f} rpm"
+            + ("" if n_alias is None else f"; {n_alias} folded line(s) identified in the order map")
+            + ".")
+    parts.append(_section("summary", "<ul>" + "".join(f"<li>{s}</li>" for s in summary_items)
+                          + "</ul>", sections))
+
+    # ---- machine -----------------------------------------------------------------------
+    say("machine and plan tables")
+    shaft_orders = machine.shaft_orders()
+    shaft_rows = [{"shaft": k, "order": float(v)} for k, v in shaft_orders.items()]
+    machine_html = key_value_html(
+        [("name", machine.name), ("reference shaft", machine.reference),
+         ("shafts", len(machine.shafts)), ("sources", len(machine.sources)), ("lines", len(lines))],
+        css_class="machine-summary")
+    machine_html += table_html(shaft_rows, (Column("shaft", "shaft"),
+                                            Column("order", "speed (orders of the reference)",
+                                                   _order_text, numeric=True)),
+                               css_class="shafts", caption="Shaft speeds")
+    machine_html += table_html(_line_records(lines), _LINE_COLUMNS, css_class="lines",
+                               caption="Lines (order lines by order, then fixed lines)")
+    parts.append(_section("machine", machine_html, sections))
+
+    # ---- plan --------------------------------------------------------------------------
+    sp = plan.speed
+    speed_pairs = [("profile", sp.kind), ("speed range", f"{sp.rpm_min:g} to {sp.rpm_max:g} rpm")]
+    if sp.duration_s:
+        speed_pairs.append(("duration", f"{sp.duration_s:g} s"))
+    speed_pairs.append(("fastest sweep", f"{sp.max_sweep_rate_rpm_per_s:.3g} rpm/s"))
+    plan_html = key_value_html(
+        speed_pairs + [
+            ("candidate rates", ", ".join(f"{r:g}" for r in plan.rates_hz) + " S/s"),
+            ("anti-alias filter", plan.filter.describe()),
+            ("threshold", f"{plan.threshold_db:g} dB (a folded line above this residual counts)"),
+        ], css_class="plan-summary")
+    plan_html += table_html(_band_records(plan, lines), _BAND_COLUMNS, css_class="bands",
+                            caption="Protected bands", empty="no bands")
+    plan_html += table_html(advice.candidates, _CANDIDATE_COLUMNS, css_class="candidates",
+                            caption="Candidate rates (by rate)")
+    parts.append(_section("plan", plan_html, sections))
+
+    # ---- recommendation ----------------------------------------------------------------
+    rec_html = (f'<p class="verdict good">{rec:g} S/s</p>' if rec is not None
+                else '<p class="verdict bad">no rate recommended</p>')
+    rec_html += '<ul class="notes">' + "".join(f"<li>{esc(n)}</li>" for n in advice.notes) + "</ul>"
+    if warn_texts:
+        rec_html += '<ul class="notes warnings">' + "".join(
+            f"<li>warning: {esc(w)}</li>" for w in warn_texts) + "</ul>"
+    parts.append(_section("recommendation", rec_html, sections))
+
+    # ---- collisions --------------------------------------------------------------------
+    coll_html = ["<p>Folded lines (zone 1 and above) whose residual after the filter exceeds the "
+                 f"threshold ({plan.threshold_db:g} dB) while inside a protected band; one row per "
+                 "line, band and rpm interval, highest residual first.</p>"]
+    for rate in rates:
+        table = tables[rate]
+        coll = table[table["kind"] == "collision"]
+        over = table[table["kind"] == "overlap"]
+        label = f"{rate:g} S/s: {len(coll)} collision(s), {len(over)} overlap(s)"
+        if rec is not None and rate == float(rec):
+            label += " (recommended)"
+        is_open = " open" if (rate in worst_rates or (rec is not None and rate == float(rec))) else ""
+        attrs = {"data-rate": repr(float(rate))}
+        inner = table_html(coll, _COLLISION_COLUMNS, css_class="collisions", attrs=attrs,
+                           caption=f"Collisions at {rate:g} S/s", empty="no collisions")
+        inner += table_html(over, _COLLISION_COLUMNS, css_class="overlaps", attrs=attrs,
+                            caption=f"Overlaps at {rate:g} S/s (direct lines inside a band)",
+                            empty="no overlaps")
+        coll_html.append(f'<details{is_open} data-rate="{rate!r}"><summary>{esc(label)}</summary>'
+                         f"{inner}</details>")
+    parts.append(_section("collisions", "\n".join(coll_html), sections))
+
+    # ---- fold maps ---------------------------------------------------------------------
+    say("fold maps")
+    fm_html = ["<p>True frequencies (thin) and apparent frequencies after sampling (folded lines "
+               "dashed) across the speed profile, with the protected bands and the filter's usable "
+               "edge; collisions are marked.</p>"]
+    for rate in shown_rates:
+        why = "recommended rate" if rec is not None and rate == float(rec) else "worst candidate"
+        for view in ("hz", "order"):
+            fig = plot_fold_map(fmaps[rate], plan, collisions=tables[rate], view=view)
+            fm_html.append(figure_svg(
+                fig, key=f"foldmap-{rate:g}-{view}",
+                caption=f"Fold map at {rate:g} S/s ({why}), {'Hz' if view == 'hz' else 'order'} view, "
+                        f"{coll_count[rate]} collision(s).",
+                alt=f"fold map at {rate:g} samples per second, {view} view"))
+            _close(fig)
+    parts.append(_section("fold-maps", "\n".join(fm_html), sections))
+
+    # ---- angle settings ----------------------------------------------------------------
+    angle_pairs = [
+        ("samples per rev", f"{rs.samples_per_rev} (a power of two, at least 2.56 x order "
+                            f"{rs.max_order:g})"),
+        ("angle-domain Nyquist order", f"{rs.order_nyquist:g}"),
+        ("highest order of interest", f"{rs.max_order:g}"),
+        ("order resolution", f"{rs.order_resolution:g} orders"),
+        ("revs per block", f"{rs.revs_per_block}"),
+        ("lowest rate capturing the highest order at top speed",
+         f"{rs.min_rate_hz:.0f} S/s (order {rs.max_order:g} at {rs.top_speed_rpm:g} rpm)"),
+        ("smearing of a plain time-domain FFT at the fastest sweep",
+         f"{rs.smearing_bins:.1f} bins ({rs.smearing_hz:.1f} Hz) per block for order {rs.max_order:g}"),
+    ]
+    parts.append(_section("angle-settings", key_value_html(angle_pairs, css_class="angle-settings"),
+                          sections))
+
+    # ---- run ---------------------------------------------------------------------------
+    aliases = None
+    if analysis is not None:
+        say("run figures")
+        run_html, aliases = _run_sections(analysis, lines, track_settings, sections)
+        parts.append(run_html)
+
+    # ---- safety and provenance ----------------------------------------------------------
+    parts.append(_section("safety", f'<p class="safety">{esc(SAFETY_TEXT)}</p>', sections))
+    prov = key_value_html(
+        [("made by", f"foldline {__version__}"), ("made at (UTC)", stamp),
+         ("Python", sys.version.split()[0]), ("numpy", np.__version__)] + _lib_versions(),
+        css_class="provenance")
+    prov += table_html([{"role": f.role, "name": f.name, "size": f.size_bytes, "sha256": f.sha256}
+                        for f in inputs],
+                       (Column("role", "input"), Column("name", "file"),
+                        Column("size", "bytes", str, numeric=True), Column("sha256", "SHA-256")),
+                       css_class="inputs", caption="Input files", empty="no input files recorded")
+    parts.append(_section("provenance", prov, sections))
+
+    heading = title or f"foldline report: {machine.name}"
+    nav = "<nav><ol>" + "".join(
+        f'<li><a href="#{esc(s)}">{esc(SECTION_TITLES[s])}</a></li>'
+        for s in sections if s in _TOP_LEVEL) + "</ol></nav>"
+    body = (f"<header><h1>{esc(heading)}</h1><p class=\"sub\">Made {esc(stamp)} by foldline "
+            f"{esc(__version__)}</p></header>\n{nav}\n<main>\n" + "\n".join(parts)
+            + "\n</main>\n<footer>This file is self-contained: it loads nothing from a network. "
+            "Tables sort on a header click.</footer>")
+    return Report(
+        html=page(title=heading, body=body),
+        sections=tuple(sections),
+        collisions_by_rate={float(r): n for r, n in coll_count.items()},
+        recommended_rate_hz=None if rec is None else float(rec),
+        fold_map_rates_hz=tuple(shown_rates),
+        aliases=aliases,
+        created_utc=stamp,
+        inputs=tuple(inputs),
+    )
+
+
+_TOP_LEVEL = {"summary", "machine", "plan", "recommendation", "collisions", "fold-maps",
+              "angle-settings", "run", "safety", "provenance"}
+
+
+def _run_sections(analysis, lines, track_settings, sections):
+    """The run part of the report; returns (html, alias names or None)."""
+    from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum,
+                                 plot_rpm_frequency_map, plot_tacho_check)
+
+    sa = analysis.shaft_angle
+    unit = analysis.unit or ""
+    run_sections: list[str] = []
+    sections.append("run")
+    pairs = [
+        ("file", Path(str(analysis.source)).name),
+        ("rate", f"{analysis.rate_hz:g} S/s"),
+        ("channel", f"{analysis.channel} ({unit})" if unit else str(analysis.channel)),
+        ("duration", f"{analysis.duration_s:.2f} s"),
+        ("speed range", f"{sa.rpm_min:.1f} to {sa.rpm_max:.1f} rpm"),
+        ("revolutions", f"{sa.revolutions:.1f}"),
+        ("samples per rev", str(analysis.samples_per_rev)),
+        ("revs per block", str(analysis.revs_per_block)),
+    ]
+    for k, v in (track_settings or {}).items():
+        if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
+            pairs.append((k.replace("_", " "), v if isinstance(v, str) else repr(v)))
+    head = key_value_html(pairs, css_class="run-summary")
+    log = tuple(getattr(analysis, "log", ()) or ())
+    if log:
+        head += "<details><summary>processing log</summary><ul class=\"notes\">" + "".join(
+            f"<li>{esc(entry)}</li>" for entry in log) + "</ul></details>"
+
+    # tacho check
+    t0, t1 = float(sa.pulse_times_s[0]), float(sa.pulse_times_s[-1])
+    t = np.linspace(t0, t1, 2000)
+    doubted = sa.doubted
+    fig = plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=sa.pulse_times_s,
+                           doubted_times_s=doubted.time_s, doubted_reasons=doubted.reason)
+    tacho_html = figure_svg(fig, key="tacho", caption="Reference shaft speed from the tacho, with "
+                            "the pulses and any pulse the tacho processing doubted.",
+                            alt="speed against time from the tacho")
+    _close(fig)
+    tacho_html += table_html(doubted.to_frame(), _DOUBT_COLUMNS, css_class="doubted",
+                             caption="Doubted pulses", empty="no doubted pulses")
+    run_sections.append(_sub("tacho", tacho_html, sections))
+
+    # order spectrum and peaks
+    res = 1.0 / float(analysis.revs_per_block)
+    peaks = analysis.peaks.copy()
+    peaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in peaks["order"]]
+    peaks = peaks.sort_values("amplitude", ascending=False)
+    fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit)
+    spec_html = figure_svg(fig, key="order-spectrum", caption="Order spectrum averaged over the run "
+                           "(peak amplitudes, window-corrected) with the predicted direct line "
+                           "orders dotted.", alt="order spectrum")
+    _close(fig)
+    spec_html += table_html(peaks, _PEAK_COLUMNS, css_class="peaks",
+                            caption="Peaks of the order spectrum (largest first)", empty="no peaks")
+    env = getattr(analysis, "envelope", None)
+    if env is not None:
+        epeaks = analysis.envelope_peaks.copy()
+        epeaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in epeaks["order"]]
+        epeaks = epeaks.sort_values("amplitude", ascending=False)
+        fig = plot_order_spectrum(env, peaks=analysis.envelope_peaks, lines=lines, unit=unit,
+                                  title="Envelope order spectrum")
+        spec_html += figure_svg(fig, key="envelope-spectrum", caption="Envelope order spectrum.",
+                                alt="envelope order spectrum")
+        _close(fig)
+        spec_html += table_html(epeaks, _PEAK_COLUMNS, css_class="envelope-peaks",
+                                caption="Peaks of the envelope order spectrum", empty="no peaks")
+    run_sections.append(_sub("order-spectrum", spec_html, sections))
+
+    ident = getattr(analysis, "identification", None)
+    fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
+                         identification=ident, unit=unit)
+    run_sections.append(_sub("order-map", figure_svg(
+        fig, key="order-map", caption="Order map with the predicted lines: direct lines solid, "
+        "folded lines (aliases, moving in order with speed) dashed; identified aliases labelled.",
+        alt="order map"), sections))
+    _close(fig)
+
+    cuts = tuple(getattr(analysis, "cuts", ()) or ())
+    if cuts:
+        fig = plot_order_cuts(cuts, unit=unit)
+        cut_html = figure_svg(fig, key="order-cuts", caption="Amplitude of chosen orders against "
+                              "speed (energy sum over the band of each cut).", alt="order cuts")
+        _close(fig)
+    else:
+        cut_html = '<p class="empty">no order cuts were asked for</p>'
+    run_sections.append(_sub("order-cuts", cut_html, sections))
+
+    rf = getattr(analysis, "rf_map", None)
+    if rf is not None:
+        names = None if ident is None or not len(ident.table) else set(ident.table["line"])
+        fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit, names=names)
+        run_sections.append(_sub("rpm-frequency-map", figure_svg(
+            fig, key="rpm-frequency-map", caption="Time-domain spectra against speed with the "
+            "apparent frequency of each identified line.", alt="rpm-frequency map"), sections))
+        _close(fig)
+
+    aliases = None
+    if ident is not None:
+        aliases = tuple(dict.fromkeys(str(n) for n in ident.aliases["line"]))
+        n_unexpl = len(ident.unexplained)
+        intro = ("<p>Ridges of the order map matched to the machine's predicted lines. A line in "
+                 "zone 1 or above is an <b>alias</b>: it was above Nyquist when sampled and shows at "
+                 "an order that moves with speed, so it is not a fault line at that order. "
+                 f"{n_unexpl} ridge point(s) match no predicted line.</p>")
+        run_sections.append(_sub("identification", intro + table_html(
+            ident.table, _IDENT_COLUMNS, css_class="identification",
+            caption="Identified lines (aliases first, then by amplitude)",
+            empty="no ridge matched a predicted line"), sections))
+    html_run = (f'<section id="run"><h2>{esc(SECTION_TITLES["run"])}</h2>\n{head}\n'
+                + "\n".join(run_sections) + "\n</section>")
+    return html_run, aliases
+
+
+def _lib_versions():
+    out = []
+    for name in ("scipy", "pandas", "matplotlib"):
+        mod = sys.modules.get(name)
+        if mod is not None:
+            out.append((name, getattr(mod, "__version__", "?")))
+    return out
+
+
+def _close(fig):
+    fig.clear()
+
+
+def _utc_text(value) -> str:
+    if value is None:
+        value = datetime.now(timezone.utc)
+    if isinstance(value, datetime):
+        if value.tzinfo is None:
+            raise InputError("created_utc: give a time zone aware datetime (or an ISO 8601 text)")
+        return value.astimezone(timezone.utc).replace(microsecond=0).isoformat().replace("+00:00", "Z")
+    return str(value)
+
+
+# --------------------------------------------------------------------------------------------
+# files
+
+
+def write_report(machine_path, plan_path, run_path=None, *, out, force=False, track_options=None,
+                 progress=None) -> Report:
+    """Read the inputs, track the run (when given), build the report and write it to ``out``.
+
+    Parameters
+    ----------
+    machine_path, plan_path : path-like
+        Machine file and plan file (TOML).
+    run_path : path-like, optional
+        A recorded run; tracked with :func:`workbench.runs.analysis.track_run` using the
+        plan's angle-domain settings (samples per rev, revs per block) unless
+        ``track_options`` gives them, and with order cuts at :func:`default_cut_orders`.
+    out : path-like
+        Output ``.html`` file; written under a temporary name and renamed into place.
+    force : bool
+        Replace an existing ``out``.
+    track_options : mapping, optional
+        Keyword options of ``track_run`` (``channel``, ``tacho``, ``rpm``, ...).
+    progress : callable, optional
+        Called with a short text as each part is built.
+
+    Returns
+    -------
+    Report
+
+    Raises
+    ------
+    OutputExistsError
+        ``out`` exists and ``force`` is false (checked before any work is done).
+    """
+    from workbench.machine import read_machine
+    from workbench.runs import atomic_output, check_writable
+    from workbench.sampling import angle_settings, read_plan
+
+    out = Path(out)
+    if out.suffix.lower() not in (".html", ".htm"):
+        raise InputError(f"--out {out}: the report is one HTML file; give a name ending in .html")
+    check_writable(out, force=force)
+    machine = read_machine(machine_path)
+    plan = read_plan(plan_path)
+    plan.check_against(machine.lines())
+    inputs = [InputFile.of("machine", machine_path), InputFile.of("plan", plan_path)]
+    analysis, settings = None, None
+    if run_path is not None:
+        from workbench.runs import sidecar_path
+        from workbench.runs.analysis import track_run
+
+        inputs.append(InputFile.of("run", run_path))
+        side = sidecar_path(run_path)
+        if side.is_file():
+            inputs.append(InputFile.of("run sidecar", side))
+        settings = dict(track_options or {})
+        rs = angle_settings(machine, plan)
+        settings.setdefault("samples_per_rev", rs.samples_per_rev)
+        settings.setdefault("revs_per_block", rs.revs_per_block)
+        if not settings.get("cut_orders"):
+            settings["cut_orders"] = default_cut_orders(
+                machine, plan, max_order=settings["samples_per_rev"] / 2.56)
+        if progress:
+            progress(f"tracking {run_path}")
+        analysis = track_run(run_path, machine=machine, **settings)
+    report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
+                          progress=progress)
+    with atomic_output(out, force=force) as tmp:
+        Path(tmp).write_text(report.html, encoding="utf-8")
+    return report
