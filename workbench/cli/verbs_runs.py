@@ -180,6 +180,17 @@ def add_verbs(verb) -> None:
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_simulate)
 
+    _add_report_and_batch(verb)
+
+
+def _add_report_and_batch(verb) -> None:
+    """``foldline report`` and ``foldline batch`` (defined with their layers)."""
+    from workbench.batch.command import add_batch_verb
+    from workbench.report.command import add_report_verb
+
+    add_report_verb(verb)
+    add_batch_verb(verb)
+
 
 def _stderr(msg: str) -> None:
     sys.stderr.write(msg + "\n")
