@@ -17,10 +17,10 @@ import pytest
 pytest.importorskip("ipywidgets")
 
 from workbench.errors import FoldlineWarning  # noqa: E402
-from workbench.machine import read_machine  # noqa: E402
+from workbench.machine import machine_from_dict, machine_to_dict, read_machine  # noqa: E402
 from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
                                 read_plan)
-from workbench.ui import FoldMapPanel  # noqa: E402
+from workbench.ui import FoldMapPanel, SourceEditorPanel  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
@@ -253,3 +253,94 @@ def test_panel_accepts_paths_and_exposes_its_widget(machine):
     assert panel.rate_choice.value == 5120.0
     assert "foldline-foldmap-panel" in panel.widget._dom_classes
     assert panel.sources.value == tuple(dict.fromkeys(ln.entry for ln in machine.lines()))
+
+
+# -- SourceEditorPanel -----------------------------------------------------------------------
+def _machine_with(machine, table, name, **changes):
+    """The machine rebuilt from its dictionary with one entry's keys changed (independent of
+    the panel's own editing)."""
+    d = machine_to_dict(machine)
+    for entry in d[table]:
+        if entry["name"] == name:
+            entry.update(changes)
+    return machine_from_dict(d)
+
+
+def _collision_count(machine, plan, rate_hz):
+    table = find_collisions(machine, plan, rate_hz)
+    return int((table["kind"] == "collision").sum())
+
+
+@pytest.fixture(scope="module")
+def shared_editor(machine, plan):
+    return SourceEditorPanel(machine, plan, entry="stage 1", rate_hz=2560.0)
+
+
+@pytest.fixture()
+def editor(shared_editor):
+    """One editor for the module (its caches make the tests fast), back to its opening state."""
+    shared_editor.entry.value = "stage 1"
+    shared_editor.rate.value = 2560.0
+    shared_editor.reset()
+    return shared_editor
+
+
+def test_editor_opens_with_no_edit(editor, machine, plan):
+    n = _collision_count(machine, plan, 2560.0)
+    assert editor.result["collisions"] == (n, n)
+    assert list(editor.fields) == ["driver_teeth", "driven_teeth"]
+    assert editor.fields["driver_teeth"].value == 29
+    assert "no edits yet" in editor.header.value
+    assert editor.figure.value[:4] == b"\x89PNG"
+
+
+def test_smaller_pinion_moves_lines_and_collisions(editor, machine, plan):
+    png = editor.figure.value
+    editor.fields["driver_teeth"].value = 23
+    edited = _machine_with(machine, "gear_stage", "stage 1", driver_teeth=23)
+    assert editor.machine == edited
+    n0, n1 = _collision_count(machine, plan, 2560.0), _collision_count(edited, plan, 2560.0)
+    assert editor.result["collisions"] == (n0, n1) and n1 != n0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FoldlineWarning)
+        assert editor.result["recommended_rate_hz"][1] == advise(edited, plan).recommended_rate_hz
+    compare = table_rows(editor.summary.value, "foldline-compare")
+    assert compare[0] == ["collisions at 2560 Hz", str(n0), str(n1)]
+    # A pinion on the reference shaft meshes at (teeth) x shaft speed: order 23, and at
+    # 1800 rpm (30 Hz) 690 Hz (common practice, no source).
+    lines = {r[0]: r for r in table_rows(editor.lines_table.value, "foldline-source-lines")}
+    assert lines["stage 1 mesh"][2:] == ["29.0000", "23.0000", "870.0", "690.0"]
+    assert editor.figure.value != png
+    rows = table_rows(editor.collisions.value, "foldline-collisions")
+    assert len(rows) == n1
+
+
+def test_bearing_geometry_moves_its_defect_orders(editor):
+    editor.entry.value = "motor DE"
+    assert list(editor.fields) == ["rolling_elements", "element_diameter", "pitch_diameter",
+                                   "contact_angle_deg"]
+    editor.fields["rolling_elements"].value = 9
+    # BPFO = n/2 (1 - d/D cos(a)) orders of the shaft (T. A. Harris, Rolling Bearing Analysis,
+    # 4th ed., Wiley 2001, ch. 8): 9/2 (1 - 17.462/72.5) = 3.416152.
+    lines = {r[0]: r for r in table_rows(editor.lines_table.value, "foldline-source-lines")}
+    assert lines["motor DE bpfo"][3] == "3.4162"
+    assert "motor DE rolling elements 8 -&gt; 9" in editor.header.value
+
+
+def test_refused_edit_keeps_the_last_valid_machine(editor):
+    editor.fields["driver_teeth"].value = 23
+    good, result = editor.machine, dict(editor.result)
+    editor.fields["driver_teeth"].value = 0
+    assert "driver_teeth = 0: must be a positive integer" in editor.message.value
+    assert editor.machine == good and editor.result == result
+    editor.fields["driver_teeth"].value = 25
+    assert editor.message.value == ""
+
+
+def test_reset_and_rate_change(editor, machine, plan):
+    editor.fields["driver_teeth"].value = 23
+    editor.reset_button.click()
+    assert editor.machine == machine and editor.fields["driver_teeth"].value == 29
+    editor.rate.value = 5120.0
+    n = _collision_count(machine, plan, 5120.0)
+    assert editor.result["collisions"] == (n, n)

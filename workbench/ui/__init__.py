@@ -5,8 +5,11 @@ and whose ``widget`` is shown with ``panel.show()`` or by leaving the panel last
 
 - :class:`FoldMapPanel` -- rate, filter, speed range, threshold, sources and bands against the
   fold map, the collision table and the advisor's verdict.
+- :class:`SourceEditorPanel` -- change tooth counts, bearing geometry or rotor counts and compare
+  lines, collisions and the recommended rate before and after.
 """
 
 from workbench.ui.foldmap_panel import FoldMapPanel
+from workbench.ui.source_editor import SourceEditorPanel
 
-__all__ = ["FoldMapPanel"]
+__all__ = ["FoldMapPanel", "SourceEditorPanel"]
