@@ -1,1 +1,20 @@
-"""batch layer."""
+"""Batch layer: many runs tracked with the same settings, serially or on a Dask cluster.
+
+Dask is imported only when a batch runs on a cluster, so ``import workbench.batch`` stays light.
+
+Typical use::
+
+    from workbench.batch import BatchSettings, run_batch
+    settings = BatchSettings.make(track={"samples_per_rev": 256}, plan_path="plan.toml")
+    result = run_batch(["a.wav", "b.wav"], "out/", settings=settings, workers=2)
+    result.summary        # one row per run: levels per band, top orders, aliases, status
+"""
+
+from workbench.batch.core import (BASE_COLUMNS, LEVEL_PREFIX, SUMMARY_NAME, TAIL_COLUMNS,
+                                  BatchResult, BatchSettings, process_run, read_summary,
+                                  run_batch)
+from workbench.batch.levels import band_level_series, band_levels
+
+__all__ = ["BatchSettings", "BatchResult", "process_run", "run_batch", "read_summary",
+           "band_levels", "band_level_series", "BASE_COLUMNS", "TAIL_COLUMNS", "LEVEL_PREFIX",
+           "SUMMARY_NAME"]

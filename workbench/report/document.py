@@ -429,8 +429,10 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
                                             Column("order", "speed (orders of the reference)",
                                                    _order_text, numeric=True)),
                                css_class="shafts", caption="Shaft speeds")
-    machine_html += table_html(_line_records(lines), _LINE_COLUMNS, css_class="lines",
-                               caption="Lines (order lines by order, then fixed lines)")
+    machine_html += (f"<details><summary>Line table: {len(lines)} lines</summary>"
+                     + table_html(_line_records(lines), _LINE_COLUMNS, css_class="lines",
+                                  caption="Lines (order lines by order, then fixed lines)")
+                     + "</details>")
     parts.append(_section("machine", machine_html, sections))
 
     # ---- plan --------------------------------------------------------------------------
@@ -475,9 +477,11 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         attrs = {"data-rate": repr(float(rate))}
         inner = table_html(coll, _COLLISION_COLUMNS, css_class="collisions", attrs=attrs,
                            caption=f"Collisions at {rate:g} S/s", empty="no collisions")
-        inner += table_html(over, _COLLISION_COLUMNS, css_class="overlaps", attrs=attrs,
-                            caption=f"Overlaps at {rate:g} S/s (direct lines inside a band)",
-                            empty="no overlaps")
+        inner += (f"<details><summary>{len(over)} overlap(s) at {rate:g} S/s: direct lines "
+                  "inside a band (not aliases)</summary>"
+                  + table_html(over, _COLLISION_COLUMNS, css_class="overlaps", attrs=attrs,
+                               caption=f"Overlaps at {rate:g} S/s", empty="no overlaps")
+                  + "</details>")
         coll_html.append(f'<details{is_open} data-rate="{rate!r}"><summary>{esc(label)}</summary>'
                          f"{inner}</details>")
     parts.append(_section("collisions", "\n".join(coll_html), sections))

@@ -18,6 +18,7 @@ import hashlib
 import html
 import io
 import math
+import numbers
 import re
 from dataclasses import dataclass
 from typing import Any, Callable
@@ -88,8 +89,10 @@ def _data_value(value: Any, numeric: bool) -> str:
     if _is_missing(value):
         return ""
     if numeric:
-        if isinstance(value, bool):
+        if isinstance(value, bool) or type(value).__name__ == "bool_":
             return "1" if value else "0"
+        if isinstance(value, numbers.Integral):
+            return str(int(value))
         v = float(value)
         if math.isinf(v):
             return "inf" if v > 0 else "-inf"
@@ -229,7 +232,7 @@ footer { margin-top: 3rem; color: var(--muted); font-size: .82rem; }
 
 #: Sort a table by a header click: numbers by value, text alphabetically; click again to
 #: reverse.  Written for this page only; it loads nothing.
-SORT_SCRIPT = """
+SORT_SCRIPT = r"""
 (function () {
   "use strict";
   function value(cell, numeric) {
@@ -239,6 +242,16 @@ SORT_SCRIPT = """
     if (v === "inf") { return Infinity; }
     if (v === "-inf") { return -Infinity; }
     return parseFloat(v);
+  }
+  // Case-insensitive text order in which digit runs compare as numbers ("x2" before "x10").
+  function natural(x, y) {
+    var a = String(x).toLowerCase().split(/(\d+)/), b = String(y).toLowerCase().split(/(\d+)/);
+    for (var i = 0; i < Math.min(a.length, b.length); i++) {
+      if (a[i] === b[i]) { continue; }
+      if (i % 2 === 1) { return parseInt(a[i], 10) - parseInt(b[i], 10) || (a[i] < b[i] ? -1 : 1); }
+      return a[i] < b[i] ? -1 : 1;
+    }
+    return a.length - b.length;
   }
   function sortBy(table, index, th) {
     var numeric = th.getAttribute("data-type") === "num";
@@ -253,7 +266,7 @@ SORT_SCRIPT = """
         if (xn || yn) { c = xn === yn ? 0 : (xn ? 1 : -1); return c !== 0 ? c : a[1] - b[1]; }
         c = x < y ? -1 : (x > y ? 1 : 0);
       } else {
-        c = String(x).localeCompare(String(y), undefined, {numeric: true});
+        c = natural(x, y);
       }
       if (!ascending) { c = -c; }
       return c !== 0 ? c : a[1] - b[1];

@@ -1,0 +1,533 @@
+"""Track many runs with the same settings, serially or on a Dask cluster.
+
+Each run is one task: the worker gets the run's *path* (never its samples), reads it, tracks it
+with :func:`workbench.runs.analysis.track_run`, writes the order spectrum and the order cuts as
+CSV files into the output folder, and returns one summary row.  The client collects the rows
+into ``summary.parquet`` and ``summary.csv`` (written under temporary names and renamed into
+place, again every few seconds while the batch runs, so an interrupted batch keeps what it
+finished).
+
+Resuming: a run whose file content (SHA-256), sidecar content and settings are already in the
+summary with status ``ok`` (and whose spectrum file is still there) is skipped.  A run that
+fails is listed with status ``error`` and its message; it does not stop the batch.
+
+Serial mode (``workers=0``) runs the very same per-run function in this process, without Dask.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import time
+import warnings
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from workbench.errors import FoldlineError, FoldlineWarning, InputError
+from workbench.report.document import file_sha256
+
+__all__ = [
+    "BatchSettings",
+    "BatchResult",
+    "process_run",
+    "run_batch",
+    "read_summary",
+    "file_sha256",
+    "SUMMARY_NAME",
+    "BASE_COLUMNS",
+    "LEVEL_PREFIX",
+]
+
+SUMMARY_NAME = "summary"
+#: Column-name prefix of the per-band levels: ``"level: <band name>"``.
+LEVEL_PREFIX = "level: "
+#: Summary columns before the band levels, then :data:`TAIL_COLUMNS` after them.
+BASE_COLUMNS = ("file", "sha256", "sidecar_sha256", "settings", "status", "error", "rpm_min",
+                "rpm_max", "duration_s", "revolutions")
+TAIL_COLUMNS = ("top_orders", "aliases", "alias_lines", "warnings", "spectrum_csv", "cuts_csv",
+                "seconds")
+_WRITE_EVERY_S = 5.0
+
+
+def _sidecar_sha(path: Path) -> str:
+    from workbench.runs import sidecar_path
+
+    side = sidecar_path(path)
+    return file_sha256(side) if side.is_file() else ""
+
+
+@dataclass(frozen=True)
+class BatchSettings:
+    """What to do with every run of a batch.
+
+    Attributes
+    ----------
+    track : tuple of (str, value)
+        Keyword options of :func:`~workbench.runs.analysis.track_run` (``channel``, ``tacho``,
+        ``rpm``, ``samples_per_rev``, ...), as sorted pairs so the settings are hashable.
+    machine_path, plan_path : str or None
+        Machine file (predicted lines, alias identification) and plan file (bands whose level
+        is reported).  Read by each worker; must be readable there.
+    cut_orders : tuple of float
+        Orders whose cuts are written per run.
+    n_top : int
+        Peaks listed in ``top_orders``.
+    """
+
+    track: tuple = ()
+    machine_path: str | None = None
+    plan_path: str | None = None
+    cut_orders: tuple = ()
+    n_top: int = 5
+    _file_hashes: tuple = field(default=(), repr=False)
+
+    @classmethod
+    def make(cls, *, track=None, machine_path=None, plan_path=None, cut_orders=(), n_top=5):
+        """Build settings from a mapping of ``track_run`` options; checks the files exist."""
+        opts = dict(track or {})
+        for bad in ("machine", "cut_orders", "progress"):
+            if bad in opts:
+                raise InputError(f"track option {bad!r}: give it as a batch setting, not a "
+                                 "track option")
+        hashes = []
+        for role, p in (("machine", machine_path), ("plan", plan_path)):
+            if p is not None:
+                if not Path(p).is_file():
+                    raise InputError(f"--{role} {p}: no such file")
+                hashes.append((role, file_sha256(p)))
+        n_top = int(n_top)
+        if n_top < 1:
+            raise InputError(f"n_top = {n_top}: must be at least 1")
+        return cls(
+            track=tuple(sorted((str(k), _freeze(v)) for k, v in opts.items() if v is not None)),
+            machine_path=None if machine_path is None else str(machine_path),
+            plan_path=None if plan_path is None else str(plan_path),
+            cut_orders=tuple(float(o) for o in cut_orders),
+            n_top=n_top,
+            _file_hashes=tuple(hashes),
+        )
+
+    @property
+    def track_options(self) -> dict:
+        """The ``track_run`` options as a dict."""
+        return dict(self.track)
+
+    @property
+    def fingerprint(self) -> str:
+        """Short hash of everything that changes a run's results (options and input files)."""
+        doc = {
+            "track": [[k, v] for k, v in self.track],
+            "cut_orders": list(self.cut_orders),
+            "n_top": self.n_top,
+            "files": [list(h) for h in self._file_hashes],
+        }
+        text = json.dumps(doc, sort_keys=True, default=str)
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()[:16]
+
+
+def _freeze(v):
+    if isinstance(v, list):
+        return tuple(_freeze(x) for x in v)
+    if isinstance(v, Path):
+        return str(v)
+    return v
+
+
+@lru_cache(maxsize=8)
+def _machine(path: str, sha: str):
+    from workbench.machine import read_machine
+
+    return read_machine(path)
+
+
+@lru_cache(maxsize=8)
+def _plan(path: str, sha: str):
+    from workbench.sampling import read_plan
+
+    return read_plan(path)
+
+
+def _output_names(path: Path, sha256: str, out_dir: Path) -> tuple[Path, Path]:
+    tag = f"{path.stem}_{sha256[:8]}"
+    return out_dir / f"{tag}_spectrum.csv", out_dir / f"{tag}_cuts.csv"
+
+
+def _top_orders(peaks, n: int) -> str:
+    if peaks is None or not len(peaks):
+        return ""
+    top = peaks.sort_values("amplitude", ascending=False).head(n)
+    return ";".join(f"{float(o):.2f}:{float(a):.3g}" for o, a in zip(top["order"], top["amplitude"]))
+
+
+def _write_csv(frame: pd.DataFrame, path: Path) -> None:
+    from workbench.runs import atomic_output
+
+    with atomic_output(path, force=True) as tmp:
+        frame.to_csv(tmp, index=False)
+
+
+def process_run(path, settings: BatchSettings, out_dir, *, sha256=None, sidecar_sha256=None) -> dict:
+    """Track one run and write its spectrum and cuts; return its summary row.
+
+    This is the function each Dask task runs (and the serial mode calls).  It never raises for
+    a bad run: the row then has status ``"error"`` and the message.
+
+    Parameters
+    ----------
+    path : str or Path
+        The run file (readable where this runs).
+    settings : BatchSettings
+    out_dir : str or Path
+        Folder for ``<stem>_<sha8>_spectrum.csv`` (columns ``order, amplitude``) and
+        ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``).
+    sha256, sidecar_sha256 : str, optional
+        Content hashes when already known (computed otherwise).
+
+    Returns
+    -------
+    dict
+        One summary row: :data:`BASE_COLUMNS`, ``level: <band>`` per plan band,
+        :data:`TAIL_COLUMNS`.
+    """
+    t0 = time.perf_counter()
+    path = Path(path)
+    out_dir = Path(out_dir)
+    row = {"file": str(path), "sha256": sha256 or "", "sidecar_sha256": sidecar_sha256 or "",
+           "settings": settings.fingerprint, "status": "error", "error": ""}
+    caught = []
+    try:
+        if not row["sha256"]:
+            row["sha256"] = file_sha256(path)
+        if sidecar_sha256 is None:
+            row["sidecar_sha256"] = _sidecar_sha(path)
+        hashes = dict(settings._file_hashes)
+        machine = None if settings.machine_path is None else _machine(settings.machine_path, hashes["machine"])
+        plan = None if settings.plan_path is None else _plan(settings.plan_path, hashes["plan"])
+        lines = () if machine is None else machine.lines()
+        from workbench.runs.analysis import track_run
+
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", FoldlineWarning)
+            analysis = track_run(path, machine=machine, cut_orders=settings.cut_orders,
+                                 **settings.track_options)
+        spec_path, cuts_path = _output_names(path, row["sha256"], out_dir)
+        spectrum = pd.DataFrame({"order": np.asarray(analysis.spectrum.order, dtype=float),
+                                 "amplitude": np.asarray(analysis.spectrum.amplitude, dtype=float)})
+        _write_csv(spectrum, spec_path)
+        cut_frames = [
+            pd.DataFrame({"order": float(c.order), "bandwidth_orders": float(c.bandwidth_orders),
+                          "rpm": np.asarray(c.rpm, dtype=float),
+                          "amplitude": np.asarray(c.amplitude, dtype=float)})
+            for c in analysis.cuts
+        ]
+        cuts = (pd.concat(cut_frames, ignore_index=True) if cut_frames else
+                pd.DataFrame(columns=["order", "bandwidth_orders", "rpm", "amplitude"]))
+        _write_csv(cuts, cuts_path)
+        sa = analysis.shaft_angle
+        row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
+                    "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
+        if plan is not None:
+            from workbench.batch.levels import band_levels
+
+            for name, level in band_levels(analysis.order_map, plan.bands, lines).items():
+                row[LEVEL_PREFIX + name] = level
+        row["top_orders"] = _top_orders(analysis.peaks, settings.n_top)
+        ident = analysis.identification
+        if ident is not None:
+            names = list(dict.fromkeys(str(n) for n in ident.aliases["line"]))
+            row["aliases"] = len(names)
+            row["alias_lines"] = "; ".join(names)
+        row["spectrum_csv"] = spec_path.name
+        row["cuts_csv"] = cuts_path.name
+    except Exception as exc:  # one bad run must not stop the batch: report it in its row
+        row["status"] = "error"
+        row["error"] = str(exc) if isinstance(exc, FoldlineError) else f"{type(exc).__name__}: {exc}"
+    row["warnings"] = " | ".join(dict.fromkeys(str(w.message) for w in caught))
+    row["seconds"] = time.perf_counter() - t0
+    return row
+
+
+# --------------------------------------------------------------------------------------------
+# the summary table
+
+
+def _order_columns(columns) -> list:
+    levels = [c for c in columns if str(c).startswith(LEVEL_PREFIX)]
+    known = set(BASE_COLUMNS) | set(TAIL_COLUMNS) | set(levels)
+    rest = [c for c in columns if c not in known]
+    return list(BASE_COLUMNS) + levels + list(TAIL_COLUMNS) + rest
+
+
+def _frame(rows) -> pd.DataFrame:
+    table = pd.DataFrame(list(rows))
+    for c in BASE_COLUMNS + TAIL_COLUMNS:
+        if c not in table.columns:
+            table[c] = pd.Series([None] * len(table), dtype=object)
+    table = table[_order_columns(table.columns)]
+    for c in ("rpm_min", "rpm_max", "duration_s", "revolutions", "seconds"):
+        table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
+    for c in table.columns:
+        if str(c).startswith(LEVEL_PREFIX):
+            table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
+    table["aliases"] = pd.to_numeric(table["aliases"], errors="coerce").astype("Int64")
+    for c in ("file", "sha256", "sidecar_sha256", "settings", "status", "error", "top_orders",
+              "alias_lines", "warnings", "spectrum_csv", "cuts_csv"):
+        table[c] = table[c].astype(object).where(table[c].notna(), "").astype(str)
+    return table.reset_index(drop=True)
+
+
+def read_summary(out_dir) -> pd.DataFrame | None:
+    """The summary table in ``out_dir`` (Parquet, else CSV), or None when there is none.
+
+    Raises
+    ------
+    InputError
+        A summary file exists but cannot be read.
+    """
+    out_dir = Path(out_dir)
+    pq = out_dir / f"{SUMMARY_NAME}.parquet"
+    csv = out_dir / f"{SUMMARY_NAME}.csv"
+    try:
+        if pq.is_file():
+            return _frame(pd.read_parquet(pq).to_dict("records"))
+        if csv.is_file():
+            return _frame(pd.read_csv(csv, keep_default_na=False,
+                                      dtype={"sha256": str, "sidecar_sha256": str,
+                                             "settings": str}).to_dict("records"))
+    except Exception as exc:
+        raise InputError(f"{pq if pq.is_file() else csv}: the summary of an earlier batch cannot "
+                         f"be read ({type(exc).__name__}: {exc}); move it away or choose another "
+                         "--out folder") from None
+    return None
+
+
+def _write_summary(table: pd.DataFrame, out_dir: Path) -> tuple[Path, Path]:
+    from workbench.runs import atomic_output
+
+    pq = out_dir / f"{SUMMARY_NAME}.parquet"
+    csv = out_dir / f"{SUMMARY_NAME}.csv"
+    with atomic_output(pq, force=True) as tmp:
+        table.to_parquet(tmp, index=False, engine="pyarrow")
+    with atomic_output(csv, force=True) as tmp:
+        table.to_csv(tmp, index=False)
+    return pq, csv
+
+
+# --------------------------------------------------------------------------------------------
+# the batch
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """What a batch did.
+
+    Attributes
+    ----------
+    summary : pandas.DataFrame
+        The whole summary table as written (earlier rows kept, new rows after them).
+    done : tuple of str
+        Runs tracked now with status ok.
+    skipped : tuple of str
+        Runs skipped because the summary already had them (same content and settings, ok).
+    failed : tuple of (str, str)
+        Runs that failed now, with the message.
+    seconds : float
+        Wall time of the batch, cluster start included.
+    workers : int
+        Workers used (0: serial in this process).
+    scheduler : str or None
+        Address of the scheduler used (None: serial).
+    summary_parquet, summary_csv : Path
+    """
+
+    summary: pd.DataFrame
+    done: tuple
+    skipped: tuple
+    failed: tuple
+    seconds: float
+    workers: int
+    scheduler: str | None
+    summary_parquet: Path
+    summary_csv: Path
+
+    @property
+    def runs_per_minute(self) -> float:
+        """Runs tracked now (ok or failed) per minute of wall time."""
+        n = len(self.done) + len(self.failed)
+        return 60.0 * n / self.seconds if self.seconds > 0 else math.nan
+
+    def to_dict(self) -> dict:
+        """The JSON of ``foldline batch``."""
+        return {
+            "summary_parquet": str(self.summary_parquet),
+            "summary_csv": str(self.summary_csv),
+            "runs": len(self.done) + len(self.skipped) + len(self.failed),
+            "done": list(self.done),
+            "skipped": list(self.skipped),
+            "failed": [{"file": f, "error": e} for f, e in self.failed],
+            "seconds": self.seconds,
+            "runs_per_minute": self.runs_per_minute,
+            "workers": self.workers,
+            "scheduler": self.scheduler,
+        }
+
+
+def _key(row) -> tuple:
+    return (str(row["sha256"]), str(row["sidecar_sha256"]), str(row["settings"]))
+
+
+def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, scheduler=None,
+              progress=None, timeout_s: float = 20.0) -> BatchResult:
+    """Track every run in ``paths`` with the same settings and write the summary.
+
+    Parameters
+    ----------
+    paths : sequence of path-like
+        Run files.  With a cluster they must be readable, under the same path, on every worker.
+    out_dir : path-like
+        Output folder (created when missing); holds the per-run CSV files and the summary.
+    settings : BatchSettings
+    workers : int
+        Worker processes of a local Dask cluster (``LocalCluster(n_workers=workers,
+        threads_per_worker=1, processes=True)``); 0 runs serially in this process, without
+        Dask.  Ignored when ``scheduler`` is given.
+    scheduler : str, optional
+        Address of a running Dask scheduler (e.g. ``"tcp://host:8786"``) to use instead of a
+        local cluster.
+    progress : callable, optional
+        Called as ``progress(finished, total, skipped, failed)`` at the start and after each run.
+    timeout_s : float
+        How long to wait for ``scheduler`` to answer, s.
+
+    Returns
+    -------
+    BatchResult
+    """
+    t0 = time.perf_counter()
+    paths = [Path(p) for p in paths]
+    if not paths:
+        raise InputError("no runs given: name one or more run files")
+    workers = int(workers)
+    if workers < 0:
+        raise InputError(f"--workers {workers}: give 0 (serial, no Dask) or a positive number")
+    out_dir = Path(out_dir)
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError(f"--out {out_dir}: exists and is not a folder")
+    out_dir.mkdir(parents=True, exist_ok=True)
+    earlier = read_summary(out_dir)
+    finished = {}
+    if earlier is not None:
+        for row in earlier.to_dict("records"):
+            if row["status"] == "ok" and row["spectrum_csv"] and (out_dir / row["spectrum_csv"]).is_file():
+                finished[_key(row)] = row
+    fp = settings.fingerprint
+    jobs, skipped, new_rows = [], [], {}
+    seen = set()
+    for i, p in enumerate(paths):
+        key_path = os.path.abspath(p)
+        if key_path in seen:
+            continue
+        seen.add(key_path)
+        try:
+            sha, side = file_sha256(p), _sidecar_sha(p)
+        except OSError as exc:
+            why = exc.strerror or type(exc).__name__
+            new_rows[i] = _frame([{"file": str(p), "settings": fp, "status": "error",
+                                   "error": f"{p}: {why}"}]).iloc[0].to_dict()
+            continue
+        if (sha, side, fp) in finished:
+            skipped.append(str(p))
+            continue
+        jobs.append((i, p, sha, side))
+    total = len(jobs) + len(skipped) + len(new_rows)
+    failed_now = [(r["file"], r["error"]) for r in new_rows.values()]
+    say = progress or (lambda *a: None)
+    count = {"finished": len(skipped) + len(new_rows), "failed": len(failed_now)}
+    say(count["finished"], total, len(skipped), count["failed"])
+    last_write = [time.monotonic()]
+
+    def table_now():
+        rows = []
+        if earlier is not None:
+            redo = {(sha, side, fp) for _, _, sha, side in jobs}
+            redo |= {_key(r) for r in new_rows.values()}
+            rows += [r for r in earlier.to_dict("records") if _key(r) not in redo]
+        rows += [new_rows[i] for i in sorted(new_rows)]
+        return _frame(rows)
+
+    def finished_one(i, row):
+        new_rows[i] = row
+        count["finished"] += 1
+        if row["status"] != "ok":
+            count["failed"] += 1
+        say(count["finished"], total, len(skipped), count["failed"])
+        if time.monotonic() - last_write[0] > _WRITE_EVERY_S:
+            _write_summary(table_now(), out_dir)
+            last_write[0] = time.monotonic()
+
+    address = None
+    if not jobs:
+        pass
+    elif scheduler is None and workers == 0:
+        for i, p, sha, side in jobs:
+            finished_one(i, process_run(p, settings, out_dir, sha256=sha, sidecar_sha256=side))
+    else:
+        address = _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, timeout_s)
+    table = table_now()
+    pq, csv = _write_summary(table, out_dir)
+    done = tuple(r["file"] for i, r in sorted(new_rows.items()) if r["status"] == "ok")
+    failed = tuple((r["file"], r["error"]) for i, r in sorted(new_rows.items()) if r["status"] != "ok")
+    return BatchResult(
+        summary=table, done=done, skipped=tuple(skipped), failed=failed,
+        seconds=time.perf_counter() - t0,
+        workers=0 if (scheduler is None and workers == 0) else workers,
+        scheduler=address, summary_parquet=pq, summary_csv=csv,
+    )
+
+
+def _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, timeout_s):
+    """Submit one task per run (paths only) and collect the rows as they finish."""
+    import logging
+
+    from distributed import Client, LocalCluster, as_completed
+
+    cluster = None
+    if scheduler is not None:
+        try:
+            client = Client(scheduler, timeout=f"{float(timeout_s)}s")
+        except (OSError, TimeoutError) as exc:
+            raise InputError(f"--scheduler {scheduler}: no Dask scheduler answers there ({exc}); "
+                             "start one with 'dask scheduler' and workers with "
+                             "'dask worker ADDRESS'") from None
+    else:
+        if workers < 1:
+            raise InputError(f"--workers {workers}: a local cluster needs at least 1 worker")
+        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
+                               dashboard_address=None, silence_logs=logging.ERROR)
+        client = Client(cluster)
+    try:
+        address = client.scheduler.address
+        futures = {}
+        for i, p, sha, side in jobs:
+            fut = client.submit(process_run, str(p), settings, str(out_dir), sha256=sha,
+                                sidecar_sha256=side, pure=False, key=f"foldline-track-{i}-{sha[:12]}")
+            futures[fut] = (i, p)
+        for fut in as_completed(futures):
+            i, p = futures[fut]
+            try:
+                row = fut.result()
+            except Exception as exc:  # the worker died or the task could not run
+                row = _frame([{"file": str(p), "settings": settings.fingerprint, "status": "error",
+                               "error": f"{type(exc).__name__}: {exc}"}]).iloc[0].to_dict()
+            finished_one(i, row)
+        return address
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
