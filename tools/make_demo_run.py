@@ -25,6 +25,9 @@ SETTINGS = {
     "resonance_gain_db": 12.0,
     "pulses_per_rev": 1,
     "missing_pulses": 0,
+    # An optical tacho's edge takes about a millisecond: a few samples, which the pulse
+    # timing interpolates (a zero rise time would leave only whole-sample timing).
+    "tacho_rise_s": 1e-3,
 }
 
 

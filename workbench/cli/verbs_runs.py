@@ -156,6 +156,137 @@ def cmd_simulate(args) -> int:
     return 0
 
 
+def cmd_track(args) -> int:
+    """Track a recorded run in the angle domain and print (and optionally write) the results."""
+    from workbench.cli.main import emit_json
+    from workbench.report.command import track_options_from_args
+    from workbench.runs.analysis import track_run
+
+    opts = track_options_from_args(args)
+    out = Path(args.out) if args.out else None
+    if out is not None:
+        _check_out_folder(out, force=args.force)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", FoldlineWarning)
+        analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
+                             max_order=args.max_order, **opts)
+    files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
+    result = analysis.to_dict()
+    if files:
+        result["files"] = [str(f) for f in files]
+    for w in caught:
+        _stderr(f"warning: {w.message}")
+    if args.json:
+        emit_json(result)
+        return 0
+    _print_track(analysis, files)
+    return 0
+
+
+TRACK_FILES = (
+    "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
+    "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
+    "rpm_frequency_map.png",
+)
+
+
+def _check_out_folder(out: Path, *, force: bool) -> None:
+    """Refuse before any work when an output of ``foldline track`` would be replaced."""
+    from workbench.errors import OutputExistsError
+
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder")
+    if not force:
+        clash = [name for name in TRACK_FILES if (out / name).exists()]
+        if clash:
+            raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace the outputs in {out}")
+
+
+def write_track_outputs(analysis, out: Path, *, force: bool = False, machine=None) -> list:
+    """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``."""
+    import numpy as np
+    import pandas as pd
+
+    from workbench.machine import read_machine
+    from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_rpm_frequency_map,
+                                 plot_tacho_check, save_figure)
+
+    out.mkdir(parents=True, exist_ok=True)
+    files = []
+
+    def table(frame, name):
+        path = out / name
+        _write_csv(frame, path, force=force)
+        files.append(path)
+
+    def figure(fig, name):
+        path = out / name
+        save_figure(fig, path, force=force)
+        files.append(path)
+
+    a = analysis
+    table(pd.DataFrame({"order": a.spectrum.order, "amplitude": a.spectrum.amplitude}), "order_spectrum.csv")
+    table(a.peaks, "peaks.csv")
+    if a.envelope is not None:
+        table(a.envelope_peaks, "envelope_peaks.csv")
+    if a.cuts:
+        table(pd.concat([pd.DataFrame({"order": c.order, "bandwidth_orders": c.bandwidth_orders, "rpm": c.rpm,
+                                       "amplitude": c.amplitude}) for c in a.cuts], ignore_index=True),
+              "order_cuts.csv")
+    if a.identification is not None:
+        table(a.identification.table, "identification.csv")
+    table(a.doubted, "doubted_pulses.csv")
+    sa = a.shaft_angle
+    t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
+    figure(plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=getattr(sa, "pulse_times_s", None),
+                            doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
+                            title=f"Tacho check: {Path(a.source).name} ({a.speed_source})"), "tacho_check.png")
+    lines = None
+    if a.identification is not None:
+        lines = machine.lines() if machine is not None else None
+        if lines is None:
+            from workbench.runs import read_run
+
+            run = read_run(a.source, rate_hz=a.rate_hz) if Path(a.source).exists() else None
+            if run is not None and run.machine_file:
+                lines = read_machine(run.machine_file).lines()
+    top = a.samples_per_rev / 2.56
+    figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,
+                               title=f"Order spectrum: {Path(a.source).name}, channel {a.channel}"), "order_spectrum.png")
+    figure(plot_order_map(a.order_map, lines=lines, rate_hz=a.rate_hz, identification=a.identification,
+                          max_order=top, unit=a.unit, title=f"Order map: {Path(a.source).name}, predicted lines overlaid"),
+           "order_map.png")
+    if a.cuts:
+        figure(plot_order_cuts(a.cuts, unit=a.unit), "order_cuts.png")
+    if a.rf_map is not None:
+        names = None if a.identification is None else set(a.identification.table["line"])
+        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, names=names),
+               "rpm_frequency_map.png")
+    return files
+
+
+def _print_track(a, files) -> None:
+    print(f"{a.source}: channel {a.channel}, {a.rate_hz:g} S/s, speed from {a.speed_source}: "
+          f"{a.rpm_min:.0f}-{a.rpm_max:.0f} rpm over {a.revolutions:.0f} rev")
+    print(f"angle domain: {a.samples_per_rev} samples/rev, {a.revs_per_block:g} revs/block "
+          f"(order resolution {1 / a.revs_per_block:g}), alias protection {'on' if a.protect else 'OFF'}")
+    if len(a.doubted):
+        print(f"doubted tacho pulses: {len(a.doubted)} (see doubted_pulses.csv)")
+    print("\nstrongest orders (averaged over the run, peak amplitude"
+          f"{', ' + a.unit if a.unit else ''}):")
+    print(a.peaks[["order", "amplitude"]].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+    if a.envelope is not None:
+        print(f"\nenvelope orders ({a.envelope_hz[0]:g}-{a.envelope_hz[1]:g} Hz band):")
+        print(a.envelope_peaks[["order", "amplitude"]].to_string(index=False, float_format=lambda v: f"{v:.4g}"))
+    if a.identification is not None and len(a.identification.aliases):
+        al = a.identification.aliases
+        print(f"\nfolded lines identified in the order map (aliases, not machine orders): {len(al)}")
+        print(al[["line", "zone", "rpm_min", "rpm_max", "amplitude_max"]].to_string(
+            index=False, float_format=lambda v: f"{v:.4g}"))
+    if files:
+        print(f"\noutputs written to {Path(files[0]).parent}")
+
+
 def add_verbs(verb) -> None:
     """Register the run, demo, report and batch verbs on the parser's sub-command factory."""
     p = verb("demo", "run the main job on the bundled demo scenario and write its outputs")
@@ -179,6 +310,18 @@ def add_verbs(verb) -> None:
     p.add_argument("--format", choices=("float32", "int16", "int24", "int32"), default="float32", help="WAV sample format")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_simulate)
+
+    from workbench.report.command import add_track_options
+
+    p = verb("track", "order tracking of a recorded run: speed, order spectrum, peaks, maps, aliases")
+    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
+    add_track_options(p)
+    p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
+    p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
+    p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
+    p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder")
+    p.add_argument("--force", action="store_true", help="replace existing outputs in the folder")
+    p.set_defaults(func=cmd_track)
 
     _add_report_and_batch(verb)
 
