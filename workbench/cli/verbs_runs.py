@@ -64,6 +64,20 @@ def cmd_demo(args) -> int:
         csv_path = out / f"collisions_{rate:g}Hz.csv"
         _write_csv(table, csv_path, force=args.force)
         figures.append(str(csv_path))
+    # The recorded run, tracked in the angle domain with the prediction overlaid.
+    run_path = Path(args.run) if args.run else (base / DEMO_RUN if base is not None else None)
+    analysis = None
+    if run_path is not None:
+        from workbench.runs.analysis import track_run
+
+        spr = advice.resampling.samples_per_rev
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", FoldlineWarning)
+            analysis = track_run(run_path, machine=machine, samples_per_rev=spr,
+                                 revs_per_block=advice.resampling.revs_per_block)
+        track_dir = out / "run"
+        _check_out_folder(track_dir, force=args.force)
+        figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force, machine=machine))
     result = {
         "machine": str(machine_path),
         "plan": str(plan_path),
@@ -72,6 +86,8 @@ def cmd_demo(args) -> int:
         "collisions": {f"{r:g}": _collision_records(t[t["kind"] == "collision"]) for r, t in tables.items()},
         "files": figures,
     }
+    if analysis is not None:
+        result["run"] = {"file": str(run_path), **{k: v for k, v in analysis.to_dict().items() if k != "order_spectrum"}}
     if args.json:
         emit_json(result)
         return 0
@@ -80,6 +96,9 @@ def cmd_demo(args) -> int:
     for rate, table in tables.items():
         print(f"\n=== {rate:g} Hz ===")
         _print_table("collisions (folded lines inside a band)", table[table["kind"] == "collision"])
+    if analysis is not None:
+        print(f"\n=== recorded run {run_path.name} (made at {analysis.rate_hz:g} S/s) ===")
+        _print_track(analysis, [])
     print(f"\noutputs written to {out.resolve()}:")
     for f in figures:
         print(f"  {f}")
@@ -293,6 +312,7 @@ def add_verbs(verb) -> None:
     p.add_argument("--out", default="out/demo", metavar="DIR", help="output folder (default out/demo)")
     p.add_argument("--machine", metavar="MACHINE", help="use this machine file instead of the demo's")
     p.add_argument("--plan", metavar="PLAN", help="use this plan file instead of the demo's")
+    p.add_argument("--run", metavar="RUN", help="track this recorded run instead of the demo's")
     p.add_argument("--force", action="store_true", help="overwrite existing outputs in the folder")
     p.set_defaults(func=cmd_demo)
 
