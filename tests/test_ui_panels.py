@@ -12,6 +12,8 @@ import warnings
 from html.parser import HTMLParser
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
 
 pytest.importorskip("ipywidgets")
@@ -20,7 +22,12 @@ from workbench.errors import FoldlineWarning  # noqa: E402
 from workbench.machine import machine_from_dict, machine_to_dict, read_machine  # noqa: E402
 from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
                                 read_plan)
-from workbench.ui import FoldMapPanel, SourceEditorPanel  # noqa: E402
+from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_map,  # noqa: E402
+                             order_spectrum, order_track, tacho_angle)
+from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
+from workbench.runs import read_run, simulate_run  # noqa: E402
+from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
+from workbench.ui.angle_panel import RIDGES_PER_BLOCK  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
@@ -344,3 +351,125 @@ def test_reset_and_rate_change(editor, machine, plan):
     editor.rate.value = 5120.0
     n = _collision_count(machine, plan, 5120.0)
     assert editor.result["collisions"] == (n, n)
+
+
+# -- AngleDomainPanel ------------------------------------------------------------------------
+RUN = ROOT / "sample_runs" / "agitator_runup.wav"
+
+
+@pytest.fixture(scope="module")
+def run_path(machine, plan, tmp_path_factory):
+    """The bundled demo run, or the same run simulated when the bundle lacks it."""
+    if RUN.exists():
+        return RUN
+    from workbench.runs import simulate_to_wav
+
+    path = tmp_path_factory.mktemp("run") / "agitator_runup.wav"
+    simulate_to_wav(machine, plan, 2560.0, path, seed=7, machine_file=MACHINE)
+    return path
+
+
+@pytest.fixture(scope="module")
+def shared_angle(run_path):
+    return AngleDomainPanel(run_path, plan=PLAN)
+
+
+@pytest.fixture()
+def angle_panel(shared_angle):
+    shared_angle.reset()
+    shared_angle.tabs.selected_index = 1
+    return shared_angle
+
+
+@pytest.fixture(scope="module")
+def direct(run_path, machine):
+    """The same analysis by direct calls of the angle layer (256 samples per rev, 20 revs)."""
+    run = read_run(run_path)
+    pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
+    angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+    sig = order_track(run.channel("vibration"), run.rate_hz, angle, samples_per_rev=256)
+    omap = order_map(sig, revs_per_block=20)
+    ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, max_per_block=RIDGES_PER_BLOCK)
+    ident = match_lines(ridges, machine, run.rate_hz, tolerance_orders=2 * omap.order_resolution, min_points=3)
+    return run, sig, omap, ident
+
+
+def test_angle_panel_tracks_the_run_and_identifies_aliases(angle_panel, direct):
+    run, sig, omap, ident = direct
+    assert (angle_panel.samples_per_rev.value, angle_panel.revs_per_block.value) == (256, 20)  # advisor's
+    assert angle_panel.progress.value == angle_panel.progress.max == run.n_samples
+    assert angle_panel.map_figure.value[:4] == b"\x89PNG"
+    rows = table_rows(angle_panel.aliases.value, "foldline-identified")
+    shown_aliases = {r[0] for r in rows if r[3] == "yes"}
+    assert shown_aliases == set(ident.aliases["line"]) and shown_aliases
+    # Hand check of one alias: stage 1 mesh x2 (order 58) in zone 1 shows at 2560 - 58 f_rot Hz,
+    # i.e. at order 2560 x 60 / rpm - 58; at the lowest speed of the ridge this is its top order.
+    row = next(r for r in rows if r[0] == "stage 1 mesh x2" and r[3] == "yes")
+    assert float(row[8]) == pytest.approx(2560 * 60 / float(row[5]) - 58, abs=0.5)
+    assert f"{sig.revolutions:.0f} revolutions" in angle_panel.header.value
+
+
+def test_window_change_redoes_spectra_not_tracking(angle_panel, direct):
+    run, sig, _, _ = direct
+    png = angle_panel.map_figure.value
+    tracked = angle_panel.track()
+    angle_panel.window.value = "flattop"
+    assert angle_panel.track() is tracked
+    assert angle_panel.map_figure.value != png
+    peaks = find_order_peaks(order_spectrum(sig, revs_per_block=20, window="flattop"), n=10)
+    shown = [float(r[0]) for r in table_rows(angle_panel.peaks.value, "foldline-peaks")]
+    assert shown == pytest.approx(np.round(peaks.order, 3), abs=1e-9)
+
+
+def test_samples_per_rev_change_retracks_with_progress(angle_panel):
+    angle_panel.samples_per_rev.value = 128
+    assert angle_panel.track().samples_per_rev == 128
+    assert angle_panel.progress.value == angle_panel.progress.max
+    assert "128 samples per rev" in angle_panel.header.value
+    angle_panel.protect.value = False
+    assert any("alias protection: off" in line for line in angle_panel.track().log)
+
+
+def test_figures_are_drawn_when_their_tab_opens(angle_panel):
+    angle_panel.cut_orders.value = "1, 58"
+    before = angle_panel.cuts_figure.value
+    angle_panel.tabs.selected_index = 2
+    assert angle_panel.cuts_figure.value != before and angle_panel.cuts_figure.value[:4] == b"\x89PNG"
+    angle_panel.tabs.selected_index = 0
+    assert angle_panel.tacho_figure.value[:4] == b"\x89PNG"
+    assert "pulses, 0 doubted" in angle_panel.tacho_info.value
+
+
+def test_order_cuts_match_direct_cuts(angle_panel, direct):
+    _, _, omap, _ = direct
+    angle_panel.cut_orders.value = "1, 58"
+    cuts = angle_panel.tables()["order_cuts"]
+    assert list(cuts.columns) == ["rpm", "order 1", "order 58"]
+    np.testing.assert_allclose(cuts["order 58"], order_cut(omap, 58.0).amplitude, rtol=1e-12)
+    angle_panel.cut_orders.value = "1, x"
+    assert "orders to cut" in angle_panel.status.value and angle_panel.error is not None
+
+
+def test_export_writes_tables_and_figures(angle_panel, tmp_path):
+    tables = angle_panel.export("tables", tmp_path)
+    assert {p.name for p in tables} == {"speed.csv", "doubted_pulses.csv", "order_spectrum.csv",
+                                        "order_peaks.csv", "order_cuts.csv", "identified_lines.csv"}
+    spectrum = pd.read_csv(tmp_path / "order_spectrum.csv")
+    np.testing.assert_allclose(spectrum["amplitude"], angle_panel.tables()["order_spectrum"]["amplitude"],
+                               rtol=1e-12)
+    angle_panel.folder.value = str(tmp_path / "figs")
+    angle_panel.export_figures.click()
+    assert sorted(p.name for p in (tmp_path / "figs").iterdir()) == [
+        "order_cuts.png", "order_map.png", "order_spectrum.png", "tacho_check.png"]
+    assert angle_panel.export("figures", tmp_path / "figs") == []
+    assert ("tacho_check.png, order_map.png, order_cuts.png, order_spectrum.png exist(s) already; "
+            "nothing written") in angle_panel.status.value
+    angle_panel.overwrite.value = True
+    assert len(angle_panel.export("tables", tmp_path)) == 6
+    angle_panel.overwrite.value = False
+
+
+def test_run_without_tacho_is_reported(machine, plan):
+    run = simulate_run(machine, plan, 2560.0, duration_s=2.0, tacho_channel=False)
+    panel = AngleDomainPanel(run, machine=machine)
+    assert "no tacho channel" in panel.status.value

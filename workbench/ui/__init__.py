@@ -7,9 +7,12 @@ and whose ``widget`` is shown with ``panel.show()`` or by leaving the panel last
   fold map, the collision table and the advisor's verdict.
 - :class:`SourceEditorPanel` -- change tooth counts, bearing geometry or rotor counts and compare
   lines, collisions and the recommended rate before and after.
+- :class:`AngleDomainPanel` -- a recorded run from tacho to order map, order cuts and order
+  spectrum, with the predicted (direct and folded) lines overlaid and aliases identified.
 """
 
+from workbench.ui.angle_panel import AngleDomainPanel
 from workbench.ui.foldmap_panel import FoldMapPanel
 from workbench.ui.source_editor import SourceEditorPanel
 
-__all__ = ["FoldMapPanel", "SourceEditorPanel"]
+__all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel"]

@@ -1,0 +1,466 @@
+"""Angle-domain panel: a recorded run from tacho to order map, with the fold prediction overlaid.
+
+Steps and what each control redoes (the rest is kept):
+
+1. tacho pulses and shaft angle -- once per run (the tacho check figure);
+2. computed order tracking of the chosen channel -- per (channel, samples per rev, alias
+   protection), with a progress bar fed chunk by chunk;
+3. order map, order spectrum, peaks and the identification of measured ridges with the
+   machine's predicted lines (direct and folded) -- per (block length, window);
+4. order cuts -- per list of orders.
+
+Only the figure of the tab on show is drawn, and only when what it shows changed; the others
+are drawn when their tab is opened.
+Tables (CSV) and figures (PNG) are written to a chosen folder by two buttons.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+import warnings
+from pathlib import Path
+
+import ipywidgets as widgets
+import numpy as np
+import pandas as pd
+
+from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_order_peaks, order_cut,
+                             order_map, order_spectrum, tacho_angle)
+from workbench.angle.matching import find_ridges, match_lines
+from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
+from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_tacho_check,
+                             save_figure)
+from workbench.plots.common import figure_bytes
+from workbench.runs import Run, atomic_output, read_run
+from workbench.sampling import angle_settings
+from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
+
+__all__ = ["AngleDomainPanel", "WINDOWS", "RIDGES_PER_BLOCK"]
+
+#: Windows offered for the order spectra: (label, scipy.signal.get_window name).
+WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "hamming"),
+           ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
+#: Ridge points kept per order-map block when identifying lines: enough that folded lines,
+#: weaker than the direct mesh family after the anti-alias filter, are among them.
+RIDGES_PER_BLOCK = 40
+_CHUNK = 65536
+_DPI = 80
+
+
+class AngleDomainPanel:
+    """Interactive angle-domain analysis of one recorded run.
+
+    Parameters
+    ----------
+    run : Run or path
+        The recording (a path is read with :func:`workbench.runs.read_run`; its sidecar names
+        the tacho channel, pulses per rev and the machine file).
+    machine : Machine or path, optional
+        Default: the run's machine file.  Without a machine nothing is predicted.
+    plan : Plan or path, optional
+        Gives the default samples per rev and block length (the advisor's angle settings).
+    channel : str, optional
+        Vibration channel (default: the first channel that is not the tacho).
+
+    Attributes
+    ----------
+    channel : ipywidgets.Dropdown
+    samples_per_rev : ipywidgets.Dropdown
+        Angle-domain samples per revolution (order Nyquist = half of it).
+    revs_per_block : ipywidgets.BoundedIntText
+        Block length in revolutions (order resolution = 1 / block length).
+    window : ipywidgets.Dropdown
+    protect : ipywidgets.Checkbox
+        Alias protection of the tracker (speed-tracking low-pass).
+    cut_orders : ipywidgets.Text
+        Orders to cut against speed, comma separated.
+    folder : ipywidgets.Text
+        Folder the export buttons write to (created if missing).
+    overwrite : ipywidgets.Checkbox
+        Let the export replace files of the same name.
+    export_tables, export_figures : ipywidgets.Button
+    progress : ipywidgets.IntProgress
+        Samples tracked so far.
+    tabs : ipywidgets.Tab
+        Tacho check, order map, order cuts, order spectrum.
+    tacho_figure, map_figure, cuts_figure, spectrum_figure : ipywidgets.Image
+    tacho_info : ipywidgets.HTML
+    aliases : ipywidgets.HTML
+        Predicted lines found in the order map (class ``foldline-identified``), aliases first.
+    peaks : ipywidgets.HTML
+        Strongest peaks of the order spectrum (class ``foldline-peaks``).
+    status : ipywidgets.HTML
+        Errors, warnings and what the last export wrote.
+    widget : ipywidgets.VBox
+    """
+
+    FIGURES = ("tacho", "map", "cuts", "spectrum")
+
+    def __init__(self, run, *, machine=None, plan=None, channel=None):
+        self.run = run if isinstance(run, Run) else read_run(run)
+        if machine is None and self.run.machine_file:
+            machine = self.run.machine_file
+        self.machine = None if machine is None else as_machine(machine)
+        self.plan = None if plan is None else as_plan(plan)
+        self.lines = () if self.machine is None else self.machine.lines()
+        spr, rpb = 256, 32
+        if self.machine is not None and self.plan is not None:
+            with collect_warnings():
+                s = angle_settings(self.lines, self.plan)
+            spr, rpb = s.samples_per_rev, s.revs_per_block
+        self._tracks = Cache(4)
+        self._analyses = Cache(8)
+        self._cuts = Cache(8)
+        self._drawn = {}
+        self._build(channel, spr, rpb)
+        self._controls = (self.channel, self.samples_per_rev, self.protect, self.revs_per_block,
+                          self.window, self.cut_orders)
+        self._defaults = {c: c.value for c in self._controls}
+        self._quiet = False
+        self.refresh()
+        for control in self._controls:
+            control.observe(self._on_change, names="value")
+        self.tabs.observe(lambda change: self._draw_shown(), names="selected_index")
+        self.export_tables.on_click(lambda _b: self.export("tables"))
+        self.export_figures.on_click(lambda _b: self.export("figures"))
+
+    # -- controls -------------------------------------------------------------------------
+    def _build(self, channel, spr, rpb):
+        run = self.run
+        style, wide = {"description_width": "150px"}, widgets.Layout(width="330px")
+        names = [n for n in run.channel_names if n != run.tacho] or list(run.channel_names)
+        self.channel = widgets.Dropdown(options=names, value=channel or names[0], description="vibration channel",
+                                        style=style, layout=wide)
+        sizes = sorted({2 ** k for k in range(4, 13)} | {int(spr)})
+        self.samples_per_rev = widgets.Dropdown(options=sizes, value=int(spr), description="samples per rev",
+                                                style=style, layout=wide)
+        self.revs_per_block = widgets.BoundedIntText(value=int(rpb), min=1, max=4096,
+                                                     description="block length (revs)", style=style, layout=wide)
+        self.window = widgets.Dropdown(options=WINDOWS, value="hann", description="window", style=style,
+                                       layout=wide)
+        self.protect = widgets.Checkbox(value=True, description="alias protection (tracking low-pass)",
+                                        indent=False, layout=wide)
+        self.cut_orders = widgets.Text(value=", ".join(f"{o:.4g}" for o in self.default_cut_orders(spr)),
+                                       description="orders to cut", style=style, layout=wide,
+                                       continuous_update=False)
+        self.folder = widgets.Text(value="foldline_export", description="export folder", style=style,
+                                   layout=wide)
+        self.overwrite = widgets.Checkbox(value=False, description="overwrite files", indent=False)
+        self.export_tables = widgets.Button(description="export tables (CSV)", icon="table")
+        self.export_figures = widgets.Button(description="export figures (PNG)", icon="image")
+        self.progress = widgets.IntProgress(value=0, min=0, max=max(1, run.n_samples), description="tracking",
+                                            style=style, layout=wide)
+        self.status = widgets.HTML()
+        self.status.add_class("foldline-status-box")
+        self.tacho_info = widgets.HTML()
+        self.aliases = widgets.HTML()
+        self.peaks = widgets.HTML()
+        image = dict(format="png", layout=widgets.Layout(max_width="100%"))
+        self.tacho_figure = widgets.Image(**image)
+        self.map_figure = widgets.Image(**image)
+        self.cuts_figure = widgets.Image(**image)
+        self.spectrum_figure = widgets.Image(**image)
+        for w in (self.tacho_figure, self.map_figure, self.cuts_figure, self.spectrum_figure):
+            w.add_class("foldline-figure")
+        self.tabs = widgets.Tab(children=[
+            widgets.VBox([self.tacho_figure, self.tacho_info]),
+            self.map_figure, self.cuts_figure,
+            widgets.VBox([self.spectrum_figure, self.peaks])])
+        for i, title in enumerate(("tacho check", "order map", "order cuts", "order spectrum")):
+            self.tabs.set_title(i, title)
+        self.tabs.selected_index = 1
+        controls = widgets.VBox([
+            self.channel, self.samples_per_rev, self.revs_per_block, self.window, self.protect,
+            self.cut_orders, self.progress, widgets.HTML("<hr>"), self.folder, self.overwrite,
+            widgets.HBox([self.export_tables, self.export_figures]), self.status,
+        ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
+        self.header = widgets.HTML()
+        self.widget = widgets.VBox([self.header, widgets.HBox([controls, self.tabs]), self.aliases])
+        self.widget.add_class("foldline-angle-panel")
+
+    def _on_change(self, change):
+        if not self._quiet:
+            self.refresh()
+
+    def reset(self):
+        """Put the analysis controls back to the values they opened with, then redo once."""
+        self._quiet = True
+        try:
+            for control, value in self._defaults.items():
+                control.value = value
+        finally:
+            self._quiet = False
+        self.refresh()
+
+    def default_cut_orders(self, samples_per_rev=256) -> tuple:
+        """Order 1 and the mesh orders (first harmonic) of the machine, up to three, that lie
+        below the usable order ``samples_per_rev / 2.56``."""
+        top = samples_per_rev / 2.56
+        orders = [1.0] + [ln.order for ln in self.lines if ln.kind == "mesh" and ln.harmonic == 1
+                          and ln.order is not None and ln.order <= top]
+        return tuple(sorted(list(dict.fromkeys(orders))[:3]))
+
+    def _orders(self) -> tuple:
+        text = self.cut_orders.value
+        try:
+            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
+        except ValueError:
+            values = ()
+        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
+            raise InputError(f"orders to cut {text!r}: give positive orders separated by commas, "
+                             "e.g. 1, 29, 58")
+        return values
+
+    # -- computation ----------------------------------------------------------------------
+    def tacho(self):
+        """Pulse times (s) and the shaft angle fitted through them (computed once)."""
+        if not hasattr(self, "_tacho"):
+            run = self.run
+            if run.tacho is None:
+                raise InputError(f"{run.source or 'run'}: no tacho channel; name one in the run's sidecar "
+                                 "(tacho_channel)")
+            pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
+            angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+            self._tacho = (pulses, angle)
+        return self._tacho
+
+    def _track_key(self):
+        return (self.channel.value, int(self.samples_per_rev.value), bool(self.protect.value))
+
+    def _analysis_key(self):
+        return self._track_key() + (int(self.revs_per_block.value), self.window.value)
+
+    def track(self) -> AngleSignal:
+        """The chosen channel tracked at the chosen samples per rev (cached)."""
+        key = self._track_key()
+        if key in self._tracks:
+            return self._tracks.get(key, None)
+        _, angle = self.tacho()
+        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=key[1], protect=key[2])
+        self.progress.bar_style = ""
+        self.progress.value = 0
+        pieces, done = [], 0
+        for chunk in self.run.iter_chunks(key[0], _CHUNK):
+            pieces.extend(tracker.feed(chunk))
+            done += len(chunk)
+            self.progress.value = done
+        pieces.extend(tracker.finish())
+        self.progress.bar_style = "success"
+        sig = AngleSignal.concatenate(pieces, tracker.log)
+        self._tracks.put(key, sig)
+        return sig
+
+    def analysis(self):
+        """Order map, order spectrum, its peaks and the identification of predicted lines."""
+        sig = self.track()
+        key = self._analysis_key()
+
+        def make():
+            rpb, win = key[3], key[4]
+            omap = order_map(sig, revs_per_block=rpb, window=win)
+            spec = order_spectrum(sig, revs_per_block=rpb, window=win)
+            peaks = find_order_peaks(spec, n=10)
+            ident = None
+            if self.lines:
+                ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, max_per_block=RIDGES_PER_BLOCK)
+                ident = match_lines(ridges, self.lines, self.run.rate_hz,
+                                    tolerance_orders=2.0 * omap.order_resolution, min_points=3)
+            return omap, spec, peaks, ident
+
+        return self._analyses.get(key, make)
+
+    def cuts(self):
+        """Order cuts of the chosen orders from the current order map."""
+        omap = self.analysis()[0]
+        orders = self._orders()
+        return self._cuts.get(self._analysis_key() + (orders,), lambda: [order_cut(omap, o) for o in orders])
+
+    @property
+    def usable_max_order(self) -> float:
+        """Highest order shown: samples per rev / 2.56 (the analyser convention)."""
+        return int(self.samples_per_rev.value) / 2.56
+
+    def refresh(self):
+        """Redo what the controls changed; redraw the figure on show."""
+        notes = []
+        try:
+            with collect_warnings() as caught:
+                pulses, angle = self.tacho()
+                sig = self.track()
+                omap, spec, peaks, ident = self.analysis()
+                self.cuts()
+            notes = caught.messages
+        except FoldlineError as exc:
+            self.status.value = STYLE + error_html(exc)
+            self.error = exc
+            return
+        self.error = None
+        self._draw_shown()
+        unit = self._unit()
+        self.header.value = STYLE + (
+            f"<b>{html.escape(str(self.run.source or 'run'))}</b>: {self.run.n_channels} channels at "
+            f"{self.run.rate_hz:g} Hz, {self.run.duration_s:.1f} s; {sig.revolutions:.0f} revolutions "
+            f"tracked at {sig.samples_per_rev} samples per rev, order resolution "
+            f"{omap.order_resolution:g}" + (f", channel unit {html.escape(unit)}" if unit else ""))
+        self.tacho_info.value = STYLE + (
+            f'<div class="foldline-note">{len(pulses)} pulses, {len(angle.doubted)} doubted; speed '
+            f"{angle.rpm_min:.0f} to {angle.rpm_max:.0f} rpm</div>" + html_table(
+                angle.doubted.to_frame().head(20).to_dict("records"),
+                (("time_s", "time (s)"), ("reason", "why doubted")), css_class="foldline-doubted",
+                formats={"time_s": ".4f"}, empty="No doubted pulse."))
+        prows = [{"order": o, "amplitude": a, "prominence_db": p}
+                 for o, a, p in zip(peaks.order, peaks.amplitude, peaks.prominence_db)]
+        self.peaks.value = STYLE + "<b>Strongest peaks</b>" + html_table(
+            prows, (("order", "order"), ("amplitude", f"amplitude, peak ({unit or 'channel unit'})"),
+                    ("prominence_db", "prominence (dB)")),
+            css_class="foldline-peaks", formats={"order": ".3f", "amplitude": ".4g", "prominence_db": ".1f"})
+        self.aliases.value = STYLE + self._identified_html(ident)
+        self.status.value = STYLE + "".join(f'<div class="foldline-note">{html.escape(m)}</div>' for m in notes)
+
+    def _unit(self) -> str:
+        for ch in self.run.channels:
+            if ch.name == self.channel.value:
+                return ch.unit
+        return ""
+
+    def _identified_html(self, ident):
+        if ident is None:
+            return '<div class="foldline-note">No machine: nothing predicted to identify.</div>'
+        table = ident.table
+        n_alias = int(table["alias"].sum()) if len(table) else 0
+        head = (f"<b>Lines identified in the order map</b>: {len(table)} predicted lines found, "
+                f"{n_alias} of them aliases (folded by the time sampling at {self.run.rate_hz:g} Hz); "
+                f"{len(ident.unexplained)} ridge points unexplained")
+        return head + html_table(
+            table.to_dict("records"),
+            (("line", "line"), ("kind", "kind"), ("zone", "zone"), ("alias", "alias"), ("points", "points"),
+             ("rpm_min", "from (rpm)"), ("rpm_max", "to (rpm)"), ("order_min", "order from"),
+             ("order_max", "order to"), ("amplitude_max", "max amplitude")),
+            css_class="foldline-identified", changed=list(table["alias"]) if len(table) else None,
+            formats={"zone": "d", "points": "d", "rpm_min": ".0f", "rpm_max": ".0f", "order_min": ".2f",
+                     "order_max": ".2f", "amplitude_max": ".3g"},
+            empty="No predicted line matched the order map's ridges.")
+
+    # -- figures --------------------------------------------------------------------------
+    def figure(self, which: str):
+        """A new matplotlib Figure of ``which`` ("tacho", "map", "cuts" or "spectrum")."""
+        unit = self._unit()
+        if which == "tacho":
+            pulses, angle = self.tacho()
+            t = np.linspace(angle.t_start_s, angle.t_end_s, 1500)
+            return plot_tacho_check(t, angle.rpm_at(t), pulse_times_s=pulses,
+                                    doubted_times_s=angle.doubted.time_s, doubted_reasons=angle.doubted.reason,
+                                    title=f"Tacho check: {len(pulses)} pulses, {self.run.pulses_per_rev} per rev")
+        omap, spec, peaks, ident = self.analysis()
+        top = self.usable_max_order
+        if which == "map":
+            return plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
+                                  max_order=top, unit=unit,
+                                  title=f"Order map, predicted lines at {self.run.rate_hz:g} Hz overlaid "
+                                        "(dashed: folded)")
+        if which == "cuts":
+            return plot_order_cuts(self.cuts(), unit=unit)
+        if which == "spectrum":
+            table = pd.DataFrame({"order": peaks.order, "amplitude": peaks.amplitude})
+            return plot_order_spectrum(spec, peaks=table, lines=self.lines or None, unit=unit, max_order=top)
+        raise InputError(f"figure {which!r}: choose one of {', '.join(self.FIGURES)}")
+
+    def _figure_key(self, which):
+        """What a figure depends on: it is redrawn only when this changes."""
+        if which == "tacho":
+            return ()
+        if which == "cuts":
+            return self._analysis_key() + (self.cut_orders.value,)
+        return self._analysis_key()
+
+    def _draw(self, which):
+        fig = self.figure(which)
+        getattr(self, f"{which}_figure").value = figure_bytes(fig, dpi=_DPI)
+        self._drawn[which] = self._figure_key(which)
+
+    def _draw_shown(self):
+        which = self.FIGURES[self.tabs.selected_index or 0]
+        if self._drawn.get(which) != self._figure_key(which):
+            try:
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore", FoldlineWarning)
+                    self._draw(which)
+            except FoldlineError as exc:
+                self.status.value = STYLE + error_html(exc)
+
+    # -- export ---------------------------------------------------------------------------
+    def tables(self) -> dict:
+        """The panel's results as tables: name -> pandas.DataFrame."""
+        pulses, angle = self.tacho()
+        omap, spec, peaks, ident = self.analysis()
+        cuts = self.cuts()
+        out = {
+            "speed": pd.DataFrame({"time_s": pulses, "rpm": angle.rpm_at(pulses)}),
+            "doubted_pulses": angle.doubted.to_frame(),
+            "order_spectrum": pd.DataFrame({"order": spec.order, "amplitude": spec.amplitude}),
+            "order_peaks": pd.DataFrame({"order": peaks.order, "amplitude": peaks.amplitude,
+                                         "prominence_db": peaks.prominence_db}),
+            "order_cuts": pd.DataFrame({"rpm": omap.rpm, **{f"order {c.order:g}": c.amplitude for c in cuts}}),
+        }
+        if ident is not None:
+            out["identified_lines"] = ident.table
+        return out
+
+    _FIGURE_FILES = {"tacho": "tacho_check.png", "map": "order_map.png", "cuts": "order_cuts.png",
+                     "spectrum": "order_spectrum.png"}
+
+    def export(self, what="tables", folder=None) -> list:
+        """Write the tables (CSV) or the figures (PNG) to ``folder`` (default: the folder box).
+
+        Returns the paths written.  Unless ``overwrite`` is ticked, nothing is written when any
+        of the files exists already (the status says which).
+        """
+        folder = Path(self.folder.value if folder is None else folder).expanduser()
+        force = bool(self.overwrite.value)
+        written = []
+        try:
+            if what == "tables":
+                items = [(folder / f"{name}.csv", table) for name, table in self.tables().items()]
+            elif what == "figures":
+                items = [(folder / self._FIGURE_FILES[w], w) for w in self.FIGURES]
+            else:
+                raise InputError(f"export {what!r}: choose 'tables' or 'figures'")
+            existing = [p.name for p, _ in items if p.exists()]
+            if existing and not force:
+                raise OutputExistsError(f"{folder}: {', '.join(existing)} exist(s) already; nothing "
+                                        "written. Tick 'overwrite files' or choose another folder")
+            folder.mkdir(parents=True, exist_ok=True)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", FoldlineWarning)
+                for path, item in items:
+                    if what == "tables":
+                        with atomic_output(path, force=force) as tmp:
+                            item.to_csv(tmp, index=False)
+                        written.append(path)
+                    else:
+                        written.append(save_figure(self.figure(item), path, force=force))
+        except (FoldlineError, OSError) as exc:
+            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.error = exc
+            return written
+        self.error = None
+        self.status.value = STYLE + self._written_html(written)
+        return written
+
+    @staticmethod
+    def _written_html(paths) -> str:
+        if not paths:
+            return ""
+        items = "".join(f"<li>{html.escape(str(p))}</li>" for p in paths)
+        return f'<div class="foldline-note">written:<ul class="foldline-written">{items}</ul></div>'
+
+    # -- display --------------------------------------------------------------------------
+    def show(self):
+        """Display the panel in the notebook."""
+        from IPython.display import display
+
+        display(self.widget)
+
+    def _ipython_display_(self):
+        self.show()
