@@ -5,43 +5,48 @@ Design (alias-protected, streaming, one core)
 Resampling a time signal at ``samples_per_rev`` points per revolution is a rate change that
 follows the speed.  Where ``samples_per_rev x speed`` is below the sample rate it decimates,
 so anything above the *order Nyquist* (``samples_per_rev / 2`` orders) would fold into the
-order spectrum.  The tracker works block by block (overlap-save, about 65,536 samples each):
+order spectrum.  The tracker works block by block (overlap-save, about 131,072 samples each):
 
 1. **Speed-tracking low-pass in time** (alias protection).  For each block the speed range
-   ``[f_lo, f_hi]`` over the block is read from the :class:`ShaftAngle`.  A linear-phase
-   Kaiser-window FIR low-pass (100 dB stopband, 1e-5 passband ripple; Kaiser 1974) is designed
-   with its stopband starting at the order Nyquist at the block's *lowest* speed,
-   ``samples_per_rev / 2 x f_lo``, and its passband reaching ``max_order x f_hi``; it is applied
-   by FFT (overlap-save).  Nothing above the order Nyquist survives at any instant of the block,
-   and every order up to ``max_order`` passes with 1e-5 ripple.  Blocks are shortened where the
-   speed changes too fast for both to hold; if even a short block cannot, the passband is
-   narrowed (a warning says where and to which order).
+   ``[f_lo, f_hi]`` over the block (plus a quarter filter length each side) is read from the
+   :class:`ShaftAngle`.  A linear-phase Kaiser-window FIR low-pass (100 dB stopband, 1e-5
+   passband ripple; Kaiser 1974) is designed with its stopband starting at the order Nyquist
+   at the block's *lowest* speed, ``samples_per_rev / 2 x f_lo``, and its passband reaching
+   ``max_order x f_hi``; it is applied by FFT.  Nothing above the order Nyquist survives at any
+   instant of the block, and every order up to ``max_order`` passes with 1e-5 ripple.  Blocks
+   are shortened where the speed changes too fast for both to hold; if even a short block
+   cannot, the passband is narrowed (a warning says where and to which order).  Where the
+   order Nyquist exceeds the time Nyquist no protection is needed; a fixed low-pass from
+   0.45 x rate to 0.5 x rate then only keeps the block band-limited.
 2. **Band-limited interpolation at the angle instants.**  In the same FFT the spectrum is
-   resized so the filtered block sits on a grid at least 8 x finer than its highest remaining
-   frequency (decimating or upsampling by a power of two) and divided by the quintic B-spline's
-   sampled spectrum; the quintic cardinal spline through that grid is then evaluated at the
-   angle instants (``scipy.ndimage.map_coordinates``, compiled).  On a grid 8 x oversampled the
-   cardinal quintic reproduces a tone within -97 dB (image and pass-band error together;
-   Unser 1999), no folding happens because the content lies below the angle grid's Nyquist.
+   resized (zero-padded or truncated: exact resampling of the band-limited block) so the
+   block sits on a grid at least 6.7 x finer than its highest remaining frequency, and divided
+   by the quintic B-spline's sampled spectrum; the quintic cardinal spline through that grid
+   is then evaluated at the angle instants (``scipy.ndimage.map_coordinates``, compiled).
+   Measured: a tone in the passband is reproduced within -95 dB (images and pass-band error
+   together; Unser 1999); no folding happens because the content lies below the angle grid's
+   Nyquist.
 3. **Angle instants.**  Times of the angle grid come from the shaft-angle fit: exact inverse
-   every 1/16 rev, cubic Hermite in between (see :meth:`ShaftAngle._grid_times`).
+   every 1/8 rev, cubic Hermite in between (see :meth:`ShaftAngle._grid_times`).
 
 Compared with the textbook scheme (oversample the angle grid by L, filter in the order domain,
 decimate by L), this evaluates the interpolator once per *output* sample instead of L times,
-and does all sharp filtering in the FFT, which is what makes 300 x real time on one core
+and does all sharp filtering in the FFT, which is what makes about 300 x real time on one core
 possible (``bench/bench_tracking.py``).  Its limit is the speed change within one filter
-length: the FIR spans about 0.3 revolutions, so the full passband is kept while the speed
-changes by less than about 5 % per 0.3 revolutions, i.e. ``d f / d t < 0.2 f^2`` (f in rev/s),
-beyond which the passband narrows with a warning.
+length (about ``80 / samples_per_rev`` revolutions): the full passband is kept while the
+acceleration stays below about ``0.05 f^2`` at 64 samples/rev and ``0.3 f^2`` at 256 (f in
+rev/s, acceleration in rev/s^2; e.g. 1800 rpm/s at 600 rpm and 256 samples/rev), measured on
+the block planner.  Beyond it the passband narrows with a warning; the protection holds.
 
 Usable order range: the passband ends at ``max_order`` (default 0.8 x order Nyquist,
 ``samples_per_rev / 2.5``; the analyser convention ``samples_per_rev / 2.56`` lies inside it);
 between ``max_order`` and the order Nyquist lies the filter's transition band, where levels are
-attenuated partly.
+attenuated partly.  Samples within about ``80 / samples_per_rev`` revolutions of the record's
+ends see the filter's start-up (the record is taken as zero outside it).
 
-``protect=False`` skips step 1: the record is interpolated (band-limited, same step 2) straight
-onto the target grid, so content above the order Nyquist folds, exactly as a plain resampler
-would let it.
+``protect=False`` skips the speed-tracking low-pass: the record is interpolated (band-limited,
+as in step 2) straight onto the target grid, so content above the order Nyquist folds, exactly
+as a plain resampler would let it.
 
 References
 ----------
@@ -85,11 +90,11 @@ DEFAULT_MAX_ORDER_FRACTION = 0.8
 
 _Q = 64                  # filter-edge grid: steps per octave (designs are cached on it)
 _SLACK = 0.02            # edges designed 2 % beyond need, so one design serves several blocks
-_CONTENT_FRACTION = 0.125  # highest content / interpolation-grid rate (8 x oversampled)
+_CONTENT_FRACTION = 0.15   # highest content / interpolation-grid rate (6.7 x oversampled)
 _SPLINE_GUARD = 28       # interpolation-grid samples kept clear of each block edge
 _RAW_PASS = 0.45         # passband edge (fraction of the rate) of the time-Nyquist low-pass
 _N_MAX = (1 << 20) + 1   # longest low-pass (taps)
-_NFFT0 = 1 << 16         # default FFT block
+_NFFT0 = 1 << 17         # default FFT block
 
 
 @dataclass(frozen=True, eq=False)
@@ -204,6 +209,11 @@ class _Plan:
     def s0(self) -> int:
         return self.a - self.margin - (self.design.n_taps - 1) // 2
 
+    @property
+    def support(self) -> int:
+        """Input samples the block's outputs depend on, from s0."""
+        return self.valid + self.design.n_taps - 1 + 2 * self.margin
+
 
 def _grid_floor(v: float) -> int:
     return math.floor(_Q * math.log2(v))
@@ -238,8 +248,9 @@ class OrderTracker:
     The output grid is anchored to the shaft angle: sample ``k`` sits at ``k /
     samples_per_rev`` revolutions, from the first such angle inside the record and the angle's
     span.  Pieces do not depend on how the input is cut into chunks.  Samples within about
-    0.3 revolutions of the record's ends see the filter's start-up (the record is taken as zero
-    outside).
+    ``80 / samples_per_rev`` revolutions of the record's ends see the filter's start-up (the
+    record is taken as zero outside).  Work is done in single precision inside the FFT
+    (rounding about -140 dB); the output is float64.
 
     Examples
     --------
@@ -405,8 +416,10 @@ class OrderTracker:
         return hit
 
     # ---- buffering -------------------------------------------------------------------------
-    def _gather(self, s0: int, n: int) -> np.ndarray:
-        out = np.zeros(n, dtype=np.float32)
+    def _gather(self, s0: int, n: int, nfft: int) -> np.ndarray:
+        """Samples [s0, s0 + n) in an FFT buffer of nfft, zero elsewhere (and outside the
+        record), whatever chunks they arrived in."""
+        out = np.zeros(nfft, dtype=np.float32)
         for start, arr in self._bufs:
             lo = max(s0, start)
             hi = min(s0 + n, start + len(arr))
@@ -437,8 +450,7 @@ class OrderTracker:
                 self._plan = self._make_plan(self._a)
             plan = self._plan
             s0 = plan.s0
-            support = plan.valid + plan.design.n_taps - 1 + 2 * plan.margin
-            if not self._finished and self._n_in < s0 + support:
+            if not self._finished and self._n_in < s0 + plan.support:
                 return
             tb = (plan.a + plan.valid) / R
             if tb >= self.angle.t_end_s:
@@ -467,7 +479,7 @@ class OrderTracker:
     def _block(self, plan: _Plan, k0: int, k1: int) -> AngleSignal:
         R = self.rate_hz
         t, rpm = self.angle._grid_times(k0, k1, self.samples_per_rev)
-        x = self._gather(plan.s0, plan.nfft)
+        x = self._gather(plan.s0, plan.support, plan.nfft)
         gain, nb = self._gain(plan)
         X = sfft.rfft(x)[:nb]
         X *= gain
