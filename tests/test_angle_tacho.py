@@ -8,7 +8,6 @@ as a real tacho is after its front end.
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 import pytest

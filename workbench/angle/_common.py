@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Iterable, Iterator
 from numbers import Integral, Real
 
 import numpy as np
@@ -75,8 +75,3 @@ def iter_chunks(x, name: str = "x", chunk: int = CHUNK_SAMPLES) -> Iterator[np.n
                          "an iterable of 1-D arrays, or a callable returning one")
     for i, c in enumerate(x):
         yield one_d(c, f"{name} chunk {i}")
-
-
-def as_chunk_source(x, name: str) -> Callable[[], Iterator[np.ndarray]]:
-    """Wrap ``x`` so the chunk stream can be opened by calling the result."""
-    return lambda: iter_chunks(x, name)

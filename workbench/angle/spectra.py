@@ -25,7 +25,7 @@ import math
 import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass
-from numbers import Integral, Real
+from numbers import Integral
 
 import numpy as np
 import scipy.fft as sfft

@@ -14,7 +14,6 @@ Conventions: times in seconds from the first sample of the record (sample ``n`` 
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -24,7 +23,7 @@ from scipy.interpolate import CubicSpline
 
 from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
                                      positive_int, positive_rate)
-from workbench.errors import FoldlineWarning, InputError, TachoError
+from workbench.errors import InputError, TachoError
 
 __all__ = [
     "PulseDetector",
@@ -197,9 +196,9 @@ class PulseDetector:
         starts = np.concatenate(([0], d))
         mx = np.maximum.reduceat(ye, starts)
         mn = np.minimum.reduceat(ye, starts)
-        if np.isnan(mx).any():
-            raise InputError(f"tacho chunk starting at sample {self._n_seen} holds NaN values; "
-                             "allowed: finite numbers")
+        if not (np.isfinite(mx).all() and np.isfinite(mn).all()):
+            raise InputError(f"tacho chunk starting at sample {self._n_seen} holds NaN or "
+                             "infinite values; allowed: finite numbers")
         gmax, gmin = float(mx.max()), float(mn.min())
         if s > 0:
             self._min, self._max = min(self._min, gmin), max(self._max, gmax)
