@@ -523,8 +523,6 @@ class OrderTracker:
         self._finished = True
         if self._n_in == 0:
             raise InputError("the record is empty; nothing to track")
-        if self._plan is not None and self._plan.a >= self._n_in and self._n_out == 0:
-            pass
         out = list(self._drain())
         self._bufs = []
         return out
