@@ -146,6 +146,7 @@ def cmd_simulate(args) -> int:
             pulses_per_rev=args.pulses_per_rev,
             missing_pulses=args.missing_pulses,
             machine_file=machine_file,
+            tacho_rise_s=(4.0 / rate) if args.tacho_rise_ms is None else args.tacho_rise_ms / 1000.0,
             sample_format=args.format,
             force=args.force,
         )
@@ -327,6 +328,8 @@ def add_verbs(verb) -> None:
     p.add_argument("--resonance-hz", type=float, metavar="HZ", help="structural resonance, Hz (default 0.3 x rate)")
     p.add_argument("--pulses-per-rev", type=int, default=1, metavar="N", help="tacho tooth positions per rev")
     p.add_argument("--missing-pulses", type=int, default=0, metavar="M", help="missing teeth of the tacho wheel")
+    p.add_argument("--tacho-rise-ms", type=float, metavar="MS",
+                   help="rise time of each tacho edge, ms (default 4 samples; 0 gives ideal steps)")
     p.add_argument("--format", choices=("float32", "int16", "int24", "int32"), default="float32", help="WAV sample format")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_simulate)
