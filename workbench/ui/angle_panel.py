@@ -62,6 +62,8 @@ class AngleDomainPanel:
         Gives the default samples per rev and block length (the advisor's angle settings).
     channel : str, optional
         Vibration channel (default: the first channel that is not the tacho).
+    export_folder : path, optional
+        Folder the export buttons write to at first (default ``foldline_export``).
 
     Attributes
     ----------
@@ -97,7 +99,7 @@ class AngleDomainPanel:
 
     FIGURES = ("tacho", "map", "cuts", "spectrum")
 
-    def __init__(self, run, *, machine=None, plan=None, channel=None):
+    def __init__(self, run, *, machine=None, plan=None, channel=None, export_folder="foldline_export"):
         self.run = run if isinstance(run, Run) else read_run(run)
         if machine is None and self.run.machine_file:
             machine = self.run.machine_file
@@ -114,6 +116,7 @@ class AngleDomainPanel:
         self._cuts = Cache(8)
         self._drawn = {}
         self._build(channel, spr, rpb)
+        self.folder.value = str(export_folder)
         self._controls = (self.channel, self.samples_per_rev, self.protect, self.revs_per_block,
                           self.window, self.cut_orders)
         self._defaults = {c: c.value for c in self._controls}

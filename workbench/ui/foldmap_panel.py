@@ -197,6 +197,7 @@ class FoldMapPanel:
         rate_hz = float(rate_hz)
         self.rate_choice = widgets.Dropdown(options=options, value=rate_hz if rate_hz in plan.rates_hz else None,
                                             description="plan's rates", style=style, layout=wide)
+        self.rate_choice.add_class("foldline-rate-choice")
         self.rate_hz = widgets.FloatText(value=rate_hz, description="rate in use (Hz)", style=style,
                                          layout=wide)
         filt = plan.filter
@@ -213,12 +214,14 @@ class FoldMapPanel:
                                                     description="speed (rpm)", readout_format=".0f",
                                                     continuous_update=False, style=style, layout=wide)
         thr = float(plan.threshold_db)
+        self.speed_range.add_class("foldline-speed-range")
         self.threshold_db = widgets.FloatSlider(value=thr, min=min(-160.0, thr), max=max(20.0, thr), step=1.0,
                                                 description="threshold (dB)", readout_format=".0f",
                                                 continuous_update=False, style=style, layout=wide)
         entries = list(dict.fromkeys(ln.entry for ln in self.lines))
         by_entry = {e: sum(1 for ln in self.lines if ln.entry == e) for e in entries}
         table_of = {name: getattr(item, "table", "") for name, item in self.machine.entries.items()}
+        self.threshold_db.add_class("foldline-threshold")
         self.sources = widgets.SelectMultiple(
             options=[(f"{e}  ({_ENTRY_KINDS.get(table_of.get(e), 'entry')}, {by_entry[e]} line{'s' if by_entry[e] != 1 else ''})", e)
                      for e in entries],
