@@ -48,11 +48,19 @@ def save_figure(fig, path, *, force=False, dpi=110) -> Path:
     ------
     OutputExistsError
         When ``path`` exists and ``force`` is False.
+    InputError
+        When the extension names no format matplotlib can write.
     """
     from workbench.runs import atomic_output
 
+    from workbench.errors import InputError
+
     path = Path(path)
     fmt = path.suffix.lstrip(".").lower() or "png"
+    allowed = sorted(fig.canvas.get_supported_filetypes())
+    if fmt not in allowed:
+        raise InputError(f"{path}: a figure cannot be saved as '.{fmt}'; allowed extensions: "
+                         + ", ".join(f".{k}" for k in allowed))
     data = figure_bytes(fig, fmt=fmt, dpi=dpi)
     with atomic_output(path, force=force) as tmp:
         Path(tmp).write_bytes(data)
