@@ -39,6 +39,8 @@ def cmd_demo(args) -> int:
     machine_path = Path(args.machine) if args.machine else base / DEMO_MACHINE
     plan_path = Path(args.plan) if args.plan else base / DEMO_PLAN
     out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder; give a folder for the demo's outputs")
     machine = read_machine(machine_path)
     plan = read_plan(plan_path)
     plan.check_against(machine.lines())
