@@ -80,6 +80,11 @@ LINE_KINDS = (
 # Relative tolerance for two routes through the train giving one shaft the same speed.
 _TRAIN_RTOL = 1e-9
 
+# Upper limits of the expansion counts: each harmonic (and each sideband pair) is one more line
+# object per source, so a typo such as harmonics = 100000000 would otherwise exhaust memory.
+MAX_HARMONICS = 1000
+MAX_SIDEBANDS = 100
+
 
 # --------------------------------------------------------------------------------------------
 # Field checks (shared by every dataclass; messages name entry, field, value and what is allowed)
@@ -116,13 +121,17 @@ def _error(label: str, field: str, value: object, allowed: str, cls=MachineFileE
 
 
 def _check_int(
-    label: str, field: str, value: object, minimum: int, *, cls=MachineFileError
+    label: str, field: str, value: object, minimum: int, *, maximum: int | None = None,
+    cls=MachineFileError,
 ) -> int:
     word = "a positive integer" if minimum == 1 else f"an integer >= {minimum}"
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
         raise _error(label, field, value, f"must be {word} (got {_kind_of(value)})", cls=cls)
     if value < minimum:
         raise _error(label, field, value, f"must be {word}", cls=cls)
+    if maximum is not None and value > maximum:
+        raise _error(label, field, value, f"must be an integer from {minimum} to {maximum}",
+                     cls=cls)
     return int(value)
 
 
@@ -508,7 +517,8 @@ class _Entry:
         _check_name(label, "name", self.name)
         label = self.label
         if hasattr(self, "harmonics"):
-            _set(self, "harmonics", _check_int(label, "harmonics", self.harmonics, 1))
+            _set(self, "harmonics",
+                 _check_int(label, "harmonics", self.harmonics, 1, maximum=MAX_HARMONICS))
         if hasattr(self, "level_db"):
             _set(self, "level_db", _check_real(label, "level_db", self.level_db))
         return label
@@ -557,9 +567,10 @@ class GearStage(_Entry):
     driver_teeth, driven_teeth : int
         Tooth counts Z_driver, Z_driven (>= 1).
     harmonics : int
-        Mesh harmonics to expand (default 3).
+        Mesh harmonics to expand, 1 to :data:`MAX_HARMONICS` (default 3).
     sidebands : int
-        Sideband pairs around each mesh harmonic, at both shaft speeds (default 0).
+        Sideband pairs around each mesh harmonic, at both shaft speeds, 0 to
+        :data:`MAX_SIDEBANDS` (default 0).
     level_db : float
         Source level in dB (default 0).
 
@@ -587,7 +598,8 @@ class GearStage(_Entry):
             _check_name(label, field, getattr(self, field))
         for field in ("driver_teeth", "driven_teeth"):
             _set(self, field, _check_int(label, field, getattr(self, field), 1))
-        _set(self, "sidebands", _check_int(label, "sidebands", self.sidebands, 0))
+        _set(self, "sidebands",
+             _check_int(label, "sidebands", self.sidebands, 0, maximum=MAX_SIDEBANDS))
         if self.driver == self.driven:
             raise _error(
                 label, "driven", self.driven, "must be a different shaft from driver"
@@ -1136,7 +1148,14 @@ class Machine:
         out: list[Line] = []
         seen: dict[str, Line] = {}
         for item in self.shafts + self.sources:
-            for line in item.lines(orders):
+            try:
+                item_lines = item.lines(orders)
+            except InputError as exc:  # a line frequency that overflows or underflows
+                raise MachineFileError(
+                    f"{item.label}: {exc}; every line of an entry must have a finite positive "
+                    "frequency: check the entry's numbers (order, teeth, diameters, harmonics)"
+                ) from None
+            for line in item_lines:
                 if line.name in seen:
                     first = self.entries[seen[line.name].entry]
                     raise MachineFileError(
