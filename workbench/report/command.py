@@ -47,7 +47,7 @@ def add_track_options(p) -> None:
     speed.add_argument("--speed-table", metavar="CSV", help="CSV time_s,rpm in place of a tacho")
     g.add_argument("--rate", type=float, metavar="HZ", help="sample rate where the file has none")
     g.add_argument("--samples-per-rev", type=int, metavar="N", help="angle-domain samples per rev")
-    g.add_argument("--revs-per-block", type=int, metavar="N", help="revolutions per FFT block")
+    g.add_argument("--revs-per-block", type=float, metavar="N", help="revolutions per FFT block")
     g.add_argument("--envelope", metavar="LO,HI", help="envelope order spectrum of this band, Hz")
     g.add_argument("--cut-orders", metavar="O1,O2", help="orders to cut against speed")
     g.add_argument("--cut-bandwidth", type=float, metavar="ORDERS", help="width of each order cut")
@@ -113,14 +113,17 @@ def cmd_report(args) -> int:
     return 0
 
 
-def demo_report(machine_path, plan_path, run_path, out_dir, *, force=False) -> Path:
-    """Write the demo's report (``report.html`` in ``out_dir``) and return its path."""
+def demo_report(machine_path, plan_path, run_path, out_dir, *, analysis=None, force=False) -> Path:
+    """Write the demo's report (``report.html`` in ``out_dir``) and return its path.
+
+    ``analysis`` is the run already tracked by the demo (reused, not tracked again).
+    """
     from workbench.report.document import write_report
 
     out = Path(out_dir) / "report.html"
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FoldlineWarning)
-        write_report(machine_path, plan_path, run_path, out=out, force=force)
+        write_report(machine_path, plan_path, run_path, out=out, force=force, analysis=analysis)
     return out
 
 

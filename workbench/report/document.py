@@ -580,7 +580,7 @@ def _run_sections(analysis, lines, track_settings, sections):
         ("speed range", f"{sa.rpm_min:.1f} to {sa.rpm_max:.1f} rpm"),
         ("revolutions", f"{sa.revolutions:.1f}"),
         ("samples per rev", str(analysis.samples_per_rev)),
-        ("revs per block", str(analysis.revs_per_block)),
+        ("revs per block", f"{float(analysis.revs_per_block):g}"),
     ]
     for k, v in (track_settings or {}).items():
         if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
@@ -704,7 +704,7 @@ def _utc_text(value) -> str:
 
 
 def write_report(machine_path, plan_path, run_path=None, *, out, force=False, track_options=None,
-                 progress=None) -> Report:
+                 analysis=None, progress=None) -> Report:
     """Read the inputs, track the run (when given), build the report and write it to ``out``.
 
     Parameters
@@ -721,6 +721,9 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         Replace an existing ``out``.
     track_options : mapping, optional
         Keyword options of ``track_run`` (``channel``, ``tacho``, ``rpm``, ...).
+    analysis : RunAnalysis, optional
+        The run already tracked (it is then not tracked again; ``track_options`` are only
+        shown).
     progress : callable, optional
         Called with a short text as each part is built.
 
@@ -745,7 +748,9 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
     plan = read_plan(plan_path)
     plan.check_against(machine.lines())
     inputs = [InputFile.of("machine", machine_path), InputFile.of("plan", plan_path)]
-    analysis, settings = None, None
+    settings = None
+    if analysis is not None and run_path is None:
+        raise InputError("an analysis was given without the run file it was made from")
     if run_path is not None:
         from workbench.runs import sidecar_path
         from workbench.runs.analysis import track_run
@@ -755,15 +760,19 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         if side.is_file():
             inputs.append(InputFile.of("run sidecar", side))
         settings = dict(track_options or {})
+        if analysis is not None:
+            settings.update(samples_per_rev=analysis.samples_per_rev,
+                            revs_per_block=analysis.revs_per_block)
         rs = angle_settings(machine, plan)
         settings.setdefault("samples_per_rev", rs.samples_per_rev)
         settings.setdefault("revs_per_block", rs.revs_per_block)
         if not settings.get("cut_orders"):
             settings["cut_orders"] = default_cut_orders(
                 machine, plan, max_order=settings["samples_per_rev"] / 2.56)
-        if progress:
-            progress(f"tracking {run_path}")
-        analysis = track_run(run_path, machine=machine, **settings)
+        if analysis is None:
+            if progress:
+                progress(f"tracking {run_path}")
+            analysis = track_run(run_path, machine=machine, **settings)
     report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
                           progress=progress)
     with atomic_output(out, force=force) as tmp:
