@@ -80,6 +80,7 @@ def cmd_demo(args) -> int:
         track_dir = out / "run"
         _check_out_folder(track_dir, force=args.force)
         figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force, machine=machine))
+    figures.append(_demo_report(machine_path, plan_path, run_path, analysis, out, args.force))
     result = {
         "machine": str(machine_path),
         "plan": str(plan_path),
@@ -109,6 +110,13 @@ def cmd_demo(args) -> int:
         "site procedures and local codes for the run-up itself."
     )
     return 0
+
+
+def _demo_report(machine_path, plan_path, run_path, analysis, out, force) -> str:
+    """The demo's self-contained HTML report (``report.html``), with the tracked run in it."""
+    from workbench.report.command import demo_report
+
+    return str(demo_report(machine_path, plan_path, run_path, out, analysis=analysis, force=force))
 
 
 def _write_csv(table, path, *, force=False):
