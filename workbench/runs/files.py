@@ -405,6 +405,8 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
     if ext not in RUN_EXTENSIONS:
         raise RunFileError(f"{path}: extension {ext or '(none)'!r} is not a run file format; "
                            f"allowed: {', '.join(RUN_EXTENSIONS)}")
+    if path.is_dir():
+        raise RunFileError(f"{path}: is a folder; give a run file ({', '.join(RUN_EXTENSIONS)})")
     if not path.is_file():
         raise RunFileError(f"{path}: no such file")
     if path.stat().st_size == 0:
