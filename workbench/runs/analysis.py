@@ -24,7 +24,7 @@ from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
                              tacho_angle)
 from workbench.angle.matching import find_ridges, match_lines
-from workbench.errors import FoldlineWarning, InputError, RunFileError
+from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
@@ -156,9 +156,17 @@ def _peaks_frame(peaks) -> pd.DataFrame:
     )
 
 
+def _channel_index(run: Run, ch, option: str) -> int:
+    """Row of channel ``ch``; an unknown one names the run file and the option it came from."""
+    try:
+        return run.channel_index(ch)
+    except InputError as exc:
+        raise InputError(f"{run.source or '<memory>'}: {option}: {exc}") from None
+
+
 def _vibration_channel(run: Run, channel):
     if channel is not None:
-        return run.channel_index(channel)
+        return _channel_index(run, channel, "--channel")
     tacho = run.tacho_index
     for i in range(run.n_channels):
         if i != tacho:
@@ -188,14 +196,17 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
             f"{run.source}: no tacho channel: name one with --tacho (or tacho_channel in the "
             "sidecar), or give the speed with --rpm or --speed-table"
         )
-    name = run.channels[run.channel_index(tacho_ch)].name
+    name = run.channels[_channel_index(run, tacho_ch, "--tacho")].name
     ppr = run.pulses_per_rev if pulses_per_rev is None else int(pulses_per_rev)
     miss = run.missing_pulses if missing_pulses is None else int(missing_pulses)
-    detector = PulseDetector(run.rate_hz)
-    for piece in run.iter_chunks(name, chunk):
-        detector.feed(piece)
-    pulses = detector.finish()
-    return tacho_angle(pulses, pulses_per_rev=ppr, missing_pulses=miss), "tacho"
+    try:
+        detector = PulseDetector(run.rate_hz)
+        for piece in run.iter_chunks(name, chunk):
+            detector.feed(piece)
+        pulses = detector.finish()
+        return tacho_angle(pulses, pulses_per_rev=ppr, missing_pulses=miss), "tacho"
+    except (TachoError, InputError) as exc:  # say which file and channel the speed came from
+        raise type(exc)(f"{run.source or '<memory>'}: tacho channel '{name}': {exc}") from None
 
 
 def _machine_for(run: Run, machine):
