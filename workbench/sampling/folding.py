@@ -40,9 +40,11 @@ def _fold(f_hz, rate_hz) -> tuple[np.ndarray, np.ndarray]:
         n = np.floor(f / half)
     if np.any(n > _MAX_ZONE):
         i = np.argmax(n > _MAX_ZONE)
+        f_bad, rate_bad = float(f.flat[i]), float(rate.flat[i])
         raise InputError(
-            f"f_hz: {f.flat[i]!r} Hz lies more than 2**52 half-rates above "
-            f"rate_hz {rate.flat[i]!r}; folding cannot be computed exactly there")
+            f"f_hz: {f_bad:g} Hz lies more than 2**52 half-rates above rate_hz {rate_bad:g} Hz; "
+            f"folding cannot be computed exactly there: allowed are sample rates above "
+            f"{f_bad / 2.0**51:.3g} Hz for this frequency")
     # f / half can round across a zone edge; move n so that n * half <= f < (n + 1) * half.
     # n * half is exact whenever f is an exact multiple of half, so edges land exactly.
     n = np.where(n * half > f, n - 1.0, n)
