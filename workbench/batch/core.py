@@ -71,6 +71,7 @@ class BatchSettings:
     track : tuple of (str, value)
         Keyword options of :func:`~workbench.runs.analysis.track_run` (``channel``, ``tacho``,
         ``rpm``, ``samples_per_rev``, ...), as sorted pairs so the settings are hashable.
+        The rpm-frequency map is not computed (``rf_map=False``) unless asked for here.
     machine_path, plan_path : str or None
         Machine file (predicted lines, alias identification) and plan file (bands whose level
         is reported).  Read by each worker; must be readable there.
@@ -101,6 +102,16 @@ class BatchSettings:
                 if not Path(p).is_file():
                     raise InputError(f"--{role} {p}: no such file")
                 hashes.append((role, file_sha256(p)))
+        if plan_path is not None:
+            # Read both here, once, so that a bad file stops the batch before any run starts.
+            plan = _plan(str(plan_path), dict(hashes)["plan"])
+            if machine_path is not None:
+                plan.check_against(_machine(str(machine_path), dict(hashes)["machine"]).lines())
+            else:
+                moving = [b.name for b in plan.bands if b.kind == "around"]
+                if moving:
+                    raise InputError(f"--plan {plan_path}: band {moving[0]!r} follows a machine "
+                                     "line; give --machine so that its frequency is known")
         n_top = int(n_top)
         if n_top < 1:
             raise InputError(f"n_top = {n_top}: must be at least 1")
@@ -214,8 +225,8 @@ def process_run(path, settings: BatchSettings, out_dir, *, sha256=None, sidecar_
 
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", FoldlineWarning)
-            analysis = track_run(path, machine=machine, cut_orders=settings.cut_orders,
-                                 **settings.track_options)
+            options = {"rf_map": False, **settings.track_options}
+            analysis = track_run(path, machine=machine, cut_orders=settings.cut_orders, **options)
         spec_path, cuts_path = _output_names(path, row["sha256"], out_dir)
         spectrum = pd.DataFrame({"order": np.asarray(analysis.spectrum.order, dtype=float),
                                  "amplitude": np.asarray(analysis.spectrum.amplitude, dtype=float)})
@@ -340,7 +351,7 @@ class BatchResult:
     seconds : float
         Wall time of the batch, cluster start included.
     workers : int
-        Workers used (0: serial in this process).
+        Workers of the cluster used (0: serial in this process, or nothing left to do).
     scheduler : str or None
         Address of the scheduler used (None: serial).
     summary_parquet, summary_csv : Path
@@ -471,14 +482,15 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
             _write_summary(table_now(), out_dir)
             last_write[0] = time.monotonic()
 
-    address = None
+    address, n_workers = None, 0
     if not jobs:
         pass
     elif scheduler is None and workers == 0:
         for i, p, sha, side in jobs:
             finished_one(i, process_run(p, settings, out_dir, sha256=sha, sidecar_sha256=side))
     else:
-        address = _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, timeout_s)
+        address, n_workers = _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one,
+                                          timeout_s)
     table = table_now()
     pq, csv = _write_summary(table, out_dir)
     done = tuple(r["file"] for i, r in sorted(new_rows.items()) if r["status"] == "ok")
@@ -486,7 +498,7 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
     return BatchResult(
         summary=table, done=done, skipped=tuple(skipped), failed=failed,
         seconds=time.perf_counter() - t0,
-        workers=0 if (scheduler is None and workers == 0) else workers,
+        workers=n_workers,
         scheduler=address, summary_parquet=pq, summary_csv=csv,
     )
 
@@ -513,6 +525,7 @@ def _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, time
         client = Client(cluster)
     try:
         address = client.scheduler.address
+        n_workers = len(client.scheduler_info().get("workers", {}))
         futures = {}
         for i, p, sha, side in jobs:
             fut = client.submit(process_run, str(p), settings, str(out_dir), sha256=sha,
@@ -526,7 +539,7 @@ def _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, time
                 row = _frame([{"file": str(p), "settings": settings.fingerprint, "status": "error",
                                "error": f"{type(exc).__name__}: {exc}"}]).iloc[0].to_dict()
             finished_one(i, row)
-        return address
+        return address, n_workers
     finally:
         client.close()
         if cluster is not None:
