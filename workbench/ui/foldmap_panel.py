@@ -154,7 +154,7 @@ class FoldMapPanel:
         self._fmaps = Cache(16)
         self._tables = Cache(32)
         self._advice = Cache(8)
-        self._scenes = Cache(8)
+        self._scenes = Cache(12)
         self.timings = {}
         self._build_controls(rate_hz)
         self._defaults = {c: c.value for c in self._controls()}
