@@ -9,6 +9,9 @@ drive the panel exactly as a person does::
     panel.rate_hz.value = 3000.0            # or any rate
     panel.view.value = "order"
     panel.sources.value = ("stage 1",)      # show only these entries
+    with panel.hold():                      # several controls, one update
+        panel.filter_kind.value = "elliptic"
+        panel.filter_order.value = 8
 
 Work is cached: a fold map per (rate, filter, speed range), a collision table per (rate, filter,
 speed range, threshold), the advice per (filter, speed range, threshold) and a picture per
@@ -18,6 +21,7 @@ the line artists of the cached picture (see :class:`workbench.ui.scene.FoldScene
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import html
 import math
@@ -170,16 +174,22 @@ class FoldMapPanel:
         return (self.rate_choice, self.rate_hz, self.filter_kind, self.filter_order, self.cutoff,
                 self.speed_range, self.threshold_db, self.sources, self.bands, self.view)
 
-    def reset(self):
-        """Put every control back to the value it opened with, then redraw once."""
+    @contextlib.contextmanager
+    def hold(self):
+        """Change several controls inside a ``with panel.hold():`` block; update once at its end."""
         self._quiet = True
         try:
-            for control, value in self._defaults.items():
-                control.value = value
+            yield self
         finally:
             self._quiet = False
-        self._sync_filter_fields()
-        self.refresh()
+            self._sync_filter_fields()
+            self.refresh()
+
+    def reset(self):
+        """Put every control back to the value it opened with, then redraw once."""
+        with self.hold():
+            for control, value in self._defaults.items():
+                control.value = value
 
     # -- controls -------------------------------------------------------------------------
     def _build_controls(self, rate_hz):
@@ -260,17 +270,17 @@ class FoldMapPanel:
         self.cutoff.disabled = kind not in ANALOG_KINDS + ("ideal",)
 
     def _on_rate_choice(self, change):
-        if change["new"] is not None and not self._quiet:
+        if change["new"] is not None:
             self.rate_hz.value = float(change["new"])
 
     def _on_change(self, change):
+        if change["owner"] is self.rate_hz:
+            rate = float(change["new"])
+            self.rate_choice.value = rate if rate in self.plan.rates_hz else None
         if self._quiet:
             return
         if change["owner"] is self.filter_kind:
             self._sync_filter_fields()
-        if change["owner"] is self.rate_hz:
-            rate = float(change["new"])
-            self.rate_choice.value = rate if rate in self.plan.rates_hz else None
         self.refresh()
 
     # -- computation ----------------------------------------------------------------------
