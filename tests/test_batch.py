@@ -214,6 +214,9 @@ def test_existing_scheduler_is_used(serial, scenario, tmp_path):
         result = run_batch(scenario.runs[:2], tmp_path / "o", settings=_settings(scenario),
                            scheduler=cluster.scheduler_address)
         assert result.scheduler == cluster.scheduler_address and result.workers == 1
+        again = run_batch(scenario.runs[:2], tmp_path / "o", settings=_settings(scenario),
+                          scheduler=cluster.scheduler_address)
+        assert again.skipped == tuple(map(str, scenario.runs[:2])) and again.done == ()
     pd.testing.assert_frame_equal(_comparable(result.summary), _comparable(ref.summary.iloc[:2]))
 
 
@@ -228,7 +231,7 @@ def test_resume_skips_finished_runs_and_retries_failed_ones(serial, scenario):
     assert list(result.skipped) == good and result.done == ()
     assert [f for f, _ in result.failed] == [str(scenario.bad)]
     assert len(result.summary) == 4
-    assert seen[0] == (3, 4, 3, 0) and seen[-1] == (4, 4, 3, 1)
+    assert seen[0] == (0, 4, 0, 0) and seen[-1] == (4, 4, 3, 1)
     # A changed run (same name, new content) or changed settings are tracked again.
     changed = _settings(scenario)
     other = BatchSettings.make(track=changed.track_options, machine_path=str(MACHINE),

@@ -21,6 +21,7 @@ import json
 import math
 import os
 import time
+import uuid
 import warnings
 from dataclasses import dataclass, field
 from functools import lru_cache
@@ -183,11 +184,13 @@ def _write_csv(frame: pd.DataFrame, path: Path) -> None:
         frame.to_csv(tmp, index=False)
 
 
-def process_run(path, settings: BatchSettings, out_dir, *, sha256=None, sidecar_sha256=None) -> dict:
+def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> dict:
     """Track one run and write its spectrum and cuts; return its summary row.
 
-    This is the function each Dask task runs (and the serial mode calls).  It never raises for
-    a bad run: the row then has status ``"error"`` and the message.
+    This is the function each Dask task runs (and the serial mode calls).  It hashes the run
+    first (on the worker, so hashing is spread over the cluster too) and returns at once when
+    the run is among ``skip``.  It never raises for a bad run: the row then has status
+    ``"error"`` and the message.
 
     Parameters
     ----------
@@ -197,8 +200,9 @@ def process_run(path, settings: BatchSettings, out_dir, *, sha256=None, sidecar_
     out_dir : str or Path
         Folder for ``<stem>_<sha8>_spectrum.csv`` (columns ``order, amplitude``) and
         ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``).
-    sha256, sidecar_sha256 : str, optional
-        Content hashes when already known (computed otherwise).
+    skip : set of (str, str, str)
+        Keys ``(sha256, sidecar_sha256, settings fingerprint)`` of runs already done; such a
+        run gets status ``"skipped"`` and is not tracked.
 
     Returns
     -------
@@ -209,14 +213,18 @@ def process_run(path, settings: BatchSettings, out_dir, *, sha256=None, sidecar_
     t0 = time.perf_counter()
     path = Path(path)
     out_dir = Path(out_dir)
-    row = {"file": str(path), "sha256": sha256 or "", "sidecar_sha256": sidecar_sha256 or "",
-           "settings": settings.fingerprint, "status": "error", "error": ""}
+    row = {"file": str(path), "sha256": "", "sidecar_sha256": "", "settings": settings.fingerprint,
+           "status": "error", "error": ""}
     caught = []
     try:
-        if not row["sha256"]:
+        try:
             row["sha256"] = file_sha256(path)
-        if sidecar_sha256 is None:
-            row["sidecar_sha256"] = _sidecar_sha(path)
+        except OSError as exc:
+            raise InputError(f"{path}: {exc.strerror or type(exc).__name__}") from None
+        row["sidecar_sha256"] = _sidecar_sha(path)
+        if _key(row) in skip:
+            row["status"] = "skipped"
+            return row
         hashes = dict(settings._file_hashes)
         machine = None if settings.machine_path is None else _machine(settings.machine_path, hashes["machine"])
         plan = None if settings.plan_path is None else _plan(settings.plan_path, hashes["plan"])
@@ -419,6 +427,12 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
     Returns
     -------
     BatchResult
+
+    Notes
+    -----
+    Each task hashes its run and skips it when the summary already holds the same file
+    content, sidecar content and settings with status ``ok`` (and its spectrum file is still
+    there); the rows of earlier batches are kept, new rows follow them in the order given.
     """
     t0 = time.perf_counter()
     paths = [Path(p) for p in paths]
@@ -432,78 +446,65 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
         raise InputError(f"--out {out_dir}: exists and is not a folder")
     out_dir.mkdir(parents=True, exist_ok=True)
     earlier = read_summary(out_dir)
-    finished = {}
-    if earlier is not None:
-        for row in earlier.to_dict("records"):
-            if row["status"] == "ok" and row["spectrum_csv"] and (out_dir / row["spectrum_csv"]).is_file():
-                finished[_key(row)] = row
-    fp = settings.fingerprint
-    jobs, skipped, new_rows = [], [], {}
-    seen = set()
+    earlier_rows = [] if earlier is None else earlier.to_dict("records")
+    skip = frozenset(
+        _key(r) for r in earlier_rows
+        if r["status"] == "ok" and r["spectrum_csv"] and (out_dir / r["spectrum_csv"]).is_file()
+    )
+    jobs, seen = [], set()
     for i, p in enumerate(paths):
-        key_path = os.path.abspath(p)
-        if key_path in seen:
-            continue
-        seen.add(key_path)
-        try:
-            sha, side = file_sha256(p), _sidecar_sha(p)
-        except OSError as exc:
-            why = exc.strerror or type(exc).__name__
-            new_rows[i] = _frame([{"file": str(p), "settings": fp, "status": "error",
-                                   "error": f"{p}: {why}"}]).iloc[0].to_dict()
-            continue
-        if (sha, side, fp) in finished:
-            skipped.append(str(p))
-            continue
-        jobs.append((i, p, sha, side))
-    total = len(jobs) + len(skipped) + len(new_rows)
-    failed_now = [(r["file"], r["error"]) for r in new_rows.values()]
+        if os.path.abspath(p) not in seen:
+            seen.add(os.path.abspath(p))
+            jobs.append((i, p))
+    total = len(jobs)
+    new_rows, skipped = {}, {}
+    count = {"finished": 0, "failed": 0}
     say = progress or (lambda *a: None)
-    count = {"finished": len(skipped) + len(new_rows), "failed": len(failed_now)}
-    say(count["finished"], total, len(skipped), count["failed"])
+    say(0, total, 0, 0)
     last_write = [time.monotonic()]
 
     def table_now():
-        rows = []
-        if earlier is not None:
-            redo = {(sha, side, fp) for _, _, sha, side in jobs}
-            redo |= {_key(r) for r in new_rows.values()}
-            rows += [r for r in earlier.to_dict("records") if _key(r) not in redo]
+        redo = {_key(r) for r in new_rows.values()}
+        rows = [r for r in earlier_rows if _key(r) not in redo]
         rows += [new_rows[i] for i in sorted(new_rows)]
         return _frame(rows)
 
     def finished_one(i, row):
-        new_rows[i] = row
         count["finished"] += 1
-        if row["status"] != "ok":
-            count["failed"] += 1
+        if row["status"] == "skipped":
+            skipped[i] = row["file"]
+        else:
+            new_rows[i] = row
+            if row["status"] != "ok":
+                count["failed"] += 1
         say(count["finished"], total, len(skipped), count["failed"])
-        if time.monotonic() - last_write[0] > _WRITE_EVERY_S:
+        if row["status"] != "skipped" and time.monotonic() - last_write[0] > _WRITE_EVERY_S:
             _write_summary(table_now(), out_dir)
             last_write[0] = time.monotonic()
 
-    address, n_workers = None, 0
-    if not jobs:
-        pass
-    elif scheduler is None and workers == 0:
-        for i, p, sha, side in jobs:
-            finished_one(i, process_run(p, settings, out_dir, sha256=sha, sidecar_sha256=side))
+    if scheduler is None and workers == 0:
+        address, n_workers = None, 0
+        for i, p in jobs:
+            finished_one(i, process_run(p, settings, out_dir, skip=skip))
     else:
-        address, n_workers = _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one,
-                                          timeout_s)
+        address, n_workers = _run_on_dask(jobs, settings, out_dir, skip, workers, scheduler,
+                                          finished_one, timeout_s)
     table = table_now()
     pq, csv = _write_summary(table, out_dir)
-    done = tuple(r["file"] for i, r in sorted(new_rows.items()) if r["status"] == "ok")
-    failed = tuple((r["file"], r["error"]) for i, r in sorted(new_rows.items()) if r["status"] != "ok")
     return BatchResult(
-        summary=table, done=done, skipped=tuple(skipped), failed=failed,
+        summary=table,
+        done=tuple(r["file"] for i, r in sorted(new_rows.items()) if r["status"] == "ok"),
+        skipped=tuple(f for i, f in sorted(skipped.items())),
+        failed=tuple((r["file"], r["error"]) for i, r in sorted(new_rows.items()) if r["status"] != "ok"),
         seconds=time.perf_counter() - t0,
         workers=n_workers,
-        scheduler=address, summary_parquet=pq, summary_csv=csv,
+        scheduler=address,
+        summary_parquet=pq,
+        summary_csv=csv,
     )
 
 
-def _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, timeout_s):
+def _run_on_dask(jobs, settings, out_dir, skip, workers, scheduler, finished_one, timeout_s):
     """Submit one task per run (paths only) and collect the rows as they finish."""
     import logging
 
@@ -526,10 +527,12 @@ def _run_on_dask(jobs, settings, out_dir, workers, scheduler, finished_one, time
     try:
         address = client.scheduler.address
         n_workers = len(client.scheduler_info().get("workers", {}))
+        # The set of finished runs goes to each worker once, not with every task.
+        skip_on_workers = client.scatter([skip], broadcast=True)[0] if skip else frozenset()
         futures = {}
-        for i, p, sha, side in jobs:
-            fut = client.submit(process_run, str(p), settings, str(out_dir), sha256=sha,
-                                sidecar_sha256=side, pure=False, key=f"foldline-track-{i}-{sha[:12]}")
+        for i, p in jobs:
+            fut = client.submit(process_run, str(p), settings, str(out_dir), skip=skip_on_workers,
+                                pure=False, key=f"foldline-track-{i}-{uuid.uuid4().hex[:12]}")
             futures[fut] = (i, p)
         for fut in as_completed(futures):
             i, p = futures[fut]
