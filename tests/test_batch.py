@@ -279,7 +279,9 @@ def test_validation_errors(scenario, tmp_path, capsys):
         run_batch(scenario.runs, tmp_path / "file", settings=s, workers=0)
     with pytest.raises(InputError, match="--machine .*: no such file"):
         BatchSettings.make(machine_path=str(tmp_path / "missing.toml"))
-    with pytest.raises(InputError, match="n_top = 0"):
+    with pytest.raises(InputError, match="--speed-table .*: no such file"):
+        BatchSettings.make(track={"speed_table": str(tmp_path / "none.csv")})
+    with pytest.raises(InputError, match=r"\(n_top\) = 0"):
         BatchSettings.make(n_top=0)
     with pytest.raises(InputError, match="give it as a batch setting"):
         BatchSettings.make(track={"machine": "m.toml"})

@@ -42,6 +42,7 @@ __all__ = [
     "file_sha256",
     "SUMMARY_NAME",
     "BASE_COLUMNS",
+    "TAIL_COLUMNS",
     "LEVEL_PREFIX",
 ]
 
@@ -103,6 +104,11 @@ class BatchSettings:
                 if not Path(p).is_file():
                     raise InputError(f"--{role} {p}: no such file")
                 hashes.append((role, file_sha256(p)))
+        if opts.get("speed_table") is not None:
+            table = Path(opts["speed_table"])
+            if not table.is_file():
+                raise InputError(f"--speed-table {table}: no such file")
+            hashes.append(("speed table", file_sha256(table)))
         if plan_path is not None:
             # Read both here, once, so that a bad file stops the batch before any run starts.
             plan = _plan(str(plan_path), dict(hashes)["plan"])
@@ -115,7 +121,7 @@ class BatchSettings:
                                      "line; give --machine so that its frequency is known")
         n_top = int(n_top)
         if n_top < 1:
-            raise InputError(f"n_top = {n_top}: must be at least 1")
+            raise InputError(f"--top (n_top) = {n_top}: must be at least 1")
         return cls(
             track=tuple(sorted((str(k), _freeze(v)) for k, v in opts.items() if v is not None)),
             machine_path=None if machine_path is None else str(machine_path),
