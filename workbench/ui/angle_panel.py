@@ -236,23 +236,22 @@ class AngleDomainPanel:
 
     def track(self) -> AngleSignal:
         """The chosen channel tracked at the chosen samples per rev (cached)."""
-        key = self._track_key()
-        if key in self._tracks:
-            return self._tracks.get(key, None)
+        return self._tracks.get(self._track_key(), lambda: self._tracked(*self._track_key()))
+
+    def _tracked(self, channel, samples_per_rev, protect) -> AngleSignal:
+        """Feed the tracker chunk by chunk; the progress bar counts the samples fed."""
         _, angle = self.tacho()
-        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=key[1], protect=key[2])
+        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=samples_per_rev, protect=protect)
         self.progress.bar_style = ""
         self.progress.value = 0
         pieces, done = [], 0
-        for chunk in self.run.iter_chunks(key[0], _CHUNK):
+        for chunk in self.run.iter_chunks(channel, _CHUNK):
             pieces.extend(tracker.feed(chunk))
             done += len(chunk)
             self.progress.value = done
         pieces.extend(tracker.finish())
         self.progress.bar_style = "success"
-        sig = AngleSignal.concatenate(pieces, tracker.log)
-        self._tracks.put(key, sig)
-        return sig
+        return AngleSignal.concatenate(pieces, tracker.log)
 
     def analysis(self):
         """Order map, order spectrum, its peaks and the identification of predicted lines."""

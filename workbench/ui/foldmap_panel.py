@@ -159,7 +159,6 @@ class FoldMapPanel:
         self._tables = Cache(32)
         self._advice = Cache(8)
         self._scenes = Cache(12)
-        self.timings = {}
         self._build_controls(rate_hz)
         self._defaults = {c: c.value for c in self._controls()}
         self._build_layout()
@@ -223,18 +222,19 @@ class FoldMapPanel:
         self.speed_range = widgets.FloatRangeSlider(value=(lo, hi), min=0.0, max=max(top, hi), step=10.0,
                                                     description="speed (rpm)", readout_format=".0f",
                                                     continuous_update=False, style=style, layout=wide)
-        thr = float(plan.threshold_db)
         self.speed_range.add_class("foldline-speed-range")
+        thr = float(plan.threshold_db)
         self.threshold_db = widgets.FloatSlider(value=thr, min=min(-160.0, thr), max=max(20.0, thr), step=1.0,
                                                 description="threshold (dB)", readout_format=".0f",
                                                 continuous_update=False, style=style, layout=wide)
-        entries = list(dict.fromkeys(ln.entry for ln in self.lines))
-        by_entry = {e: sum(1 for ln in self.lines if ln.entry == e) for e in entries}
-        table_of = {name: getattr(item, "table", "") for name, item in self.machine.entries.items()}
         self.threshold_db.add_class("foldline-threshold")
+        entries = list(dict.fromkeys(ln.entry for ln in self.lines))
+        count = {e: sum(1 for ln in self.lines if ln.entry == e) for e in entries}
+        table_of = {name: getattr(item, "table", "") for name, item in self.machine.entries.items()}
+        labels = [f"{e}  ({_ENTRY_KINDS.get(table_of.get(e), 'entry')}, {count[e]} "
+                  f"line{'s' if count[e] != 1 else ''})" for e in entries]
         self.sources = widgets.SelectMultiple(
-            options=[(f"{e}  ({_ENTRY_KINDS.get(table_of.get(e), 'entry')}, {by_entry[e]} line{'s' if by_entry[e] != 1 else ''})", e)
-                     for e in entries],
+            options=list(zip(labels, entries)),
             value=tuple(entries), rows=min(7, max(2, len(entries))), description="sources shown",
             style=style, layout=wide)
         self.bands = widgets.SelectMultiple(
@@ -343,9 +343,6 @@ class FoldMapPanel:
 
     def refresh(self):
         """Recompute what the controls changed and update figure, table and verdict."""
-        import time
-
-        t0 = time.perf_counter()
         with collect_warnings() as caught:
             try:
                 plan = self.current_plan()
@@ -355,7 +352,6 @@ class FoldMapPanel:
                 advice = self._advice_for(plan)
                 fmap = self._fold_map_for(plan, rate)
                 table = self._table_for(plan, rate, fmap)
-                t1 = time.perf_counter()
                 bands = frozenset(self.bands.value)
                 scene = self._scene_for(plan, rate, fmap, table, self.view.value, bands)
                 png = scene.png(self.visible_lines())
@@ -374,8 +370,6 @@ class FoldMapPanel:
             f'<b>{html.escape(self.machine.name)}</b>: fold map at {fmt_rate(rate)} '
             f'(Nyquist {fmap.nyquist_hz:g} Hz), {html.escape(fmap.filter_label)}, '
             f'{plan.speed.rpm_min:.0f}-{plan.speed.rpm_max:.0f} rpm: {n} collision(s)')
-        t2 = time.perf_counter()
-        self.timings = {"compute_s": t1 - t0, "figure_s": t2 - t1, "total_s": t2 - t0}
 
     # -- HTML -----------------------------------------------------------------------------
     def shown_collisions(self):

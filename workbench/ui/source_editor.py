@@ -96,6 +96,8 @@ class SourceEditorPanel:
         self.plan = as_plan(plan)
         self.plan.check_against(self.original.lines())
         self.machine = self.original
+        self.error = None
+        self._warnings = []
         self._advice = Cache(16)
         self._tables = Cache(32)
         self._pictures = Cache(16)
@@ -273,7 +275,7 @@ class SourceEditorPanel:
         ]
         changed = [r["before"] != r["after"] for r in rows]
         warn = "".join(f'<div class="foldline-note">{html.escape(m)}</div>'
-                       for m in getattr(self, "_warnings", []))
+                       for m in self._warnings)
         return html_table(rows, (("what", ""), ("before", "as opened"), ("after", "edited")),
                           css_class="foldline-compare", changed=changed) + warn
 
