@@ -27,7 +27,6 @@ from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_m
 from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
 from workbench.runs import read_run, simulate_run  # noqa: E402
 from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
-from workbench.ui.angle_panel import RIDGES_PER_BLOCK  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
@@ -391,9 +390,11 @@ def direct(run_path, machine):
     pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
     angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
     sig = order_track(run.channel("vibration"), run.rate_hz, angle, samples_per_rev=256)
-    omap = order_map(sig, revs_per_block=20)
-    ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, max_per_block=RIDGES_PER_BLOCK)
-    ident = match_lines(ridges, machine, run.rate_hz, tolerance_orders=2 * omap.order_resolution, min_points=3)
+    omap = order_map(sig, revs_per_block=20, max_order=100.0)
+    # The identification settings of the command-line tracking (track_run): 20 dB floor, 60
+    # ridge points per block, 1.5 bins of tolerance.
+    ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, floor_db=20.0, max_per_block=60)
+    ident = match_lines(ridges, machine, run.rate_hz, tolerance_orders=1.5 / 20)
     return run, sig, omap, ident
 
 
@@ -420,7 +421,7 @@ def test_window_change_redoes_spectra_not_tracking(angle_panel, direct):
     assert angle_panel.track() is tracked
     angle_panel.tabs.selected_index = 1
     assert angle_panel.map_figure.value != png
-    peaks = find_order_peaks(order_spectrum(sig, revs_per_block=20, window="flattop"), n=10)
+    peaks = find_order_peaks(order_spectrum(sig, revs_per_block=20, window="flattop", max_order=100.0), n=10)
     shown = [float(r[0]) for r in table_rows(angle_panel.peaks.value, "foldline-peaks")]
     assert shown == pytest.approx(np.round(peaks.order, 3), abs=1e-9)
 

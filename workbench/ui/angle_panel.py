@@ -36,14 +36,23 @@ from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
 from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
 
-__all__ = ["AngleDomainPanel", "WINDOWS", "RIDGES_PER_BLOCK"]
+__all__ = ["AngleDomainPanel", "WINDOWS", "RIDGES_PER_BLOCK", "RIDGE_FLOOR_DB", "match_tolerance_orders"]
 
 #: Windows offered for the order spectra: (label, scipy.signal.get_window name).
 WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "hamming"),
            ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
-#: Ridge points kept per order-map block when identifying lines: enough that folded lines,
-#: weaker than the direct mesh family after the anti-alias filter, are among them.
-RIDGES_PER_BLOCK = 40
+#: Identification of order-map ridges with predicted lines: the settings of
+#: :func:`workbench.runs.analysis.track_run`, so the panel lists the lines the command-line
+#: tracking and the report list.  Ridge points must stand this far above a block's median ...
+RIDGE_FLOOR_DB = 20.0
+#: ... and at most this many are kept per block (enough that folded lines, weaker than the
+#: direct mesh family after the anti-alias filter, are among them).
+RIDGES_PER_BLOCK = 60
+
+
+def match_tolerance_orders(revs_per_block: float) -> float:
+    """Matching tolerance, orders: 1.5 bins, at least 0.05 (as ``track_run``)."""
+    return max(1.5 / float(revs_per_block), 0.05)
 _CHUNK = 65536
 _DPI = 80
 
@@ -259,15 +268,16 @@ class AngleDomainPanel:
         key = self._analysis_key()
 
         def make():
-            rpb, win = key[3], key[4]
-            omap = order_map(sig, revs_per_block=rpb, window=win)
-            spec = order_spectrum(sig, revs_per_block=rpb, window=win)
+            rpb, win, top = key[3], key[4], self.usable_max_order
+            omap = order_map(sig, revs_per_block=rpb, window=win, max_order=top)
+            spec = order_spectrum(sig, revs_per_block=rpb, window=win, max_order=top)
             peaks = find_order_peaks(spec, n=10)
             ident = None
             if self.lines:
-                ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, max_per_block=RIDGES_PER_BLOCK)
+                ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, floor_db=RIDGE_FLOOR_DB,
+                                     max_per_block=RIDGES_PER_BLOCK)
                 ident = match_lines(ridges, self.lines, self.run.rate_hz,
-                                    tolerance_orders=2.0 * omap.order_resolution, min_points=3)
+                                    tolerance_orders=match_tolerance_orders(rpb))
             return omap, spec, peaks, ident
 
         return self._analyses.get(key, make)
