@@ -222,6 +222,13 @@ def test_run_tables_match_track_json(browser_page, report_file, capsys):
     aliases = [i["line"] for i in ref["identified"] if i["alias"]]
     assert aliases and list(report.aliases) == list(dict.fromkeys(aliases))
     assert ident[0]["alias"] == "True"
+    # Cuts at order 1 and at the orders of the lines the plan's bands follow, each named.
+    cuts = _rows(page, "table.cuts")
+    by_name = {ln.name: ln.order for ln in read_machine(MACHINE).lines()}
+    want = sorted({1.0} | {round(by_name[b.around], 6) for b in read_plan(PLAN).bands if b.kind == "around"})
+    assert [float(r["order"]) for r in cuts] == want
+    assert [r["line"] for r in cuts] == ["motor shaft"] + sorted(
+        (b.around for b in read_plan(PLAN).bands if b.kind == "around"), key=lambda n: by_name[n])
     run_text = page.locator("#run").inner_text()
     assert f"{ref['rpm_min']:.1f} to {ref['rpm_max']:.1f} rpm" in run_text
 

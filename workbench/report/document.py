@@ -295,8 +295,6 @@ def default_cut_orders(machine, plan, *, max_order=None) -> tuple:
             ln = by_name.get(band.around)
             if ln is not None and ln.order is not None:
                 orders.add(round(float(ln.order), 6))
-        elif band.kind == "orders":
-            orders.add(round(0.5 * (band.orders[0] + band.orders[1]), 6))
     out = sorted(o for o in orders if max_order is None or o <= max_order)
     return tuple(out)
 
@@ -646,6 +644,8 @@ def _run_sections(analysis, lines, track_settings, sections):
         cut_html = figure_svg(fig, key="order-cuts", caption="Amplitude of chosen orders against "
                               "speed (energy sum over the band of each cut).", alt="order cuts")
         _close(fig)
+        cut_html += table_html(_cut_records(cuts, lines, res), _CUT_COLUMNS, css_class="cuts",
+                               caption="Order cuts and the predicted line at each order")
     else:
         cut_html = '<p class="empty">no order cuts were asked for</p>'
     run_sections.append(_sub("order-cuts", cut_html, sections))
@@ -674,6 +674,30 @@ def _run_sections(analysis, lines, track_settings, sections):
     html_run = (f'<section id="run"><h2>{esc(SECTION_TITLES["run"])}</h2>\n{head}\n'
                 + "\n".join(run_sections) + "\n</section>")
     return html_run, aliases
+
+
+_CUT_COLUMNS = (
+    Column("order", "order", _order_text, numeric=True),
+    Column("bandwidth_orders", "band (orders)", general(3), numeric=True),
+    Column("line", "predicted direct line at this order"),
+    Column("amplitude_max", "largest amplitude", general(4), numeric=True),
+    Column("rpm_at_max", "at (rpm)", fixed(0), numeric=True),
+)
+
+
+def _cut_records(cuts, lines, res):
+    recs = []
+    for c in cuts:
+        amp = np.asarray(c.amplitude, dtype=float)
+        ok = np.isfinite(amp)
+        k = int(np.argmax(np.where(ok, amp, -np.inf))) if ok.any() else None
+        recs.append({
+            "order": float(c.order), "bandwidth_orders": float(c.bandwidth_orders),
+            "line": _nearest_direct(float(c.order), lines, max(2 * res, 0.02)),
+            "amplitude_max": None if k is None else float(amp[k]),
+            "rpm_at_max": None if k is None else float(np.asarray(c.rpm)[k]),
+        })
+    return recs
 
 
 def _lib_versions():
