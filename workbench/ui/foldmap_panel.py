@@ -90,6 +90,10 @@ def narrowed_speed(speed: SpeedProfile, rpm_lo: float, rpm_hi: float) -> SpeedPr
     return SpeedProfile("linear", start_rpm=start, end_rpm=end, duration_s=duration)
 
 
+def _on_grid(x: float, step: float) -> bool:
+    return abs(x / step - round(x / step)) < 1e-9
+
+
 def _nice_ceiling(x: float) -> float:
     """A round number at or above ``x`` (1, 2 or 5 times a power of ten, times 10)."""
     if x <= 0:
@@ -219,7 +223,9 @@ class FoldMapPanel:
                                                description="cutoff (x rate)", style=style, layout=wide)
         lo, hi = float(plan.speed.rpm_min), float(plan.speed.rpm_max)
         top = _nice_ceiling(1.25 * hi)
-        self.speed_range = widgets.FloatRangeSlider(value=(lo, hi), min=0.0, max=max(top, hi), step=10.0,
+        # A step that the plan's own speeds lie on, so the slider never moves them by itself.
+        step = next((s for s in (10.0, 5.0, 1.0, 0.5) if _on_grid(lo, s) and _on_grid(hi, s)), 0.1)
+        self.speed_range = widgets.FloatRangeSlider(value=(lo, hi), min=0.0, max=max(top, hi), step=step,
                                                     description="speed (rpm)", readout_format=".0f",
                                                     continuous_update=False, style=style, layout=wide)
         self.speed_range.add_class("foldline-speed-range")
