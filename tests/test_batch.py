@@ -224,6 +224,9 @@ def test_resume_skips_finished_runs_and_retries_failed_ones(serial, scenario):
     src, _ = serial
     out = scenario.base / "resume"
     shutil.copytree(src, out)
+    # The CSV alone is enough to resume from (the Parquet file lost, say).
+    (out / "summary.parquet").unlink()
+    pd.testing.assert_frame_equal(read_summary(out), read_summary(src))
     seen = []
     result = run_batch(scenario.runs, out, settings=_settings(scenario), workers=0,
                        progress=lambda *a: seen.append(a))
