@@ -8,6 +8,7 @@ noted (folding rule: a line at f in zone 1 shows at rate - f; common practice, n
 
 from __future__ import annotations
 
+import dataclasses
 import warnings
 from html.parser import HTMLParser
 from pathlib import Path
@@ -18,7 +19,7 @@ import pytest
 
 pytest.importorskip("ipywidgets")
 
-from workbench.errors import FoldlineWarning  # noqa: E402
+from workbench.errors import FoldlineWarning, InputError  # noqa: E402
 from workbench.machine import machine_from_dict, machine_to_dict, read_machine  # noqa: E402
 from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
                                 read_plan)
@@ -27,6 +28,7 @@ from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_m
 from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
 from workbench.runs import read_run, simulate_run  # noqa: E402
 from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
+from workbench.ui.foldmap_panel import narrowed_speed  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
@@ -478,3 +480,38 @@ def test_run_without_tacho_is_reported(machine, plan):
     run = simulate_run(machine, plan, 2560.0, duration_s=2.0, tacho_channel=False)
     panel = AngleDomainPanel(run, machine=machine)
     assert "no tacho channel" in panel.status.value
+
+
+# -- validation ------------------------------------------------------------------------------
+def test_panels_refuse_what_they_cannot_open(machine, plan):
+    with pytest.raises(InputError, match="give a Machine or the path of a machine file"):
+        FoldMapPanel(42, plan)
+    with pytest.raises(InputError, match="give a Plan or the path of a plan file"):
+        FoldMapPanel(machine, 42)
+    with pytest.raises(InputError, match="not an editable source .* choose one of 'stage 1'"):
+        SourceEditorPanel(machine, plan, entry="motor")
+    shafts_only = machine_from_dict({"machine": {"name": "bare", "reference": "input"},
+                                     "shaft": [{"name": "input"}]})
+    bare_plan = _plan_with(plan, acquisition={})
+    bare_plan = dataclasses.replace(bare_plan, bands=())
+    with pytest.raises(InputError, match="has no gear stage, planetary stage, bearing or rotor"):
+        SourceEditorPanel(shafts_only, bare_plan)
+
+
+def test_narrowed_speed_checks_the_range(plan):
+    with pytest.raises(InputError, match="choose 0 <= low < high"):
+        narrowed_speed(plan.speed, 900.0, 900.0)
+    with pytest.raises(InputError, match="choose 0 <= low < high"):
+        narrowed_speed(plan.speed, -10.0, 900.0)
+    assert narrowed_speed(plan.speed, 300.0, 1800.0) is plan.speed
+    # A coast-down stays a coast-down; 1500 rpm in 60 s is 25 rpm/s, so 600 rpm take 24 s.
+    coast = dataclasses.replace(plan.speed, start_rpm=1800.0, end_rpm=300.0)
+    part = narrowed_speed(coast, 600.0, 1200.0)
+    assert (part.start_rpm, part.end_rpm, part.duration_s) == (1200.0, 600.0, pytest.approx(24.0))
+
+
+def test_angle_panel_names_what_it_can_export_and_draw(angle_panel, tmp_path):
+    assert angle_panel.export("movies", tmp_path) == []
+    assert "choose &#x27;tables&#x27; or &#x27;figures&#x27;" in angle_panel.status.value
+    with pytest.raises(InputError, match="choose one of tacho, map, cuts, spectrum"):
+        angle_panel.figure("campbell")

@@ -28,6 +28,7 @@ __all__ = [
     "Cache",
     "collect_warnings",
     "fmt_rate",
+    "error_html",
 ]
 
 #: Figure size (inches) and resolution (dots per inch) of the panels' pictures: 800 x 368 px.
@@ -169,15 +170,6 @@ class Cache:
         self._items.move_to_end(key)
         while len(self._items) > self.size:
             self._items.popitem(last=False)
-
-    def __contains__(self, key):
-        return key in self._items
-
-    def __len__(self):
-        return len(self._items)
-
-    def clear(self):
-        self._items.clear()
 
 
 class collect_warnings(warnings.catch_warnings):

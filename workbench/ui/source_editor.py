@@ -15,7 +15,7 @@ import math
 
 import ipywidgets as widgets
 
-from workbench.errors import FoldlineError
+from workbench.errors import FoldlineError, InputError
 from workbench.machine import Bearing, GearStage, PlanetaryStage, Rotor
 from workbench.sampling import advise, find_collisions, fold_map
 from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
@@ -103,8 +103,12 @@ class SourceEditorPanel:
         self._pictures = Cache(16)
         editable = [s for s in self.original.sources if type(s) in EDITABLE_FIELDS]
         if not editable:
-            raise FoldlineError(f"machine {self.original.name!r} has no gear stage, planetary stage, "
-                                "bearing or rotor to edit")
+            raise InputError(f"machine {self.original.name!r} has no gear stage, planetary stage, "
+                             "bearing or rotor to edit")
+        names = [s.name for s in editable]
+        if entry is not None and entry not in names:
+            raise InputError(f"entry {entry!r}: not an editable source of {self.original.name!r}; "
+                             f"choose one of {', '.join(repr(n) for n in names)}")
         style = {"description_width": "150px"}
         wide = widgets.Layout(width="320px")
         self.entry = widgets.Dropdown(options=[(f"{s.name} ({_TYPE_LABELS[type(s)]})", s.name) for s in editable],
