@@ -2,8 +2,9 @@
 
 :class:`FoldScene` draws a fold map once with :func:`workbench.plots.foldmap.draw_fold_map`,
 keeps the pixels of everything that does not depend on which lines are shown (axes, ticks,
-bands, legend) and redraws only the line artists on top of that background (Agg blitting).
-Hiding or showing a source therefore costs the drawing of the lines, not of the whole figure.
+bands) and redraws only the line artists on top of that background (Agg blitting).  Hiding or
+showing a source therefore costs the drawing of the lines, not of the whole figure.  The legend
+is handed over as HTML (its text costs more to draw than all the lines).
 """
 
 from __future__ import annotations
@@ -25,7 +26,8 @@ def _owners(ax, fmap, view):
 
     A line artist belongs to line ``i`` when its x data are a contiguous run of the fold map's
     speed grid and its y data equal line ``i``'s apparent frequency (or order) on that run
-    (drawn segments, collision highlights).  Annotations belong to the line named at the start
+    (drawn segments, collision highlights): the figure plots slices of the fold map's own
+    arrays, so the comparison is exact.  Lines with identical tracks share their artists.  Annotations belong to the line named at the start
     of their text (``"<line> in <band>"``).  Artists that match no line (Nyquist, filter edge)
     belong to none and are always drawn.
     """
