@@ -38,8 +38,6 @@ from dataclasses import dataclass
 from functools import cached_property
 
 import numpy as np
-import scipy.optimize
-import scipy.signal
 
 from workbench.errors import InputError
 from workbench.sampling._checks import (FieldError, freq_array, one_of, positive_int,
@@ -251,6 +249,8 @@ class AntiAliasFilter:
     @cached_property
     def _zpk(self):
         """Analog prototype (zeros, poles, gain) with the cutoff at `cutoff` rad/s."""
+        import scipy.signal  # imported here: it takes a second, and only filter responses need it
+
         n, wn, rp, rs = self.order, self.cutoff, self.passband_ripple_db, self.stopband_db
         if self.kind == "butterworth":
             return scipy.signal.butter(n, wn, analog=True, output="zpk")
@@ -263,6 +263,8 @@ class AntiAliasFilter:
     @cached_property
     def _digital_transition(self):
         """(fractions of rate, attenuation dB) across the digital model's transition band."""
+        import scipy.signal
+
         pb, sb, stop = self.passband_edge, self.stopband_edge, self.stopband_db
         numtaps, beta = scipy.signal.kaiserord(stop, sb - pb)  # width relative to Nyquist = 1
         taps = scipy.signal.firwin(numtaps, (pb + sb) / 2.0, window=("kaiser", beta), fs=2.0)
@@ -397,6 +399,8 @@ class AntiAliasFilter:
         i = int(above[0])
         if i == 0:
             return 0.0
+        import scipy.optimize
+
         x = scipy.optimize.brentq(excess, grid[i - 1], grid[i], xtol=1e-14, rtol=1e-13)
         return float(x * rate)
 

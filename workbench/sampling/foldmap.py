@@ -5,7 +5,8 @@ frequency after sampling at ``rate_hz``, its Nyquist zone, the anti-alias filter
 at the true frequency and the *residual* (source level minus attenuation).  *Collisions* are
 contiguous rpm intervals where a folded line (zone >= 1) whose residual is above the plan's
 threshold lies inside a band; a direct (zone 0) line inside a band is an *overlap*.  Interval
-edges are refined by root finding (``scipy.optimize.brentq``) so they do not depend on the grid.
+edges are refined beyond the speed grid (exactly where a line meets a band limit or a zone edge,
+by bracketed root finding where its residual meets the threshold), so they do not depend on it.
 """
 
 from __future__ import annotations
