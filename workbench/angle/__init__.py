@@ -21,13 +21,10 @@ from workbench.angle.tacho import (DoubtedPulses, PulseDetector, ShaftAngle, det
                                    tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
 
-#: The name the contributor guide lists for :func:`find_order_peaks`.
-find_peaks_orders = find_order_peaks
-
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "ShaftAngle", "tacho_angle",
     "AngleSignal", "OrderTracker", "order_track", "iter_order_track",
     "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
-    "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks", "find_peaks_orders",
+    "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks",
 ]
