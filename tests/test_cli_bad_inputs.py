@@ -1,0 +1,504 @@
+"""Catalogue of bad inputs fed to the real ``foldline`` console script.
+
+Every case writes its files into a fresh folder, runs ``foldline`` there in a subprocess and
+checks the command-line contract (DESIGN.md, "Contracts"): exit status 2, exactly one line on
+stderr starting ``foldline: error: ``, which names the file, the entry or field, and what is
+allowed (one regular expression per case), no traceback anywhere, and nothing written: the
+folder holds exactly the files it held before (no output, no partial file, no temporary file).
+
+The cases are independent processes, so they are started together in a small thread pool the
+first time any of them is checked; each parametrised test then reads its own result.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+import struct
+import subprocess
+import sys
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+FOLDLINE = Path(sys.executable).with_name("foldline")
+
+# ------------------------------------------------------------------------------------------
+# Base files (valid); each case edits one thing.
+# ------------------------------------------------------------------------------------------
+MACHINE = """\
+[machine]
+name = "test rig"
+reference = "input"
+
+[[shaft]]
+name = "input"
+
+[[shaft]]
+name = "output"
+
+[[gear_stage]]
+name = "stage 1"
+driver = "input"
+driven = "output"
+driver_teeth = 20
+driven_teeth = 40
+
+[[bearing]]
+name = "output NDE"
+shaft = "output"
+rolling_elements = 9
+element_diameter = 7.94
+pitch_diameter = 39.04
+contact_angle_deg = 0.0
+
+[[rotor]]
+name = "fan"
+shaft = "input"
+count = 7
+"""
+
+PLANETARY = """\
+[machine]
+name = "planetary rig"
+reference = "sun shaft"
+
+[[shaft]]
+name = "sun shaft"
+
+[[shaft]]
+name = "carrier shaft"
+
+[[planetary_stage]]
+name = "output stage"
+sun_teeth = 21
+planet_teeth = 30
+ring_teeth = 81
+planets = 3
+sun = "sun shaft"
+carrier = "carrier shaft"
+ring = "fixed"
+"""
+
+PLAN = """\
+[speed]
+profile = "linear"
+start_rpm = 600.0
+end_rpm = 3000.0
+duration_s = 10.0
+
+[acquisition]
+rates_hz = [2560.0, 5120.0]
+filter = "butterworth"
+filter_order = 6
+cutoff = 0.39
+threshold_db = -60.0
+
+[[band]]
+name = "outer race"
+around = "output NDE bpfo"
+width_pct = 10.0
+
+[[band]]
+name = "resonance"
+hz = [800.0, 1200.0]
+
+[resampling]
+max_order = 50.0
+order_resolution = 0.05
+"""
+
+RATE = 2000
+N = RATE * 4  # 4 s
+
+
+def edit(text: str, old: str, new: str) -> str:
+    """``text`` with ``old`` (which must occur exactly once) replaced by ``new``."""
+    assert text.count(old) == 1, old
+    return text.replace(old, new)
+
+
+def signals(n: int = N) -> np.ndarray:
+    """Vibration (order 3 at 1200 rpm) and a 0/5 V once-per-rev tacho, shape (2, n)."""
+    t = np.arange(n) / RATE
+    shaft_hz = 1200.0 / 60.0
+    vib = 0.5 * np.sin(2 * np.pi * 3 * shaft_hz * t)
+    tacho = np.where((shaft_hz * t) % 1.0 < 0.5, 5.0, 0.0)
+    return np.vstack([vib, tacho])
+
+
+def wav_bytes(data: np.ndarray, *, rate: int = RATE, tag: int = 3, bits: int = 32,
+              n_channels: int | None = None, claim_bytes: int | None = None) -> bytes:
+    """A plain RIFF/WAVE file (16-byte 'fmt ' chunk) built with struct, fields overridable.
+
+    Layout from Microsoft/IBM, "Multimedia Programming Interface and Data Specifications 1.0"
+    (1991): RIFF header, 'fmt ' chunk (tag, channels, rate, byte rate, block align, bits),
+    'data' chunk.
+    """
+    ch = data.shape[0] if n_channels is None else n_channels
+    if tag == 3:
+        payload = np.ascontiguousarray(data.T, dtype="<f4").tobytes()
+    else:
+        payload = np.ascontiguousarray(np.clip(data.T / 8.0, -1, 1) * 127 + 128,
+                                       dtype=np.uint8).tobytes()
+    block = max(ch, 1) * bits // 8
+    fmt = struct.pack("<HHIIHH", tag, ch, rate, rate * block, block, bits)
+    size = len(payload) if claim_bytes is None else claim_bytes
+    body = b"WAVE" + b"fmt " + struct.pack("<I", len(fmt)) + fmt + b"data" + \
+        struct.pack("<I", size) + payload
+    return b"RIFF" + struct.pack("<I", len(body)) + body
+
+
+GOOD_WAV = wav_bytes(signals())
+SIDECAR = {"channels": [{"name": "vibration", "unit": "g", "sensitivity": 1.0},
+                        {"name": "tacho", "unit": "V", "sensitivity": 1.0}],
+           "tacho_channel": "tacho", "pulses_per_rev": 1, "missing_pulses": 0}
+
+
+def sidecar(**changes) -> str:
+    d = dict(SIDECAR)
+    d.update(changes)
+    return json.dumps({k: v for k, v in d.items() if v is not None}, indent=2)
+
+
+def csv_text(data: np.ndarray, *, header="time_s,vibration,tacho", units=None,
+             bad_row: int | None = None, bad_text: str = "nan", time=True) -> str:
+    rows = [header] + ([units] if units else [])
+    for i in range(data.shape[1]):
+        vib = bad_text if i == bad_row else f"{data[0, i]:.6f}"
+        cells = ([f"{i / RATE:.6f}"] if time else []) + [vib, f"{data[1, i]:.1f}"]
+        rows.append(",".join(cells))
+    return "\n".join(rows) + "\n"
+
+
+def npz_bytes(**arrays) -> bytes:
+    import io
+
+    buf = io.BytesIO()
+    np.savez(buf, **arrays)
+    return buf.getvalue()
+
+
+def symlink_out(target_name: str, link_name: str):
+    """A file writer making ``link_name`` a symbolic link to a file outside the case folder."""
+    def make(folder: Path) -> None:
+        outside = folder.parent / f"{folder.name}_outside"
+        outside.mkdir()
+        (outside / target_name).write_text(MACHINE)
+        (folder / link_name).symlink_to(outside / target_name)
+    return make
+
+
+@dataclass
+class Case:
+    id: str
+    files: dict
+    argv: list
+    expect: str  # regex on the text after "foldline: error: "
+    outputs: tuple = ()  # paths (relative) that must not exist afterwards
+    extra_dirs: tuple = field(default=())
+
+
+M, P = "m.toml", "p.toml"
+FOLDMAP = ["foldmap", M, P, "--rate", "5120", "--png", "fig.png"]
+TRACK_OUT = ["--out", "result"]
+
+
+def mcase(id, text, expect, argv=None):
+    return Case(id, {M: text}, argv or ["orders", M, "--json"], expect)
+
+
+def pcase(id, text, expect):
+    return Case(id, {M: MACHINE, P: text}, FOLDMAP, expect, outputs=("fig.png",))
+
+
+def rcase(id, files, expect, args=(), run="run.wav"):
+    return Case(id, files, ["track", run, *args, *TRACK_OUT, "--json"], expect,
+                outputs=("result",))
+
+
+def good_run(**changes):
+    files = {"run.wav": GOOD_WAV, "run.json": sidecar()}
+    files.update(changes)
+    return files
+
+
+DATA = signals()
+CASES = [
+    # ---------------------------------------------------------------- machine files
+    mcase("machine-toml-syntax", edit(MACHINE, "[[shaft]]\nname = \"output\"",
+                                      "[[shaft]\nname = \"output\""),
+          r"^m\.toml: not valid TOML: .*\(at line 8, column \d+\)"),
+    mcase("machine-teeth-string", edit(MACHINE, "driver_teeth = 20", 'driver_teeth = "20"'),
+          r"^m\.toml: \[\[gear_stage\]\] 'stage 1': driver_teeth = \"20\": must be a positive "
+          r"integer \(got a string\)"),
+    mcase("machine-teeth-bool", edit(MACHINE, "driven_teeth = 40", "driven_teeth = true"),
+          r"^m\.toml: \[\[gear_stage\]\] 'stage 1': driven_teeth = true: must be a positive "
+          r"integer \(got a boolean\)"),
+    mcase("machine-teeth-zero", edit(MACHINE, "driver_teeth = 20", "driver_teeth = 0"),
+          r"^m\.toml: \[\[gear_stage\]\] 'stage 1': driver_teeth = 0: must be a positive "
+          r"integer"),
+    mcase("machine-teeth-fraction", edit(MACHINE, "driver_teeth = 20", "driver_teeth = 20.5"),
+          r"^m\.toml: \[\[gear_stage\]\] 'stage 1': driver_teeth = 20\.5: must be a positive "
+          r"integer \(got a number\)"),
+    mcase("machine-count-negative", edit(MACHINE, "count = 7", "count = -7"),
+          r"^m\.toml: \[\[rotor\]\] 'fan': count = -7: must be a positive integer"),
+    mcase("machine-rolling-elements-zero", edit(MACHINE, "rolling_elements = 9",
+                                                "rolling_elements = 0"),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': rolling_elements = 0: must be a positive "
+          r"integer"),
+    mcase("machine-bool-for-number", edit(MACHINE, "pitch_diameter = 39.04",
+                                          "pitch_diameter = false"),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': pitch_diameter = false: must be a positive "
+          r"number \(got a boolean\)"),
+    mcase("machine-contact-angle-90", edit(MACHINE, "contact_angle_deg = 0.0",
+                                           "contact_angle_deg = 90"),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': contact_angle_deg = 90: must be >= 0 and "
+          r"< 90"),
+    mcase("machine-contact-angle-120", edit(MACHINE, "contact_angle_deg = 0.0",
+                                            "contact_angle_deg = 120.5"),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': contact_angle_deg = 120\.5: must be >= 0 "
+          r"and < 90"),
+    mcase("machine-element-not-below-pitch", edit(MACHINE, "element_diameter = 7.94",
+                                                  "element_diameter = 39.04"),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': element_diameter = 39\.04: must be smaller "
+          r"than pitch_diameter = 39\.04"),
+    mcase("machine-nan-level", edit(MACHINE, "count = 7", "count = 7\nlevel_db = nan"),
+          r"^m\.toml: \[\[rotor\]\] 'fan': level_db = nan: must be a finite number \(not inf "
+          r"or nan\)"),
+    mcase("machine-shaft-missing", edit(MACHINE, 'shaft = "output"', 'shaft = "outptu"'),
+          r"^m\.toml: \[\[bearing\]\] 'output NDE': shaft = \"outptu\": no such \[\[shaft\]\]; "
+          r"shafts are 'input', 'output'; did you mean \"output\"\?"),
+    mcase("machine-reference-missing", edit(MACHINE, 'reference = "input"',
+                                            'reference = "motor"'),
+          r"^m\.toml: \[machine\]: reference = \"motor\": is not a shaft; shafts are 'input', "
+          r"'output'"),
+    mcase("machine-train-not-connected", MACHINE + '\n[[shaft]]\nname = "spare"\n',
+          r"^m\.toml: \[machine\] 'test rig': shaft 'spare' is not connected to the reference "
+          r"shaft 'input' by any \[\[gear_stage\]\] or \[\[planetary_stage\]\]; connect it"),
+    mcase("machine-train-inconsistent", MACHINE + '\n[[gear_stage]]\nname = "stage 2"\n'
+          'driver = "input"\ndriven = "output"\ndriver_teeth = 21\ndriven_teeth = 40\n',
+          r"^m\.toml: \[machine\] 'test rig': shaft 'output' turns at order 0\.5 through "
+          r"'stage 1' but at order 0\.525 through 'stage 2'.*check their tooth counts"),
+    mcase("machine-planetary-no-fixed", edit(PLANETARY, 'ring = "fixed"', 'ring = "housing"'),
+          r"^m\.toml: \[\[planetary_stage\]\] 'output stage': sun = .*ring = \"housing\": no "
+          r"member is \"fixed\"; exactly one of sun, carrier, ring must be \"fixed\""),
+    mcase("machine-planetary-two-fixed", edit(PLANETARY, 'carrier = "carrier shaft"',
+                                              'carrier = "fixed"'),
+          r"^m\.toml: \[\[planetary_stage\]\] 'output stage': .*: 2 members are \"fixed\"; "
+          r"exactly one of sun, carrier, ring must be \"fixed\""),
+    mcase("machine-unknown-key", edit(MACHINE, "driver_teeth = 20", "driver_teth = 20"),
+          r"^m\.toml: \[\[gear_stage\]\] 'stage 1': unknown key 'driver_teth'; did you mean "
+          r"'driver_teeth'\? allowed keys are name, driver, driven, driver_teeth"),
+    mcase("machine-unknown-machine-key", edit(MACHINE, 'name = "test rig"',
+                                              'name = "test rig"\ncolour = "red"'),
+          r"^m\.toml: \[machine\]: unknown key 'colour'; allowed keys are name, reference"),
+    mcase("machine-unknown-table", MACHINE + '\n[[bearings]]\nname = "x"\n',
+          r"^m\.toml: unknown table \[bearings\]; did you mean \[\[bearing\]\]\? allowed tables "
+          r"are \[machine\], \[\[shaft\]\]"),
+    mcase("machine-harmonics-huge", edit(MACHINE, "count = 7", "count = 7\nharmonics = 100000000"),
+          r"^m\.toml: \[\[rotor\]\] 'fan': harmonics = 100000000: must be an integer from 1 to "
+          r"1000"),
+    mcase("machine-line-overflow", MACHINE + '\n[[order]]\nname = "whirl"\nshaft = "input"\n'
+          'order = 1e308\nharmonics = 2\n',
+          r"^m\.toml: \[\[order\]\] 'whirl': line 'whirl order x2': order = inf: must be a "
+          r"positive number .*every line of an entry must have a finite positive frequency"),
+    mcase("machine-duplicate-name", MACHINE + '\n[[rotor]]\nname = "stage 1"\nshaft = "input"\n'
+          'count = 3\n',
+          r"^m\.toml: \[\[rotor\]\] 'stage 1': name = \"stage 1\": also used by \[\[gear_stage\]\] "
+          r"'stage 1'; names must be unique"),
+    Case("machine-missing-file", {}, ["orders", "nowhere.toml"],
+         r"^nowhere\.toml: machine file not found"),
+    Case("machine-folder", {"gearbox/.keep": ""}, ["orders", "gearbox"],
+         r"^gearbox: is a directory, not a machine file"),
+    mcase("machine-not-utf8", b"\xff\xfe" + MACHINE.encode(),
+          r"^m\.toml: not UTF-8 text \(byte \d+\); save the machine file as UTF-8"),
+    # ---------------------------------------------------------------- plan files
+    pcase("plan-toml-syntax", edit(PLAN, "duration_s = 10.0", "duration_s = = 10.0"),
+          r"^p\.toml: not valid TOML: Invalid value \(at line 5, column \d+\)"),
+    pcase("plan-rate-zero", edit(PLAN, "rates_hz = [2560.0, 5120.0]", "rates_hz = [0]"),
+          r"^p\.toml: \[acquisition\]: rates_hz: sample rates must be positive \(Hz\), got 0"),
+    pcase("plan-rate-nan", edit(PLAN, "rates_hz = [2560.0, 5120.0]", "rates_hz = [nan]"),
+          r"^p\.toml: \[acquisition\]: rates_hz: item 1 must be a finite number, got nan"),
+    pcase("plan-rate-inf", edit(PLAN, "rates_hz = [2560.0, 5120.0]", "rates_hz = [2560, inf]"),
+          r"^p\.toml: \[acquisition\]: rates_hz: item 2 must be a finite number, got inf"),
+    pcase("plan-band-lo-above-hi", edit(PLAN, "hz = [800.0, 1200.0]", "hz = [1200.0, 800.0]"),
+          r"^p\.toml: \[\[band\]\] 'resonance': hz: lower limit must be below the upper one, "
+          r"got \[1200, 800\]"),
+    pcase("plan-band-unknown-line", edit(PLAN, 'around = "output NDE bpfo"',
+                                         'around = "output NDE bpfx"'),
+          r"^p\.toml: \[\[band\]\] 'outer race': around: the machine has no line named "
+          r"'output NDE bpfx' \(did you mean 'output NDE bpfo'"),
+    pcase("plan-unknown-key", edit(PLAN, "threshold_db = -60.0", "treshold_db = -60.0"),
+          r"^p\.toml: \[acquisition\]: treshold_db: unknown key \(did you mean 'threshold_db'\?\);"
+          r" allowed keys are rates_hz, filter"),
+    # ---------------------------------------------------------------- command options
+    Case("option-rate-negative", {}, ["alias", "100", "--rate", "-5"],
+         r"^--rate = -5\.0: must be a positive number"),
+    Case("option-rate-text", {}, ["alias", "100", "--rate", "fast"],
+         r"^argument --rate: invalid float value: 'fast' \(see 'foldline alias --help'\)"),
+    Case("option-png-unknown-extension", {M: MACHINE, P: PLAN}, [*FOLDMAP[:-1], "fig.bmpx"],
+         r"^fig\.bmpx: a figure cannot be saved as '\.bmpx'; allowed extensions: .*\.png",
+         outputs=("fig.bmpx",)),
+    Case("option-png-exists", {M: MACHINE, P: PLAN, "fig.png": b"precious"}, FOLDMAP,
+         r"^fig\.png: exists already; pass --force"),
+    Case("option-demo-out-is-a-file", {"results": "not a folder"}, ["demo", "--out", "results"],
+         r"^--out results: exists and is not a folder"),
+    # ---------------------------------------------------------------- run files
+    rcase("run-wav-empty", good_run(**{"run.wav": b""}), r"^run\.wav: is empty \(0 bytes\)"),
+    rcase("run-wav-truncated-data", good_run(**{"run.wav": GOOD_WAV[:len(GOOD_WAV) // 2 + 3]}),
+          r"^run\.wav: the data chunk claims 8000 frames \(64000 bytes\) but the file holds only "
+          r"\d+ complete frames .*the file is truncated"),
+    rcase("run-wav-header-claims-more", good_run(**{"run.wav": wav_bytes(DATA,
+                                                                          claim_bytes=128000)}),
+          r"^run\.wav: the data chunk claims 16000 frames \(128000 bytes\) but the file holds "
+          r"only 8000 complete frames"),
+    rcase("run-wav-float-nan", good_run(**{"run.wav": wav_bytes(np.where(
+        np.arange(N) == 1500, np.nan, DATA))}),
+          r"^run\.wav: channel 'vibration' holds nan at sample 1501 \(t = 0\.75 s\); every value "
+          r"must be finite"),
+    rcase("run-csv-nan", {"run.csv": csv_text(DATA, bad_row=700)},
+          r"^run\.csv: channel 'vibration' holds nan at sample 701 \(t = 0\.35 s, line 702\); "
+          r"every value must be finite", run="run.csv"),
+    rcase("run-csv-text-in-number", {"run.csv": csv_text(DATA, bad_row=9, bad_text="n/a ")},
+          r"^run\.csv: line 11, column 'vibration': 'n/a ' is not a number", run="run.csv"),
+    rcase("run-npz-inf", {"run.npz": npz_bytes(data=np.where(np.arange(N) == 99, np.inf, DATA),
+                                               rate_hz=np.float64(RATE))},
+          r"^run\.npz: channel 'ch1' holds inf at sample 100 \(t = 0\.0495 s\)", run="run.npz"),
+    rcase("run-npz-pickled-object", {"run.npz": npz_bytes(data=np.array([{"x": 1}, None],
+                                                                        dtype=object))},
+          r"^run\.npz: key 'data' holds a pickled object array; refused", run="run.npz"),
+    rcase("run-unknown-extension", {"run.flac": GOOD_WAV},
+          r"^run\.flac: extension '\.flac' is not a run file format; allowed: \.wav, \.csv, "
+          r"\.npz, \.mat", run="run.flac"),
+    rcase("run-folder", {"run.wav/.keep": ""}, r"^run\.wav: is a folder; give a run file"),
+    rcase("run-tacho-flat", good_run(**{"run.wav": wav_bytes(np.vstack([DATA[0],
+                                                                         np.full(N, 5.0)]))}),
+          r"^run\.wav: tacho channel 'tacho': the tacho channel is flat \(min 5, max 5\): no "
+          r"pulses can be found"),
+    rcase("run-tacho-no-edges", good_run(**{"run.wav": wav_bytes(np.vstack([
+        DATA[0], np.where(np.arange(N) < 600, 5.0, 0.0)]))}),
+          r"^run\.wav: tacho channel 'tacho': no rising edges crossed the trigger band"),
+    rcase("run-channel-unknown", good_run(), r"^run\.wav: --channel: channel 'vibraton' not "
+          r"found; available: 1='vibration', 2='tacho'", args=("--channel", "vibraton")),
+    # ---------------------------------------------------------------- sidecars
+    rcase("sidecar-unknown-key", good_run(**{"run.json": sidecar(tacho_chanel="tacho")}),
+          r"^run\.json: unknown key 'tacho_chanel' \(did you mean 'tacho_channel'\?\); allowed: "
+          r"rate_hz, channels, tacho_channel"),
+    rcase("sidecar-tacho-out-of-range", good_run(**{"run.json": sidecar(tacho_channel=3)}),
+          r"^run\.json: tacho_channel: 3 is not valid; allowed: a whole number from 1 to 2"),
+    rcase("sidecar-machine-outside-folder", good_run(**{"run.json": sidecar(
+        machine_file="../m.toml")}),
+          r"^run\.json: machine_file: '\.\./m\.toml' leads out of the sidecar's folder"),
+    rcase("sidecar-machine-symlink-out", good_run(**{"run.json": sidecar(
+        machine_file="m.toml"), "@link": symlink_out("m.toml", "m.toml")}),
+          r"^run\.json: machine_file: 'm\.toml' resolves to .* through a symbolic link, outside "
+          r"the sidecar's folder"),
+
+]
+
+
+# ------------------------------------------------------------------------------------------
+# Running the catalogue
+# ------------------------------------------------------------------------------------------
+@dataclass
+class Outcome:
+    folder: Path
+    before: set
+    after: set
+    returncode: int
+    stdout: str
+    stderr: str
+
+
+def _write_files(folder: Path, files: dict) -> None:
+    for name, content in files.items():
+        if callable(content):
+            content(folder)
+            continue
+        path = folder / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if isinstance(content, bytes):
+            path.write_bytes(content)
+        else:
+            path.write_text(content, encoding="utf-8")
+
+
+def _listing(folder: Path) -> set:
+    return {(str(p.relative_to(folder)), p.is_dir(), p.stat().st_size if p.is_file() else 0)
+            for p in folder.rglob("*")}
+
+
+def _run(case: Case, folder: Path) -> Outcome:
+    folder.mkdir(parents=True)
+    _write_files(folder, case.files)
+    before = _listing(folder)
+    env = {k: v for k, v in os.environ.items() if k != "FOLDLINE_DEBUG"}
+    env["MPLBACKEND"] = "Agg"
+    proc = subprocess.run([str(FOLDLINE), *case.argv], cwd=folder, capture_output=True,
+                          text=True, timeout=120, env=env)
+    return Outcome(folder, before, _listing(folder), proc.returncode, proc.stdout, proc.stderr)
+
+
+@pytest.fixture(scope="module")
+def outcomes(tmp_path_factory):
+    root = tmp_path_factory.mktemp("bad_inputs")
+    workers = max(2, (os.cpu_count() or 2) + 1)
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        futures = {c.id: pool.submit(_run, c, root / c.id) for c in CASES}
+        return {k: f.result() for k, f in futures.items()}
+
+
+def test_catalogue_is_large_and_ids_unique():
+    ids = [c.id for c in CASES]
+    assert len(ids) == len(set(ids))
+    assert len(CASES) >= 45
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
+def test_bad_input_is_refused_cleanly(case, outcomes):
+    out = outcomes[case.id]
+    assert "Traceback" not in out.stderr and "Traceback" not in out.stdout
+    assert out.returncode == 2, (out.returncode, out.stderr)
+    lines = out.stderr.splitlines()
+    assert len(lines) == 1, out.stderr
+    prefix = "foldline: error: "
+    assert lines[0].startswith(prefix), lines[0]
+    message = lines[0][len(prefix):]
+    assert re.search(case.expect, message), message
+    assert out.stdout == ""  # --json prints its object only on success
+    # Nothing written: the same files, same sizes; no output, no partial or temporary file.
+    assert out.after == out.before
+    for name in case.outputs:
+        assert not (out.folder / name).exists()
+
+
+def test_existing_output_is_kept_then_replaced_with_force(outcomes, tmp_path):
+    refused = outcomes["option-png-exists"]
+    assert (refused.folder / "fig.png").read_bytes() == b"precious"
+    folder = tmp_path / "force"
+    case = Case("force", {M: MACHINE, P: PLAN, "fig.png": b"precious"}, FOLDMAP + ["--force"],
+                "")
+    out = _run(case, folder)
+    assert out.returncode == 0, out.stderr
+    assert (folder / "fig.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature
+    assert sorted(p.name for p in folder.iterdir()) == ["fig.png", "m.toml", "p.toml"]
+
+
+def test_csv_with_units_row_is_read(tmp_path):
+    # A units row under the header is legal: it gives the channel units (DESIGN.md, run files).
+    case = Case("units", {"run.csv": csv_text(DATA, units="s,g,V")},
+                ["track", "run.csv", "--tacho", "tacho", "--json"], "")
+    out = _run(case, tmp_path / "units")
+    assert out.returncode == 0, out.stderr
+    result = json.loads(out.stdout)
+    assert result["unit"] == "g"
+    assert result["channel"] == "vibration"
+    assert result["rate_hz"] == RATE
+    # 1200 rpm tacho, 4 s: 80 revolutions (analytic truth; the first and last pulse bound it)
+    assert result["rpm_min"] == pytest.approx(1200.0, rel=1e-3)
+    assert result["rpm_max"] == pytest.approx(1200.0, rel=1e-3)
