@@ -29,6 +29,7 @@ import math
 import os
 import warnings
 import zipfile
+import zlib
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -251,9 +252,16 @@ def _read_npz(path: Path, n_expected: int | None) -> _Read:
             try:
                 return archive[key]
             except ValueError as exc:
+                if "pickle" not in str(exc):
+                    raise RunFileError(f"{path}: key '{key}' is not a readable array ({exc}); "
+                                       "the archive is damaged: write it again") from exc
                 raise RunFileError(f"{path}: key '{key}' holds a pickled object array; refused, "
                                    "as loading a pickle can run code: store plain numeric "
                                    "arrays (and names as a string array)") from exc
+            except (OSError, EOFError, zipfile.BadZipFile, zlib.error, NotImplementedError,
+                    KeyError) as exc:  # a damaged member: bad CRC, cut-off or bad compression
+                raise RunFileError(f"{path}: key '{key}' cannot be read ({exc}); the archive is "
+                                   "damaged: write it again") from exc
 
         if "data" not in keys:
             raise RunFileError(f"{path}: missing key 'data' (found: {', '.join(keys) or 'none'});"
