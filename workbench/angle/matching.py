@@ -18,7 +18,14 @@ import pandas as pd
 from workbench.errors import InputError
 from workbench.sampling.folding import fold
 
-__all__ = ["find_ridges", "predicted_orders", "match_lines", "Identification"]
+__all__ = ["find_ridges", "predicted_orders", "match_lines", "identify_order_map", "Identification",
+           "RIDGE_FLOOR_DB", "RIDGES_PER_BLOCK"]
+
+#: A ridge point must stand this far above its block's median amplitude, dB ...
+RIDGE_FLOOR_DB = 20.0
+#: ... and at most this many are kept per block: enough that folded lines, weaker than the
+#: direct mesh family after the anti-alias filter, are among them.
+RIDGES_PER_BLOCK = 60
 
 
 def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_order=None):
@@ -211,3 +218,26 @@ def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=
         )
     unexplained = pts[pts["line"].isna()][["rpm", "order", "amplitude"]].reset_index(drop=True)
     return Identification(points=pts, table=table, unexplained=unexplained)
+
+
+def identify_order_map(order_map, lines, rate_hz, *, floor_db=RIDGE_FLOOR_DB, max_per_block=RIDGES_PER_BLOCK):
+    """Ridges of an order map matched to predicted lines, with the project's standard settings.
+
+    Parameters
+    ----------
+    order_map : object with ``rpm`` (B,), ``order`` (K,), ``amplitude`` (B, K), ``order_resolution``
+    lines : sequence of Line or Machine
+    rate_hz : float
+        Sample rate of the recording, Hz.
+    floor_db, max_per_block : float, int
+        Ridge picking (see :func:`find_ridges`).
+
+    Returns
+    -------
+    Identification
+        Matched with a tolerance of 1.5 bins of the map (at least 0.05 orders).
+    """
+    ridges = find_ridges(order_map.rpm, order_map.order, order_map.amplitude, floor_db=floor_db,
+                         max_per_block=max_per_block)
+    tolerance = max(1.5 * float(order_map.order_resolution), 0.05)
+    return match_lines(ridges, lines, rate_hz, tolerance_orders=tolerance)

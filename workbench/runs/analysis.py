@@ -23,7 +23,7 @@ import pandas as pd
 from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_order_spectrum,
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
                              tacho_angle)
-from workbench.angle.matching import find_ridges, match_lines
+from workbench.angle.matching import identify_order_map
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
@@ -366,8 +366,7 @@ def track_run(
     mach = _machine_for(run, machine)
     ident = None
     if mach is not None:
-        ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, floor_db=20.0, max_per_block=60)
-        ident = match_lines(ridges, mach, run.rate_hz, tolerance_orders=max(1.5 / rpb, 0.05))
+        ident = identify_order_map(omap, mach, run.rate_hz)
         log.append(f"identified {len(ident.table)} predicted lines, {len(ident.aliases)} of them aliases")
     doubted = angle.doubted.to_frame() if hasattr(angle.doubted, "to_frame") else pd.DataFrame(
         {"time_s": [], "reason": []}

@@ -27,7 +27,7 @@ import pandas as pd
 
 from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_order_peaks, order_cut,
                              order_map, order_spectrum, tacho_angle)
-from workbench.angle.matching import find_ridges, match_lines
+from workbench.angle.matching import identify_order_map
 from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
 from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_tacho_check,
                              save_figure)
@@ -36,23 +36,11 @@ from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
 from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
 
-__all__ = ["AngleDomainPanel", "WINDOWS", "RIDGES_PER_BLOCK", "RIDGE_FLOOR_DB", "match_tolerance_orders"]
+__all__ = ["AngleDomainPanel", "WINDOWS"]
 
 #: Windows offered for the order spectra: (label, scipy.signal.get_window name).
 WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "hamming"),
            ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
-#: Identification of order-map ridges with predicted lines: the settings of
-#: :func:`workbench.runs.analysis.track_run`, so the panel lists the lines the command-line
-#: tracking and the report list.  Ridge points must stand this far above a block's median ...
-RIDGE_FLOOR_DB = 20.0
-#: ... and at most this many are kept per block (enough that folded lines, weaker than the
-#: direct mesh family after the anti-alias filter, are among them).
-RIDGES_PER_BLOCK = 60
-
-
-def match_tolerance_orders(revs_per_block: float) -> float:
-    """Matching tolerance, orders: 1.5 bins, at least 0.05 (as ``track_run``)."""
-    return max(1.5 / float(revs_per_block), 0.05)
 _CHUNK = 65536
 _DPI = 80
 
@@ -274,10 +262,7 @@ class AngleDomainPanel:
             peaks = find_order_peaks(spec, n=10)
             ident = None
             if self.lines:
-                ridges = find_ridges(omap.rpm, omap.order, omap.amplitude, floor_db=RIDGE_FLOOR_DB,
-                                     max_per_block=RIDGES_PER_BLOCK)
-                ident = match_lines(ridges, self.lines, self.run.rate_hz,
-                                    tolerance_orders=match_tolerance_orders(rpb))
+                ident = identify_order_map(omap, self.lines, self.run.rate_hz)
             return omap, spec, peaks, ident
 
         return self._analyses.get(key, make)
