@@ -299,6 +299,7 @@ def main(argv=None) -> int:
             if getattr(args, "json", False):
                 # Keep stdout a single JSON object; warnings still go to stderr.
                 warnings.simplefilter("default")
+            warnings.showwarning = _show_warning  # restored when the block ends
             return int(args.func(args) or 0)
     except (_UsageError, FoldlineError) as exc:
         _fail(str(exc))
@@ -322,6 +323,14 @@ def main(argv=None) -> int:
             raise
         _fail(f"internal error: {type(exc).__name__}: {exc} (set FOLDLINE_DEBUG=1 for details)", status="")
         return 1
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    """Print a warning as one line ``foldline: warning: ...`` (no source file or code line)."""
+    text = " ".join(str(message).split())
+    if not issubclass(category, FoldlineWarning):
+        text = f"{category.__name__}: {text}"
+    (file or sys.stderr).write(f"{PROG}: warning: {text}\n")
 
 
 def _fail(message: str, status: str = "") -> None:
