@@ -502,3 +502,15 @@ def test_csv_with_units_row_is_read(tmp_path):
     # 1200 rpm tacho, 4 s: 80 revolutions (analytic truth; the first and last pulse bound it)
     assert result["rpm_min"] == pytest.approx(1200.0, rel=1e-3)
     assert result["rpm_max"] == pytest.approx(1200.0, rel=1e-3)
+
+
+def test_adjusted_value_warns_in_one_line_and_json_stays_clean(tmp_path):
+    # A cutoff above Nyquist is legal but folds everything between: a warning, not an error.
+    case = Case("warn", {M: MACHINE, P: edit(PLAN, "cutoff = 0.39", "cutoff = 0.6")},
+                ["plan", M, P, "--json"], "")
+    out = _run(case, tmp_path / "warn")
+    assert out.returncode == 0, out.stderr
+    json.loads(out.stdout)  # exactly one JSON object on stdout
+    lines = out.stderr.splitlines()
+    assert lines and all(line.startswith("foldline: warning: ") for line in lines), lines
+    assert any(re.search(r"cutoff 0\.6 x rate lies above Nyquist", line) for line in lines)
