@@ -33,6 +33,12 @@ __all__ = ["RunAnalysis", "track_run", "CHUNK_S"]
 #: Seconds of the record read per chunk while streaming.
 CHUNK_S = 8.0
 
+#: Allowed samples per revolution.  2**16 resolves orders up to about 25,000, beyond any
+#: machine line; larger values only make the tracker's blocks (revolutions x samples_per_rev
+#: values each) exhaust memory.
+MIN_SAMPLES_PER_REV = 8
+MAX_SAMPLES_PER_REV = 1 << 16
+
 #: Revolutions per block when neither the caller nor a plan gives an order resolution.
 DEFAULT_REVS_PER_BLOCK = 16
 
@@ -184,6 +190,10 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
         rpm = float(rpm)
         if not math.isfinite(rpm) or rpm <= 0:
             raise InputError(f"--rpm {rpm!r}: must be a positive speed in rpm")
+        if rpm / 60.0 >= run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
+            raise InputError(f"--rpm {rpm:g}: order 1 would be at {rpm / 60.0:g} Hz, above the "
+                             f"run's Nyquist frequency {run.rate_hz / 2.0:g} Hz; allowed: a speed "
+                             f"below {30.0 * run.rate_hz:g} rpm")
         return ShaftAngle.from_rpm(rpm, run.duration_s), "rpm"
     if speed_table is not None:
         from workbench.sampling import read_speed_table
@@ -269,7 +279,8 @@ def track_run(
     rate_hz : float, optional
         Sample rate, where the file does not give it (CSV without time column, MAT).
     samples_per_rev : int
-        Angle-domain samples per revolution (default 256: orders up to 100 usable).
+        Angle-domain samples per revolution, 8 to 65536 (default 256: orders up to 100
+        usable).
     revs_per_block : float, optional
         Revolutions per FFT block (order resolution = 1 / revs_per_block); default 16.
     max_order : float, optional
@@ -301,8 +312,9 @@ def track_run(
     run = run_or_path if isinstance(run_or_path, Run) else read_run(run_or_path, rate_hz=rate_hz)
     source = run.source or "<memory>"
     spr = int(samples_per_rev)
-    if spr < 8 or spr != samples_per_rev:
-        raise InputError(f"--samples-per-rev {samples_per_rev!r}: must be a whole number of at least 8")
+    if not MIN_SAMPLES_PER_REV <= spr <= MAX_SAMPLES_PER_REV or spr != samples_per_rev:
+        raise InputError(f"--samples-per-rev {samples_per_rev!r}: must be a whole number from "
+                         f"{MIN_SAMPLES_PER_REV} to {MAX_SAMPLES_PER_REV}")
     rpb = DEFAULT_REVS_PER_BLOCK if revs_per_block is None else float(revs_per_block)
     if not math.isfinite(rpb) or rpb <= 0:
         raise InputError(f"revs_per_block {revs_per_block!r}: must be a positive number of revolutions")
