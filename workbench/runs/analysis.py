@@ -190,10 +190,6 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
         rpm = float(rpm)
         if not math.isfinite(rpm) or rpm <= 0:
             raise InputError(f"--rpm {rpm!r}: must be a positive speed in rpm")
-        if rpm / 60.0 >= run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
-            raise InputError(f"--rpm {rpm:g}: order 1 would be at {rpm / 60.0:g} Hz, above the "
-                             f"run's Nyquist frequency {run.rate_hz / 2.0:g} Hz; allowed: a speed "
-                             f"below {30.0 * run.rate_hz:g} rpm")
         return ShaftAngle.from_rpm(rpm, run.duration_s), "rpm"
     if speed_table is not None:
         from workbench.sampling import read_speed_table
@@ -334,6 +330,13 @@ def track_run(
         run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
         rpm=rpm, speed_table=speed_table, chunk=chunk,
     )
+    if not angle.rpm_max / 60.0 < run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
+        given = {"rpm": f"--rpm {rpm}", "speed table": f"--speed-table {speed_table}"}.get(
+            speed_source, f"{source}: {speed_source}")
+        raise InputError(f"{given}: the speed reaches {angle.rpm_max:g} rpm, where order 1 "
+                         f"({angle.rpm_max / 60.0:g} Hz) lies above the run's Nyquist frequency "
+                         f"{run.rate_hz / 2.0:g} Hz; allowed: speeds below "
+                         f"{30.0 * run.rate_hz:g} rpm")
     log = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
     n_total = run.n_samples
 
