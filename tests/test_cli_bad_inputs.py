@@ -385,6 +385,13 @@ CASES = [
           r"^run\.wav: tacho channel 'tacho': no rising edges crossed the trigger band"),
     rcase("run-channel-unknown", good_run(), r"^run\.wav: --channel: channel 'vibraton' not "
           r"found; available: 1='vibration', 2='tacho'", args=("--channel", "vibraton")),
+    rcase("run-samples-per-rev-huge", good_run(), r"^--samples-per-rev 100000000: must be a "
+          r"whole number from 8 to 65536", args=("--samples-per-rev", "100000000")),
+    rcase("run-speed-table-above-nyquist", good_run(**{"speed.csv": "time_s,rpm\n0,1e308\n"
+                                                       "4,1e308\n"}),
+          r"^--speed-table speed\.csv: the speed reaches 1e\+308 rpm, where order 1 .* lies "
+          r"above the run's Nyquist frequency 1000 Hz; allowed: speeds below 60000 rpm",
+          args=("--speed-table", "speed.csv")),
     # ---------------------------------------------------------------- sidecars
     rcase("sidecar-unknown-key", good_run(**{"run.json": sidecar(tacho_chanel="tacho")}),
           r"^run\.json: unknown key 'tacho_chanel' \(did you mean 'tacho_channel'\?\); allowed: "
