@@ -153,6 +153,15 @@ def wav_bytes(data: np.ndarray, *, rate: int = RATE, tag: int = 3, bits: int = 3
     return b"RIFF" + struct.pack("<I", len(body)) + body
 
 
+def stalled_signals() -> np.ndarray:
+    """1200 rpm, down to standstill at 1.5 s, still until 2.5 s, back to 1200 rpm at 3 s."""
+    t = np.arange(N) / RATE
+    rpm = np.interp(t, [0, 1.0, 1.5, 2.5, 3.0, 4.0], [1200, 1200, 0, 0, 1200, 1200])
+    revs = np.cumsum(rpm) / 60.0 / RATE
+    return np.vstack([0.5 * np.sin(2 * np.pi * 3 * revs),
+                      np.where(revs % 1.0 < 0.5, 5.0, 0.0)])
+
+
 GOOD_WAV = wav_bytes(signals())
 SIDECAR = {"channels": [{"name": "vibration", "unit": "g", "sensitivity": 1.0},
                         {"name": "tacho", "unit": "V", "sensitivity": 1.0}],
@@ -383,6 +392,10 @@ CASES = [
     rcase("run-tacho-no-edges", good_run(**{"run.wav": wav_bytes(np.vstack([
         DATA[0], np.where(np.arange(N) < 600, 5.0, 0.0)]))}),
           r"^run\.wav: tacho channel 'tacho': no rising edges crossed the trigger band"),
+    rcase("run-machine-stalls", good_run(**{"run.wav": wav_bytes(stalled_signals())}),
+          r"^run\.wav: tacho channel 'tacho': the shaft stopped, slowed abruptly or reversed "
+          r".*: unusable seconds 1\.\d+-1\.\d+ s, 1\.\d+-2\.\d+ s; cut the record to the "
+          r"usable part"),
     rcase("run-channel-unknown", good_run(), r"^run\.wav: --channel: channel 'vibraton' not "
           r"found; available: 1='vibration', 2='tacho'", args=("--channel", "vibraton")),
     rcase("run-samples-per-rev-huge", good_run(), r"^--samples-per-rev 100000000: must be a "
