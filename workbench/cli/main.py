@@ -165,6 +165,10 @@ def cmd_foldmap(args) -> int:
     plan = read_plan(args.plan)
     plan.check_against(machine.lines())
     rate = _positive(args.rate, "--rate")
+    if args.png:  # refuse an existing figure (or a missing folder) before the work, not after
+        from workbench.runs import check_writable
+
+        check_writable(args.png, force=args.force)
     fmap = fold_map(machine, plan, rate)
     table = find_collisions(machine, plan, rate, fmap=fmap)
     if args.png:
