@@ -7,7 +7,8 @@ Two kinds of fuzzing, both reproducible:
   random numbers for the math (folding, filters, speed profiles, fold map, collisions, advice);
 * mutation fuzzing of run files: valid WAV, CSV, NPZ and MAT files (and JSON sidecars) altered by
   byte flips, truncation, header field corruption, inserted garbage and swapped chunks, each
-  fed to :func:`read_run`, and for a share of them read fully.
+  fed to :func:`read_run`, and for a share of them read fully; and mutated machine and plan
+  files fed to :func:`read_machine` and :func:`read_plan`.
 
 The rule in every case: the call returns, or raises a :class:`FoldlineError` subclass.  Any
 other exception (ValueError, struct.error, IndexError, MemoryError, ...) is a bug.
@@ -505,3 +506,81 @@ def test_mat_file_that_crashes_the_mat_reader_is_refused(tmp_path):
     with pytest.raises(RunFileError, match=r"damaged\.mat: cannot be read as a MATLAB \.mat "
                                            r"file \(the MAT reader stopped with status -11"):
         read_run(path, rate_hz=RATE)
+
+
+MACHINE_TEXT = """\
+[machine]
+name = "rig"
+reference = "input"
+
+[[shaft]]
+name = "input"
+
+[[shaft]]
+name = "output"
+
+[[gear_stage]]
+name = "g"
+driver = "input"
+driven = "output"
+driver_teeth = 20
+driven_teeth = 40
+sidebands = 1
+
+[[bearing]]
+name = "b"
+shaft = "output"
+rolling_elements = 9
+element_diameter = 7.9
+pitch_diameter = 39.0
+"""
+
+PLAN_TEXT = """\
+[speed]
+profile = "linear"
+start_rpm = 600.0
+end_rpm = 3000.0
+duration_s = 10.0
+
+[acquisition]
+rates_hz = [2560.0, 5120.0]
+filter = "butterworth"
+filter_order = 6
+cutoff = 0.39
+
+[[band]]
+name = "a"
+hz = [800.0, 1200.0]
+
+[[band]]
+name = "c"
+around = "g mesh"
+width_pct = 10.0
+
+[resampling]
+max_order = 50.0
+"""
+
+
+@pytest.mark.parametrize("kind", ["machine", "plan"])
+def test_mutated_machine_and_plan_files_raise_only_foldline_errors(kind, tmp_path):
+    from workbench.machine import read_machine
+    from workbench.sampling import read_plan
+
+    rng = np.random.default_rng({"machine": 16, "plan": 17}[kind])
+    base = (MACHINE_TEXT if kind == "machine" else PLAN_TEXT).encode()
+    read = read_machine if kind == "machine" else read_plan
+    loaded = 0
+    for n in range(400):
+        path = tmp_path / f"{kind}{n:03d}.toml"
+        path.write_bytes(mutate(rng, base, "toml"))
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                read(path)
+            loaded += 1
+        except FoldlineError:
+            pass
+        except Exception as exc:  # pragma: no cover
+            pytest.fail(f"mutated {kind} file #{n} raised {type(exc).__name__}: {exc}")
+    assert 0 < loaded < 400
