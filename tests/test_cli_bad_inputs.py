@@ -19,7 +19,7 @@ import struct
 import subprocess
 import sys
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -209,7 +209,6 @@ class Case:
     argv: list
     expect: str  # regex on the text after "foldline: error: "
     outputs: tuple = ()  # paths (relative) that must not exist afterwards
-    extra_dirs: tuple = field(default=())
 
 
 M, P = "m.toml", "p.toml"
