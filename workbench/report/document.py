@@ -405,7 +405,7 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         f"(order resolution {rs.order_resolution:g}), highest order {rs.max_order:g}.")
     if analysis is not None:
         ident = getattr(analysis, "identification", None)
-        n_alias = None if ident is None else int(len(ident.aliases))
+        n_alias = None if ident is None else len(set(ident.aliases["line"]))
         summary_items.append(
             f"Run <span class=\"mono\">{esc(Path(str(analysis.source)).name)}</span>: "
             f"{analysis.rate_hz:g} S/s, {analysis.duration_s:.1f} s, "
@@ -595,9 +595,10 @@ def _run_sections(analysis, lines, track_settings, sections):
     doubted = sa.doubted
     fig = plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=sa.pulse_times_s,
                            doubted_times_s=doubted.time_s, doubted_reasons=doubted.reason)
-    tacho_html = figure_svg(fig, key="tacho", caption="Reference shaft speed from the tacho, with "
-                            "the pulses and any pulse the tacho processing doubted.",
-                            alt="speed against time from the tacho")
+    source = getattr(analysis, "speed_source", "tacho")
+    tacho_html = figure_svg(fig, key="tacho", caption=f"Reference shaft speed (from the {source}), "
+                            "with the pulses and any pulse the tacho processing doubted.",
+                            alt=f"speed against time from the {source}")
     _close(fig)
     tacho_html += table_html(doubted.to_frame(), _DOUBT_COLUMNS, css_class="doubted",
                              caption="Doubted pulses", empty="no doubted pulses")
