@@ -141,6 +141,43 @@ def test_order_map_binned_by_rpm():
     assert m2.n_averaged.tolist() == [10, 10]
 
 
+def test_order_map_binned_while_streaming_equals_binned_afterwards():
+    # Averaging on power into rpm bins as blocks arrive must give the map binned afterwards
+    # (same definition, computed in another order).
+    spr = 32
+    r = np.arange(spr * 200) / spr
+    data = np.cos(2 * np.pi * 3.3 * r) * (1 + 0.002 * r)
+    rpm = 900 + 5 * r
+    edges = np.linspace(900.0, 1900.0, 7)
+    after = order_map(AngleSignal(data, spr, 0.0, rpm), revs_per_block=4, rpm_bins=edges)
+    acc = OrderAnalysis(revs_per_block=4, rpm_bins=edges)
+    for a in range(0, len(r), 1000):
+        acc.feed(AngleSignal(data[a:a + 1000], spr, a / spr, rpm[a:a + 1000]))
+    streamed = acc.order_map()
+    assert np.array_equal(streamed.n_averaged, after.n_averaged)
+    assert np.allclose(streamed.amplitude, after.amplitude, rtol=1e-12, equal_nan=True)
+    assert np.allclose(streamed.rpm, after.rpm)
+    with pytest.raises(InputError, match="bin edges"):
+        OrderAnalysis(revs_per_block=4, rpm_bins=5)
+    with pytest.raises(InputError, match="without rpm_bins"):
+        acc.order_map(rpm_bins=3)
+
+
+def test_rpm_frequency_map_binned_while_streaming():
+    # Binned rows are the power average of the unbinned rows whose speed falls in each bin.
+    rate = 1024.0
+    t = np.arange(int(8 * rate)) / rate
+    angle = ShaftAngle.from_speed_table([0.0, 8.0], [600.0, 1200.0])
+    x = 2.0 * np.sin(2 * np.pi * 100.0 * t) + np.sin(2 * np.pi * 37.0 * t * (1 + t / 16))
+    full = rpm_frequency_map(x, rate, angle, nperseg=512, max_hz=200.0)
+    edges = np.linspace(600.0, 1200.0, 4)
+    binned = rpm_frequency_map(x, rate, angle, nperseg=512, max_hz=200.0, rpm_bins=edges)
+    idx = np.searchsorted(edges, full.rpm, side="right") - 1
+    for b in range(3):
+        rows = full.amplitude[idx == b]
+        assert np.allclose(binned.amplitude[b], np.sqrt(np.mean(rows**2, axis=0)), rtol=1e-12)
+
+
 @settings(max_examples=15, deadline=None)
 @given(st.lists(st.integers(1, 4095), max_size=8))
 def test_accumulating_pieces_equals_one_pass(cuts):

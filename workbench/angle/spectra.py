@@ -327,7 +327,7 @@ class _Blocks:
     """Windowed, amplitude-corrected FFT of consecutive (overlapping) blocks of a stream."""
 
     def __init__(self, n: int, hop: int, window, scaling: str, n_keep: int | None,
-                 keep_rows: bool):
+                 keep_rows: bool, bin_edges: np.ndarray | None = None, bin_key=None):
         self.n, self.hop = n, hop
         self.w = _window(window, n)
         s1 = float(self.w.sum())
@@ -352,6 +352,14 @@ class _Blocks:
         self._buf = np.empty(0)
         self._aux_buf = np.empty(0)
         self._next = 0          # global index of self._buf[0]
+        # Streaming binning: rows are summed on power into bins of a key (e.g. rpm) instead of
+        # being kept, so a long record's map costs (bins x orders), not (blocks x orders).
+        self.bin_edges = None if bin_edges is None else np.asarray(bin_edges, dtype=np.float64)
+        self.bin_key = bin_key
+        if self.bin_edges is not None:
+            nb = len(self.bin_edges) - 1
+            self.bin_power = np.zeros((nb, self.n_keep))
+            self.bin_count = np.zeros(nb, dtype=np.int64)
 
     def feed(self, data: np.ndarray, aux: np.ndarray | None = None) -> None:
         buf = np.concatenate((self._buf, data)) if len(self._buf) else np.asarray(data)
@@ -361,19 +369,34 @@ class _Blocks:
         n_frames = 0 if len(buf) < n else (len(buf) - n) // hop + 1
         if n_frames:
             frames = sliding_window_view(buf, n)[::hop][:n_frames]
+            starts = np.arange(n_frames) * hop
+            centres = self._next + starts + (n - 1) / 2.0
+            frame_aux = None
+            if aux is not None:
+                lo = starts + (n - 1) // 2
+                hi = starts + n // 2
+                frame_aux = 0.5 * (abuf[lo] + abuf[hi])
+            bins = None
+            if self.bin_edges is not None:
+                key = self.bin_key(centres, frame_aux)
+                bins = np.searchsorted(self.bin_edges, key, side="right") - 1
+                bins[key == self.bin_edges[-1]] = len(self.bin_edges) - 2
+                bins[~np.isfinite(key)] = -1
             for b0 in range(0, n_frames, _FRAMES_PER_BATCH):
                 fr = frames[b0:b0 + _FRAMES_PER_BATCH] * self.w
                 amp = np.abs(sfft.rfft(fr, axis=1)[:, :self.n_keep])
                 amp *= self.scale
                 self.power += np.einsum("ij,ij->j", amp, amp)
-                if self.keep_rows:
+                if bins is not None:
+                    idx = bins[b0:b0 + _FRAMES_PER_BATCH]
+                    ok = (idx >= 0) & (idx < len(self.bin_count))
+                    np.add.at(self.bin_power, idx[ok], amp[ok] ** 2)
+                    np.add.at(self.bin_count, idx[ok], 1)
+                elif self.keep_rows:
                     self.rows.append(amp)
-            starts = np.arange(n_frames) * hop
-            self.centres.append(self._next + starts + (n - 1) / 2.0)
-            if aux is not None:
-                lo = starts + (n - 1) // 2
-                hi = starts + n // 2
-                self.aux.append(0.5 * (abuf[lo] + abuf[hi]))
+            self.centres.append(centres)
+            if frame_aux is not None:
+                self.aux.append(frame_aux)
             self.count += n_frames
         used = n_frames * hop
         self._buf = np.array(buf[used:]) if used < len(buf) else np.empty(0)
@@ -383,6 +406,13 @@ class _Blocks:
 
     def mean_amplitude(self) -> np.ndarray:
         return np.sqrt(self.power / max(self.count, 1))
+
+    def binned_rows(self) -> tuple[np.ndarray, np.ndarray]:
+        """(amplitude per bin, NaN where empty; blocks per bin) of a binned stream."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            amp = np.sqrt(self.bin_power / self.bin_count[:, None])
+        amp[self.bin_count == 0] = np.nan
+        return amp, self.bin_count.copy()
 
     def all_rows(self) -> np.ndarray:
         return np.concatenate(self.rows) if self.rows else np.empty((0, self.n_keep))
@@ -443,6 +473,10 @@ class OrderAnalysis:
         Keep bins up to this order only (saves memory in long maps).
     keep_map : bool
         Keep every block's spectrum (needed for :meth:`order_map`).
+    rpm_bins : array_like, optional
+        Increasing rpm bin edges: block spectra are averaged on power into these bins as they
+        arrive, instead of being kept one by one, so the map of a long record costs
+        ``bins x orders`` memory.  :meth:`order_map` then returns the binned map.
 
     Examples
     --------
@@ -460,8 +494,14 @@ class OrderAnalysis:
 
     def __init__(self, *, revs_per_block=None, order_resolution=None, window="hann",
                  overlap: float = 0.5, scaling: str = "peak", max_order: float | None = None,
-                 keep_map: bool = True):
+                 keep_map: bool = True, rpm_bins=None):
         self._overlap = _check_options(window, overlap, scaling)
+        self._stream_edges = None
+        if rpm_bins is not None:
+            if isinstance(rpm_bins, Integral) and not isinstance(rpm_bins, bool):
+                raise InputError("rpm_bins for a streamed map must be bin edges (rpm): the speed "
+                                 "range is not known before the stream ends")
+            self._stream_edges = _rpm_edges(rpm_bins, np.empty(0))
         self._window = window
         _window(window, 8)
         self._scaling = scaling
@@ -490,7 +530,9 @@ class OrderAnalysis:
             n_keep = None if self._max_order is None else \
                 int(math.floor(self._max_order * rpb + 1e-9)) + 1
             self._rpb = rpb
-            self._blocks = _Blocks(n, hop, self._window, self._scaling, n_keep, self._keep_map)
+            self._blocks = _Blocks(n, hop, self._window, self._scaling, n_keep, self._keep_map,
+                                   bin_edges=self._stream_edges,
+                                   bin_key=lambda centres, rpm: rpm)
             self._revs0 = sig.revs_start
             self._revs_next = sig.revs_start
         elif sig.samples_per_rev != self._spr or \
@@ -532,6 +574,15 @@ class OrderAnalysis:
         b = self._done()
         if not self._keep_map:
             raise InputError("this OrderAnalysis was made with keep_map=False; it holds no map")
+        if self._stream_edges is not None:
+            if rpm_bins is not None:
+                raise InputError("this OrderAnalysis bins its map as it streams (rpm_bins given "
+                                 "when it was made); call order_map() without rpm_bins")
+            amp, counts = b.binned_rows()
+            edges = self._stream_edges
+            return OrderMap(0.5 * (edges[:-1] + edges[1:]), np.arange(b.n_keep) / self._rpb, amp,
+                            np.full(len(counts), np.nan), counts, revs_per_block=self._rpb,
+                            window=str(self._window), scaling=self._scaling, enbw_bins=b.enbw)
         rows = b.all_rows()
         rpm = b.all_aux()
         revs = self._revs0 + b.all_centres() / self._spr
@@ -796,7 +847,7 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
 
 def rpm_frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
                       overlap: float = 0.5, window="hann", scaling: str = "peak",
-                      max_hz: float | None = None) -> RpmFrequencyMap:
+                      max_hz: float | None = None, rpm_bins=None) -> RpmFrequencyMap:
     """Spectra of fixed-length time blocks against speed (no angle resampling).
 
     Parameters
@@ -813,6 +864,10 @@ def rpm_frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 40
         As for :func:`order_spectrum`.
     max_hz : float, optional
         Highest frequency kept.
+    rpm_bins : int or array_like, optional
+        Average the blocks on power into rpm bins as they stream (a count of equal bins over
+        the shaft angle's speed range, or bin edges): memory ``bins x frequencies`` instead of
+        ``blocks x frequencies``; ``time_s`` is then NaN.
 
     Returns
     -------
@@ -836,11 +891,25 @@ def rpm_frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 40
             raise InputError(f"max_hz {max_hz!r} is not valid; allowed: > 0 Hz")
         n_keep = int(math.floor(max_hz * nperseg / rate_hz + 1e-9)) + 1
     hop = max(1, round(nperseg * (1 - overlap)))
-    blocks = _Blocks(nperseg, hop, window, scaling, n_keep, True)
+    edges = None
+    if rpm_bins is not None:
+        span = np.array([angle.rpm_min, angle.rpm_max])
+        edges = _rpm_edges(rpm_bins, span)
+    blocks = _Blocks(nperseg, hop, window, scaling, n_keep, True, bin_edges=edges,
+                     bin_key=lambda centres, _aux: angle.rpm_at(centres / rate_hz))
     for chunk in iter_chunks(x, "x"):
         blocks.feed(chunk)
     if blocks.count == 0:
         raise InputError(f"the record is shorter than one block of {nperseg} samples")
+    if edges is not None:
+        amp, counts = blocks.binned_rows()
+        hz = np.arange(blocks.n_keep) * rate_hz / nperseg
+        ok = counts > 0
+        if not ok.any():
+            raise InputError(f"no block centre lies inside the shaft angle's span "
+                             f"({angle.t_start_s:g} to {angle.t_end_s:g} s)")
+        return RpmFrequencyMap(0.5 * (edges[:-1] + edges[1:])[ok], hz, amp[ok],
+                               np.full(int(ok.sum()), np.nan), str(window), scaling, blocks.enbw)
     t = blocks.all_centres() / rate_hz
     rpm = angle.rpm_at(t)
     ok = np.isfinite(rpm)

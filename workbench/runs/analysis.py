@@ -42,6 +42,21 @@ MAX_SAMPLES_PER_REV = 1 << 16
 #: Revolutions per block when neither the caller nor a plan gives an order resolution.
 DEFAULT_REVS_PER_BLOCK = 16
 
+#: Most rows an order map or rpm-frequency map keeps; longer records are averaged (on power)
+#: into this many rpm bins while they stream, so a map's memory does not grow with the record.
+MAX_MAP_ROWS = 800
+
+#: Longest time block of the rpm-frequency map, samples (frequency bins = half of it).
+MAX_RF_NPERSEG = 8192
+
+
+def _map_bins(angle, n_blocks: float):
+    """rpm bin edges for a streamed map when a record has more blocks than MAX_MAP_ROWS."""
+    if n_blocks <= MAX_MAP_ROWS:
+        return None
+    lo, hi = float(angle.rpm_min), float(angle.rpm_max)
+    return np.linspace(lo, max(hi, lo * (1 + 1e-9) + 1e-9), MAX_MAP_ROWS + 1)
+
 
 @dataclass(frozen=True, eq=False)
 class RunAnalysis:
@@ -348,7 +363,9 @@ def track_run(
             if progress is not None:
                 progress(min(1.0, done / n_total))
 
-    acc = OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True)
+    # Blocks overlap by half (OrderAnalysis default): about 2 x revolutions / rpb of them.
+    acc = OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True,
+                        rpm_bins=_map_bins(angle, 2.0 * angle.revolutions / rpb))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", FoldlineWarning)
         for piece in iter_order_track(chunks, run.rate_hz, angle, samples_per_rev=spr, protect=protect):
@@ -375,9 +392,11 @@ def track_run(
         log.append(f"envelope order spectrum, band {envelope_hz[0]:g}-{envelope_hz[1]:g} Hz")
     rfm = None
     if rf_map:
-        nperseg = 1 << max(8, int(round(math.log2(max(run.rate_hz * 0.5, 256.0)))))
+        nperseg = min(MAX_RF_NPERSEG, 1 << max(8, int(round(math.log2(max(run.rate_hz * 0.5, 256.0))))))
         if run.n_samples >= 2 * nperseg:
-            rfm = rpm_frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg)
+            bins = _map_bins(angle, 2.0 * run.n_samples / nperseg)
+            rfm = rpm_frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
+                                    rpm_bins=bins)
     mach = _machine_for(run, machine)
     ident = None
     if mach is not None:

@@ -20,6 +20,8 @@ per physical unit).  :meth:`Run.channel` therefore returns ``raw / sensitivity``
 
 from __future__ import annotations
 
+import mmap
+
 import dataclasses
 import datetime as _dt
 import math
@@ -327,6 +329,22 @@ class Run:
             if stop == n:
                 break
             start += step
+            self._release_pages(start)
+
+    def _release_pages(self, before: int) -> None:
+        """Let go of the mapped file pages that hold samples before index ``before``.
+
+        Pages of a memory-mapped file stay in the process's resident memory once read; a
+        long record streamed chunk by chunk would otherwise end up wholly resident.  The pages
+        stay in the system's file cache, so reading them again costs no disk access.
+        """
+        mm = getattr(self.data, "_mmap", None)
+        if mm is None or not hasattr(mm, "madvise") or not hasattr(mmap, "MADV_DONTNEED"):
+            return
+        first = int(getattr(self.data, "offset", 0)) % mmap.ALLOCATIONGRANULARITY
+        end = (first + before * abs(int(self.data.strides[-1]))) // mmap.PAGESIZE * mmap.PAGESIZE
+        if end > 0:
+            mm.madvise(mmap.MADV_DONTNEED, 0, min(end, len(mm)))
 
     def with_log(self, entry: str | tuple, parameters: Mapping[str, Any] | None = None) -> Run:
         """A copy of the run with one more processing-log entry (the data is shared, not copied).
