@@ -39,7 +39,7 @@ import pandas as pd
 
 from workbench.errors import FoldlineWarning, InputError, RunFileError
 from workbench.runs.output import atomic_output, check_writable
-from workbench.runs.run import Channel, Run, full_scale
+from workbench.runs.run import Channel, Run, full_scale, release_pages
 from workbench.runs.sidecar import Sidecar, read_sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter, read_wav
 
@@ -100,6 +100,7 @@ def check_finite(data: np.ndarray, names: tuple[str, ...] | list[str], rate_hz: 
     n = data.shape[1]
     for a in range(0, n, _CHUNK):
         block = np.asarray(data[:, a:a + _CHUNK])
+        release_pages(data, a)
         bad = ~np.isfinite(block)
         if bad.any():
             cols = np.where(bad.any(axis=0))[0]

@@ -66,6 +66,30 @@ def _is_int(value: Any) -> bool:
     return isinstance(value, numbers.Integral) and not isinstance(value, bool)
 
 
+def release_pages(data: np.ndarray, before: int) -> None:
+    """Let go of the mapped file pages that hold samples before index ``before``.
+
+    Pages of a memory-mapped file stay in the process's resident memory once read; a long
+    record streamed chunk by chunk would otherwise end up wholly resident.  The pages stay in
+    the system's file cache, so reading them again costs no disk access.  Does nothing for
+    data that is not memory-mapped.
+
+    Parameters
+    ----------
+    data : ndarray, shape (n_channels, n_samples)
+        Run data (a view of a :class:`numpy.memmap` over an interleaved file, or any array).
+    before : int
+        Samples before this index may be released.
+    """
+    mm = getattr(data, "_mmap", None)
+    if mm is None or not hasattr(mm, "madvise") or not hasattr(mmap, "MADV_DONTNEED"):
+        return
+    first = int(getattr(data, "offset", 0)) % mmap.ALLOCATIONGRANULARITY
+    end = (first + int(before) * abs(int(data.strides[-1]))) // mmap.PAGESIZE * mmap.PAGESIZE
+    if end > 0:
+        mm.madvise(mmap.MADV_DONTNEED, 0, min(end, len(mm)))
+
+
 @dataclass(frozen=True)
 class Channel:
     """One channel of a run.
@@ -329,22 +353,9 @@ class Run:
             if stop == n:
                 break
             start += step
-            self._release_pages(start)
+            release_pages(self.data, start)
 
-    def _release_pages(self, before: int) -> None:
-        """Let go of the mapped file pages that hold samples before index ``before``.
 
-        Pages of a memory-mapped file stay in the process's resident memory once read; a
-        long record streamed chunk by chunk would otherwise end up wholly resident.  The pages
-        stay in the system's file cache, so reading them again costs no disk access.
-        """
-        mm = getattr(self.data, "_mmap", None)
-        if mm is None or not hasattr(mm, "madvise") or not hasattr(mmap, "MADV_DONTNEED"):
-            return
-        first = int(getattr(self.data, "offset", 0)) % mmap.ALLOCATIONGRANULARITY
-        end = (first + before * abs(int(self.data.strides[-1]))) // mmap.PAGESIZE * mmap.PAGESIZE
-        if end > 0:
-            mm.madvise(mmap.MADV_DONTNEED, 0, min(end, len(mm)))
 
     def with_log(self, entry: str | tuple, parameters: Mapping[str, Any] | None = None) -> Run:
         """A copy of the run with one more processing-log entry (the data is shared, not copied).
