@@ -210,16 +210,11 @@ def cmd_plan(args) -> int:
 
     machine = read_machine(args.machine)
     plan = read_plan(args.plan)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        advice = advise(machine, plan)
-    out = advice.to_dict()
+    advice = advise(machine, plan)  # warnings go to stderr through main()'s handler
     if args.json:
-        emit_json(out)
+        emit_json(advice.to_dict())
         return 0
     _print_advice(machine, plan, advice)
-    for w in caught:
-        print(f"warning: {w.message}", file=sys.stderr)
     return 0
 
 

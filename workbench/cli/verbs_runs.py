@@ -142,24 +142,22 @@ def cmd_simulate(args) -> int:
     if out.suffix.lower() != ".wav":
         raise InputError(f"--out {args.out}: the simulated run is written as WAV; give a name ending in .wav")
     machine_file = Path(args.machine) if Path(args.machine).resolve().parent == out.resolve().parent else None
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        path = simulate_to_wav(
-            machine,
-            plan,
-            rate,
-            out,
-            seed=args.seed,
-            duration_s=args.duration,
-            noise_db=args.noise_db,
-            resonance_hz=args.resonance_hz,
-            pulses_per_rev=args.pulses_per_rev,
-            missing_pulses=args.missing_pulses,
-            machine_file=machine_file,
-            tacho_rise_s=(4.0 / rate) if args.tacho_rise_ms is None else args.tacho_rise_ms / 1000.0,
-            sample_format=args.format,
-            force=args.force,
-        )
+    path = simulate_to_wav(
+        machine,
+        plan,
+        rate,
+        out,
+        seed=args.seed,
+        duration_s=args.duration,
+        noise_db=args.noise_db,
+        resonance_hz=args.resonance_hz,
+        pulses_per_rev=args.pulses_per_rev,
+        missing_pulses=args.missing_pulses,
+        machine_file=machine_file,
+        tacho_rise_s=(4.0 / rate) if args.tacho_rise_ms is None else args.tacho_rise_ms / 1000.0,
+        sample_format=args.format,
+        force=args.force,
+    )
     run = read_run(path)
     digest = hashlib.sha256(Path(path).read_bytes()).hexdigest()
     result = {
@@ -175,8 +173,6 @@ def cmd_simulate(args) -> int:
         "seed": args.seed,
         "sha256": digest,
     }
-    for w in caught:
-        _stderr(f"warning: {w.message}")
     if args.json:
         emit_json(result)
         return 0
@@ -196,16 +192,12 @@ def cmd_track(args) -> int:
     out = Path(args.out) if args.out else None
     if out is not None:
         _check_out_folder(out, force=args.force)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
-                             max_order=args.max_order, **opts)
+    analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
+                         max_order=args.max_order, **opts)
     files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
     result = analysis.to_dict()
     if files:
         result["files"] = [str(f) for f in files]
-    for w in caught:
-        _stderr(f"warning: {w.message}")
     if args.json:
         emit_json(result)
         return 0

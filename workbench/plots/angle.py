@@ -88,7 +88,6 @@ def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=
     if log:
         ax.set_yscale("log")
     if lines is not None:
-        ymax = float(np.nanmax(amp[sel])) if sel.any() else 1.0
         seen = set()
         for ln in lines:
             if ln.order is None or ln.order > top or ln.kind in ("sideband",):
@@ -103,7 +102,6 @@ def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=
             loc="upper right",
             ncol=2,
         )
-        del ymax
     if peaks is not None and len(peaks):
         p = peaks[peaks["order"] <= top]
         ax.plot(p["order"], p["amplitude"], "v", color="#D00000", ms=5)
