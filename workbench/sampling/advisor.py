@@ -280,8 +280,11 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
     top_hz = settings.max_order * settings.top_speed_rpm / 60.0
     rows, tables, notes = [], {}, []
 
+    grid = fold_map(lines, plan, float(rates[0]), n_speeds=n_speeds)
+
     def judge(rate):
-        fmap = fold_map(lines, plan, rate, n_speeds=n_speeds)
+        # The true frequencies on the speed grid do not depend on the rate: computed once.
+        fmap = fold_map(lines, plan, rate, rpm=grid.rpm, true_hz=grid.true_hz)
         table = find_collisions(lines, plan, rate, fmap=fmap)
         coll = table[table["kind"] == "collision"]
         worst = _worst_folded_residual(lines, plan, fmap)

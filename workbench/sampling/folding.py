@@ -50,9 +50,9 @@ def _fold(f_hz, rate_hz) -> tuple[np.ndarray, np.ndarray]:
     n = np.where(n * half > f, n - 1.0, n)
     n = np.where((n + 1.0) * half <= f, n + 1.0, n)
     rest = np.clip(f - n * half, 0.0, half)
-    odd = np.mod(n, 2.0) == 1.0
-    apparent = np.where(odd, half - rest, rest)
-    return apparent, n.astype(np.int64)
+    zone = n.astype(np.int64)
+    apparent = np.where((zone & 1).astype(bool), half - rest, rest)
+    return apparent, zone
 
 
 def fold(f_hz, rate_hz):

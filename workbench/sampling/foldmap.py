@@ -164,7 +164,7 @@ def _check_rate(rate_hz) -> float:
     return rate
 
 
-def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None) -> FoldMap:
+def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true_hz=None) -> FoldMap:
     """Evaluate every line across the plan's speed range after sampling at ``rate_hz``.
 
     Parameters
@@ -181,6 +181,10 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None) -> F
         Explicit speed grid, rpm (overrides ``n_speeds``).
     filter : AntiAliasFilter, optional
         Filter to use instead of the plan's.
+    true_hz : ndarray, shape (L, S), optional
+        True frequencies of the lines on this speed grid, when already known (they do not
+        depend on the rate: :func:`~workbench.sampling.advise` computes them once for all
+        candidate rates).
 
     Returns
     -------
@@ -202,8 +206,13 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None) -> F
         rpm = np.linspace(plan.speed.rpm_min, plan.speed.rpm_max, int(n_speeds))
     rpm = np.asarray(rpm, dtype=float)
     filt = plan.filter if filter is None else filter
-    orders, fixed, _ = _line_arrays(lines)
-    true = _true_hz(orders, fixed, rpm)
+    if true_hz is None:
+        orders, fixed, _ = _line_arrays(lines)
+        true = _true_hz(orders, fixed, rpm)
+    else:
+        true = np.asarray(true_hz, dtype=float)
+        if true.shape != (len(lines), len(rpm)):
+            raise InputError(f"true_hz has shape {true.shape}; expected (lines, speeds) = ({len(lines)}, {len(rpm)})")
     att = np.asarray(filt.attenuation_db(true, rate), dtype=float)
     return FoldMap(
         rpm=rpm,
@@ -381,15 +390,20 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
         own = getattr(band, "around", None)
         if own is not None:
             inside &= (names != own)[:, None]
-        if not inside.any():
+        rows_in = np.flatnonzero(inside.any(axis=1))
+        if not len(rows_in):
             continue
-        # Runs: contiguous in speed and constant in zone, per line.
-        same_zone = np.concatenate([np.zeros((len(lines), 1), bool), zone[:, 1:] == zone[:, :-1]], axis=1)
-        starts = inside & ~(np.concatenate([np.zeros((len(lines), 1), bool), inside[:, :-1]], axis=1) & same_zone)
-        stops = inside & ~(np.concatenate([inside[:, 1:], np.zeros((len(lines), 1), bool)], axis=1)
-                           & np.concatenate([same_zone[:, 1:], np.zeros((len(lines), 1), bool)], axis=1))
+        # Runs: contiguous in speed and constant in zone, per line (only lines that enter).
+        inside = inside[rows_in]
+        zr = zone[rows_in]
+        pad = np.zeros((len(rows_in), 1), bool)
+        same_zone = np.concatenate([pad, zr[:, 1:] == zr[:, :-1]], axis=1)
+        starts = inside & ~(np.concatenate([pad, inside[:, :-1]], axis=1) & same_zone)
+        stops = inside & ~(np.concatenate([inside[:, 1:], pad], axis=1)
+                           & np.concatenate([same_zone[:, 1:], pad], axis=1))
         li, s0 = np.nonzero(starts)
         li2, s1 = np.nonzero(stops)
+        li, li2 = rows_in[li], rows_in[li2]
         # np.nonzero walks row by row, so starts and stops pair up in order.
         r_lo, r_hi = rpm[s0].copy(), rpm[s1].copy()
         if refine:
