@@ -408,10 +408,15 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
         r_lo, r_hi = rpm[s0].copy(), rpm[s1].copy()
         if refine:
             edges = _Edges(orders, fixed, levels, band, lines, plan.filter, fmap.rate_hz, thr)
-            m = s0 > 0
-            r_lo[m] = edges.refine(li[m], rpm[s0[m]], rpm[s0[m] - 1])
-            m = s1 < n_grid - 1
-            r_hi[m] = edges.refine(li2[m], rpm[s1[m]], rpm[s1[m] + 1])
+            # Both ends of every run in one vectorised call.
+            m_lo, m_hi = s0 > 0, s1 < n_grid - 1
+            refined = edges.refine(
+                np.concatenate([li[m_lo], li2[m_hi]]),
+                np.concatenate([rpm[s0[m_lo]], rpm[s1[m_hi]]]),
+                np.concatenate([rpm[s0[m_lo] - 1], rpm[s1[m_hi] + 1]]),
+            )
+            k = int(m_lo.sum())
+            r_lo[m_lo], r_hi[m_hi] = refined[:k], refined[k:]
             ends = np.concatenate([r_lo, r_hi])
             idx2 = np.concatenate([li, li])
             f_end = edges.true_hz(idx2, ends)
