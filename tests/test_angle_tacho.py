@@ -302,6 +302,24 @@ def test_stop_is_refused_naming_the_unusable_seconds():
         tacho_angle(np.concatenate((first, second)))
 
 
+def test_pulses_lost_in_a_row_are_named_as_such():
+    # Three pulses lost from a steady 1200 rpm tacho: one interval of 4 pitches between regular
+    # pulses.  Refused (not bridged), and the message says what was seen: pulses missing, at
+    # the time of the last pulse before them, not a stop.  Common practice, no source.
+    times = np.delete(np.arange(0, 3.0, 0.05), [30, 31, 32])
+    with pytest.raises(TachoError, match=r"3 consecutive pulses missing at 1\.450 s \(an "
+                       r"interval of 4\.00 pitches.*unusable seconds 1\.450-1\.650 s") as info:
+        tacho_angle(times)
+    assert "stopped" not in str(info.value)
+    # One interval of 3.5 pitches is no whole number of pitches: no lost pulses explain it, so
+    # it is named as a stop, an abrupt slow-down or a reversal.
+    slowed = np.concatenate((np.arange(0, 1.5, 0.05), 1.625 + np.arange(0, 1.5, 0.05)))
+    with pytest.raises(TachoError, match=r"slowed abruptly.*unusable seconds 1\.450-1\.625 s") \
+            as info:
+        tacho_angle(slowed)
+    assert "consecutive" not in str(info.value)
+
+
 def test_min_rpm_refuses_slow_intervals():
     times = np.cumsum(np.concatenate((np.full(20, 0.05), np.full(20, 0.1))))  # 1200 -> 600 rpm
     tacho_angle(times)                         # gradual enough without a floor

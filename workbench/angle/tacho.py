@@ -828,6 +828,51 @@ def _unusable(message: str, t_a: np.ndarray, t_b: np.ndarray) -> TachoError:
                       "part (or give a speed table) and track each part on its own")
 
 
+def _lost_in_a_row(dt: np.ndarray, i: int, n_i: int, tolerance: float) -> bool:
+    """True when interval ``i`` is a whole number of pitches between regular neighbours.
+
+    The three intervals on each side must each be one pitch (within ``tolerance``) of the
+    median of those six, and interval ``i`` must be ``n_i`` of those pitches (within
+    ``tolerance``): the wheel turned at a steady speed and a few pulses were lost, unless
+    the shaft slowed to a fraction of its speed for exactly one interval and came back.
+    """
+    if i < 3 or i + 4 > len(dt) or not 3 <= n_i <= 6:
+        return False
+    side = np.concatenate((dt[i - 3:i], dt[i + 1:i + 4]))
+    pitch = float(np.median(side))
+    return bool(np.all(np.abs(side / pitch - 1.0) <= tolerance)
+                and abs(dt[i] / pitch - n_i) <= tolerance)
+
+
+def _too_long_error(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm) -> TachoError:
+    """The refusal for intervals longer than a lost pulse (or slower than ``min_rpm``).
+
+    Intervals of a few whole pitches between regular neighbours are named as pulses lost in a
+    row; the others as a stop, an abrupt slow-down or a reversal.
+    """
+    idx = np.flatnonzero(too_long)
+    lost = np.array([not slow[i] and _lost_in_a_row(dt, int(i), int(n[i]), tolerance)
+                     for i in idx], dtype=bool)
+    parts = []
+    if lost.any():
+        names = []
+        for i in idx[lost][:5]:
+            k = int(n[i]) - 1 - m_miss
+            what = (f"{k} consecutive pulses missing" if m_miss == 0 else
+                    f"at least {k} consecutive pulses missing besides the gap")
+            names.append(f"{what} at {tk[i]:.3f} s (an interval of {r[i]:.2f} pitches between "
+                         "regular pulses)")
+        more = f" and {lost.sum() - 5} more" if lost.sum() > 5 else ""
+        parts.append("; ".join(names) + more + ": more than one lost pulse in a row cannot be "
+                     "told from an abrupt slow-down, so the interval is not bridged (check the "
+                     "tacho sensor and the trigger level there)")
+    if (~lost).any():
+        parts.append("the shaft stopped, slowed abruptly or reversed (a pulse interval far "
+                     "longer than its neighbours predict" +
+                     (f", or slower than {min_rpm:g} rpm)" if min_rpm else ")"))
+    return _unusable("; ".join(parts), tk[idx], tk[idx + 1])
+
+
 def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int = 0,
                 method: str = "spline", tolerance: float = 0.3,
                 min_rpm: float | None = None) -> ShaftAngle:
@@ -861,7 +906,9 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
     TachoError
         Fewer than 3 pulses; the machine stopped, slowed abruptly or reversed (an interval
         longer than ``missing_pulses + 2`` pitches, or slower than ``min_rpm``), naming the
-        unusable seconds; a missing-tooth gap not found or not recurring once per revolution.
+        unusable seconds; two or more pulses lost in a row (an interval of 3 to 6 whole pitches
+        between regular pulses), named as such with the unusable seconds; a missing-tooth gap
+        not found or not recurring once per revolution.
         The whole record is refused rather than tracked in part: cut it to the usable span.
 
     Notes
@@ -950,14 +997,12 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         d_reasons.append(f"interval of {r[i]:.2f} pitches before this pulse is not a whole "
                          f"number of pitches; counted as {n[i]}")
     too_long = n > m_miss + 2
+    slow = np.zeros_like(too_long)
     if min_rpm is not None:
-        too_long |= (60.0 / (dt / n * n_pr)) < min_rpm
+        slow = (60.0 / (dt / n * n_pr)) < min_rpm
+        too_long |= slow
     if too_long.any():
-        i = np.flatnonzero(too_long)
-        raise _unusable("the shaft stopped, slowed abruptly or reversed (a pulse interval far "
-                        "longer than its neighbours predict" +
-                        (f", or slower than {min_rpm:g} rpm)" if min_rpm else ")"),
-                        tk[i], tk[i + 1])
+        raise _too_long_error(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm)
     c = np.concatenate(([0], np.cumsum(n)))
     if m_miss == 0:
         for i in np.flatnonzero(n >= 2):
