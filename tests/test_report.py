@@ -23,7 +23,7 @@ from workbench.cli.main import main
 from workbench.errors import FoldlineWarning, InputError, OutputExistsError
 from workbench.machine import machine_from_dict, read_machine
 from workbench.report import SAFETY_TEXT, build_report, write_report
-from workbench.report.command import parse_orders, track_options_from_args
+from workbench.cli.options import parse_orders, track_options_from_args
 from workbench.sampling import plan_from_dict, read_plan
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -44,7 +44,7 @@ def cmd_batch(args) -> int:
     """Track many runs with the same settings; summary as Parquet and CSV."""
     from workbench.batch.core import BatchSettings, run_batch
     from workbench.cli.main import emit_json
-    from workbench.report.command import track_options_from_args
+    from workbench.cli.options import track_options_from_args
 
     opts = track_options_from_args(args)
     cut_orders = opts.pop("cut_orders", None)
@@ -101,7 +101,7 @@ def _workers(text: str) -> int:
 
 def add_batch_verb(verb) -> None:
     """Register ``foldline batch`` on the parser's sub-command factory."""
-    from workbench.report.command import add_track_options
+    from workbench.cli.options import add_track_options
 
     p = verb("batch", "track many runs with the same settings on Dask; summary as Parquet and CSV")
     p.add_argument("runs", nargs="+", metavar="RUN", help="run files (on storage every worker can read)")

@@ -185,7 +185,7 @@ def cmd_simulate(args) -> int:
 def cmd_track(args) -> int:
     """Track a recorded run in the angle domain and print (and optionally write) the results."""
     from workbench.cli.main import emit_json
-    from workbench.report.command import track_options_from_args
+    from workbench.cli.options import track_options_from_args
     from workbench.runs.analysis import track_run
 
     opts = track_options_from_args(args)
@@ -336,7 +336,7 @@ def add_verbs(verb) -> None:
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_simulate)
 
-    from workbench.report.command import add_track_options
+    from workbench.cli.options import add_track_options
 
     p = verb("track", "order tracking of a recorded run: speed, order spectrum, peaks, maps, aliases")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")

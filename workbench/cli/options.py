@@ -1,0 +1,75 @@
+"""Command-line options shared by the verbs that track runs (``track``, ``report``, ``batch``)."""
+
+from __future__ import annotations
+
+from workbench.errors import InputError
+
+__all__ = ["add_track_options", "track_options_from_args", "parse_orders"]
+
+
+def parse_orders(text: str, name: str) -> tuple:
+    """``"1,29,4.95"`` -> (1.0, 29.0, 4.95); every order positive."""
+    try:
+        vals = tuple(float(v) for v in str(text).split(",") if v.strip())
+    except ValueError:
+        raise InputError(f"{name} {text!r}: give orders separated by commas, e.g. 1,29,4.95") from None
+    bad = [v for v in vals if not (v > 0 and v < float("inf"))]
+    if not vals or bad:
+        raise InputError(f"{name} {text!r}: every order must be a positive number")
+    return vals
+
+
+def _band(text: str, name: str) -> tuple:
+    try:
+        lo, hi = (float(v) for v in str(text).split(","))
+    except ValueError:
+        raise InputError(f"{name} {text!r}: give a band in Hz as LO,HI, e.g. 400,1000") from None
+    if not (0 <= lo < hi):
+        raise InputError(f"{name} {text!r}: need 0 <= LO < HI (Hz)")
+    return lo, hi
+
+
+def add_track_options(p) -> None:
+    """The options that say how a run is tracked (same meaning as ``foldline track``)."""
+    g = p.add_argument_group("tracking")
+    g.add_argument("--channel", metavar="CH", help="vibration channel: 1-based index or name")
+    g.add_argument("--tacho", metavar="CH", help="tacho channel: 1-based index or name")
+    g.add_argument("--pulses-per-rev", type=int, metavar="N",
+                   help="tacho tooth positions per rev, missing ones included")
+    g.add_argument("--missing-pulses", type=int, metavar="M", help="missing teeth of the tacho wheel")
+    speed = g.add_mutually_exclusive_group()
+    speed.add_argument("--rpm", type=float, metavar="RPM", help="constant speed in place of a tacho")
+    speed.add_argument("--speed-table", metavar="CSV", help="CSV time_s,rpm in place of a tacho")
+    g.add_argument("--rate", type=float, metavar="HZ", help="sample rate where the file has none")
+    g.add_argument("--samples-per-rev", type=int, metavar="N", help="angle-domain samples per rev")
+    g.add_argument("--revs-per-block", type=float, metavar="N", help="revolutions per FFT block")
+    g.add_argument("--envelope", metavar="LO,HI", help="envelope order spectrum of this band, Hz")
+    g.add_argument("--cut-orders", metavar="O1,O2", help="orders to cut against speed")
+    g.add_argument("--cut-bandwidth", type=float, metavar="ORDERS", help="width of each order cut")
+
+
+def track_options_from_args(args) -> dict:
+    """``track_run`` keyword options from the parsed tracking options (None left out)."""
+    opts = {
+        "channel": _channel(args.channel),
+        "tacho": _channel(args.tacho),
+        "pulses_per_rev": args.pulses_per_rev,
+        "missing_pulses": args.missing_pulses,
+        "rpm": args.rpm,
+        "speed_table": args.speed_table,
+        "rate_hz": args.rate,
+        "samples_per_rev": args.samples_per_rev,
+        "revs_per_block": args.revs_per_block,
+        "envelope_hz": None if args.envelope is None else _band(args.envelope, "--envelope"),
+        "cut_orders": None if args.cut_orders is None else parse_orders(args.cut_orders, "--cut-orders"),
+        "cut_bandwidth_orders": args.cut_bandwidth,
+    }
+    return {k: v for k, v in opts.items() if v is not None}
+
+
+def _channel(text):
+    """A channel as given: a 1-based index (digits) becomes an int, a name stays text."""
+    if text is None:
+        return None
+    s = str(text).strip()
+    return int(s) if s.isdigit() else s
