@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 from workbench.angle import DoubtedPulses, ShaftAngle, detect_pulses, tacho_angle
-from workbench.errors import TachoError
+from workbench.errors import FoldlineWarning, TachoError
 
 RATE = 50_000.0
 TAU = 100e-6  # edge rise time, s
@@ -114,32 +114,60 @@ def test_clean_runup_speed_is_exact(ppr):
 def test_noisy_tacho_at_20_db_once_per_rev():
     rng = np.random.default_rng(20)
     x, _ = tacho_signal(RUNUP, 10.0, 1, snr_db=20.0, rng=rng)
-    angle = process(x, 1)
+    # The edge jitter (a few us) would reach the speed at up to 0.02 % RMS: the pulse times
+    # are smoothed, and the user is told.
+    with pytest.warns(FoldlineWarning, match="noisy.*smoothed"):
+        angle = process(x, 1)
     assert speed_error(angle, RUNUP) < SPEED_RTOL
     # Noise at 20 dB does not reach the trigger band: no pulse is doubted.
     assert len(angle.doubted) == 0
 
 
-@pytest.mark.xfail(strict=True, reason="known: pulse-time jitter from tacho noise reaches the "
-                   "speed unsmoothed and unflagged (0.1-0.2 % at 10 dB, once per rev)")
 def test_noisy_tacho_at_10_db_once_per_rev():
+    # Interpolating the pulse times left the speed off by 0.16 % here; smoothed, it is within
+    # 0.1 % (0.014 % measured).  A refusal naming the unusable seconds would also meet the
+    # requirement, but this record is usable, so it must be processed.
     rng = np.random.default_rng(10)
     x, _ = tacho_signal(RUNUP, 10.0, 1, snr_db=10.0, rng=rng)
-    try:
+    with pytest.warns(FoldlineWarning, match=r"timing jitter about [\d.]+ us RMS.*smoothed"):
         angle = process(x, 1)
-    except TachoError as exc:
-        assert unusable_spans(str(exc))
-        return
     assert speed_error(angle, RUNUP) < SPEED_RTOL
+    assert angle.timing.smoothed
+    # The speed uncertainty it reports (coverage factor 3) covers the error it makes.
+    assert speed_error(angle, RUNUP) < 3 * angle.timing.speed_uncertainty_max
 
 
-@pytest.mark.xfail(strict=True, reason="known: with 30 pulses per rev the edge jitter of a "
-                   "20 dB tacho gives a speed off by about 2 % between pulses, unflagged")
 def test_noisy_tacho_at_20_db_thirty_per_rev():
+    # With 30 pulses per rev the same edge jitter is a larger share of a pulse interval: the
+    # interpolated speed was off by 2.7 % between pulses; smoothed, within 0.1 % (0.06 %).
     rng = np.random.default_rng(21)
     x, _ = tacho_signal(RUNUP, 10.0, 30, snr_db=20.0, rng=rng)
-    angle = process(x, 30)
-    assert speed_error(angle, RUNUP) < SPEED_RTOL or len(angle.doubted) > 0
+    with pytest.warns(FoldlineWarning, match=r"timing jitter about [\d.]+ us RMS.*smoothed"):
+        angle = process(x, 30)
+    assert speed_error(angle, RUNUP) < SPEED_RTOL
+    assert angle.timing.smoothed
+    assert speed_error(angle, RUNUP) < 3 * angle.timing.speed_uncertainty_max
+    # Whatever is left out at the ends of the record is listed, and is a few pulses only.
+    left = [r for r in angle.doubted.reason if "left out" in r]
+    assert len(left) == len(angle.doubted)
+    assert angle.t_end_s - angle.t_start_s > 9.9
+
+
+def test_noisy_tacho_at_10_db_thirty_per_rev_with_lost_pulses():
+    # 10 dB noise and 2 % lost pulses together: the noise triggers are removed, every lost
+    # tooth is listed at the time its edge was due, and the smoothed speed is within 0.1 %.
+    rng = np.random.default_rng(12)
+    n_teeth = int(RUNUP.revs_at(10.0) * 30)
+    missing = np.sort(rng.choice(np.arange(30, n_teeth - 30, 3), n_teeth // 50, replace=False))
+    x, _ = tacho_signal(RUNUP, 10.0, 30, missing_teeth=missing, snr_db=10.0, rng=rng)
+    with pytest.warns(FoldlineWarning, match="smoothed"):
+        angle = process(x, 30)
+    assert speed_error(angle, RUNUP) < SPEED_RTOL
+    due = np.array([edge_time(RUNUP, k, 30, 10.0) for k in missing])
+    lost = angle.doubted.time_s[[r.startswith("missing pulse") for r in angle.doubted.reason]]
+    assert len(lost) == len(missing)
+    pitch = 60.0 / (RUNUP.rpm_at(due) * 30)
+    assert np.all(np.abs(lost - due) < 0.1 * pitch)
 
 
 def test_noise_triggers_are_removed_and_listed_at_10_db():
@@ -147,7 +175,8 @@ def test_noise_triggers_are_removed_and_listed_at_10_db():
     # listed, and the revolution count stays the truth's (no pulse swallowed or added).
     rng = np.random.default_rng(10)
     x, _ = tacho_signal(RUNUP, 10.0, 1, snr_db=10.0, rng=rng)
-    angle = process(x, 1)
+    with pytest.warns(FoldlineWarning, match="smoothed"):
+        angle = process(x, 1)
     reasons = list(angle.doubted.reason)
     assert reasons and all(r.startswith("extra pulse removed") for r in reasons)
     truth_revs = RUNUP.revs_at(angle.t_end_s) - RUNUP.revs_at(angle.t_start_s)

@@ -3,9 +3,11 @@
 A tacho channel gives one voltage pulse per tooth (or per reflective mark) passing a sensor.
 :func:`detect_pulses` (or the streaming :class:`PulseDetector`) turns the channel into pulse
 times with a Schmitt trigger and sub-sample interpolation; :func:`tacho_angle` assigns each pulse
-its shaft angle (handling missing-tooth wheels, double triggers, glitches and lost pulses) and
-fits a smooth angle curve through them, a :class:`ShaftAngle`.  ``ShaftAngle.from_rpm`` and
-``ShaftAngle.from_speed_table`` stand in for a tacho when the speed is known instead.
+its shaft angle (handling missing-tooth wheels, double triggers, glitches and lost pulses),
+estimates the pulse timing jitter (smoothing the pulse times when it would reach the speed, see
+:class:`PulseTiming`) and fits a smooth angle curve through them, a :class:`ShaftAngle`.
+``ShaftAngle.from_rpm`` and ``ShaftAngle.from_speed_table`` stand in for a tacho when the speed
+is known instead.
 
 Conventions: times in seconds from the first sample of the record (sample ``n`` is at
 ``n / rate_hz``), shaft angle in revolutions, speed in rpm at the user's edge.
@@ -13,22 +15,26 @@ Conventions: times in seconds from the first sample of the record (sample ``n`` 
 
 from __future__ import annotations
 
+import functools
 import math
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy.interpolate import CubicSpline
+from scipy.linalg import solveh_banded
 
 from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
                                      positive_int, positive_rate)
-from workbench.errors import InputError, TachoError
+from workbench.errors import FoldlineWarning, InputError, TachoError
 
 __all__ = [
     "PulseDetector",
     "detect_pulses",
     "DoubtedPulses",
+    "PulseTiming",
     "ShaftAngle",
     "tacho_angle",
     "FIT_METHODS",
@@ -423,7 +429,8 @@ class ShaftAngle:
     Parameters
     ----------
     pulse_times_s : array_like, shape (n,)
-        Times (s) of the kept pulses, strictly increasing (n >= 2).
+        Times (s) of the kept pulses, strictly increasing (n >= 2); from :func:`tacho_angle`
+        with a noisy tacho (``timing.smoothed``), the smoothed pulse times.
     pulse_revs : array_like, shape (n,)
         Shaft angle (revolutions) of each pulse, strictly increasing.
     doubted : DoubtedPulses
@@ -434,6 +441,9 @@ class ShaftAngle:
         through that pulse and the next two (Fyfe & Munck 1997); ``"constant speed"`` (two
         points, straight line) and ``"speed table"`` (integrated piecewise-linear speed) come
         from the constructors.
+    timing : PulseTiming or None
+        From :func:`tacho_angle`: the estimated pulse timing jitter, whether the pulse times
+        were smoothed, and the speed uncertainty left; None for a known speed.
 
     Notes
     -----
@@ -468,6 +478,7 @@ class ShaftAngle:
     pulse_revs: np.ndarray
     doubted: DoubtedPulses = field(default_factory=DoubtedPulses.empty)
     method: str = "spline"
+    timing: PulseTiming | None = None
     _coef: Any = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
@@ -490,6 +501,8 @@ class ShaftAngle:
                                  f"({a[i + 1]!r}) does not exceed entry {i} ({a[i]!r})")
         if not isinstance(self.doubted, DoubtedPulses):
             raise InputError("ShaftAngle: doubted must be a DoubtedPulses table")
+        if self.timing is not None and not isinstance(self.timing, PulseTiming):
+            raise InputError("ShaftAngle: timing must be a PulseTiming or None")
         methods = FIT_METHODS + ("constant speed", "speed table")
         if self.method not in methods:
             raise InputError(f"ShaftAngle: method {self.method!r} is not valid; allowed: "
@@ -578,7 +591,7 @@ class ShaftAngle:
         coef[2] = 0.5 * np.diff(f) / h
         revs = np.concatenate(([0.0], np.cumsum(0.5 * (f[:-1] + f[1:]) * h)))
         coef[0] = revs[:-1]
-        return cls(t, revs, DoubtedPulses.empty(), "speed table", coef)
+        return cls(t, revs, DoubtedPulses.empty(), "speed table", _coef=coef)
 
     # ---- evaluation ------------------------------------------------------------------------
     @property
@@ -759,6 +772,453 @@ def _hermite_tables(step: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 # --------------------------------------------------------------------------------------------
+# Pulse timing jitter: estimate, and smoothing when it would reach the speed
+# --------------------------------------------------------------------------------------------
+
+# Orders of the divided differences whose robust scale estimates the jitter; the smallest of
+# the three is kept, so a genuine speed variation (which shrinks with the order, while white
+# jitter does not) is not taken for jitter.
+_JITTER_ORDERS = (4, 6, 8)
+# Pulses per block of the local jitter estimate (and of the residual check).
+_JITTER_BLOCK = 256
+# Order of the differences the smoothing penalises: cubics in angle are left untouched.
+_SMOOTH_ORDER = 4
+# Where the jitter would leave an RMS relative speed error above the clean-tacho target of
+# 0.01 % anywhere, the pulse times are smoothed, down to 0.005 % where they need it.
+_SMOOTH_ABOVE = 1e-4
+_SPEED_RMS_TARGET = 5e-5
+# Refuse where the expanded speed uncertainty (coverage factor 3) exceeds 0.1 %.
+_SPEED_LIMIT = 1e-3
+_COVERAGE = 3.0
+# Penalty weights stay inside [_LAMBDA_MIN, _LAMBDA_MAX] (pitch units); the smallest keeps
+# the system definite at pitch positions without a pulse, the largest (a span of about 100
+# pulses) keeps it well conditioned.
+_LAMBDA_MIN = 1e-6
+_LAMBDA_MAX = 1e12
+# Noise replicates propagated through the smoothing (fixed seed: the result is repeatable).
+_MC_REPLICATES = 24
+_MC_SEED = 1729
+# Residuals more than this times the scale of pure-noise residuals: the smoothing removed
+# part of the speed itself there, and is reduced (by _LAMBDA_STEP) in that block.
+_RESIDUAL_RATIO_MAX = 1.5
+_LAMBDA_STEP = 40.0
+# At most this fraction of the record at each end may be left out where only the one-sided
+# smoothing there leaves the speed too uncertain; more is refused.
+_END_FRACTION = 0.05
+# MAD to standard deviation for Gaussian data (Hampel 1974).
+_MAD_TO_SIGMA = 1.482602218505602
+
+
+@dataclass(frozen=True)
+class PulseTiming:
+    """How precisely the tacho pulse times fix the speed, as :func:`tacho_angle` found it.
+
+    Attributes
+    ----------
+    jitter_s : float
+        Estimated RMS timing jitter of the pulse edges (s), the median over the record; NaN
+        when there were too few pulses (fewer than 12) to estimate it.
+    speed_uncertainty : float
+        Estimated RMS relative error the jitter leaves in the fitted speed (a fraction:
+        ``1e-4`` is 0.01 %), over the record.
+    speed_uncertainty_max : float
+        Largest local value of that RMS error (a fraction), averaged over about 3 pulses
+        (largest at the ends of the record, where a smoothing sees one side only).
+    smoothing_s : float
+        0 when the fit interpolates the pulse times; when they were smoothed, the median
+        period (s) of the speed variation the smoothing halves: faster speed changes are
+        rounded off.
+    raw_speed_uncertainty : float
+        The RMS relative speed error interpolating the pulse times would have left (a
+        fraction); equals ``speed_uncertainty`` when they were not smoothed.
+
+    Notes
+    -----
+    The uncertainties cover the timing jitter only; the rounding-off of speed changes faster
+    than ``smoothing_s`` comes on top where the speed changes that fast.  How they are found
+    (and the references) is in :func:`tacho_angle`.
+
+    Examples
+    --------
+    >>> timing = PulseTiming(jitter_s=2e-6, speed_uncertainty=1e-5, speed_uncertainty_max=3e-5)
+    >>> timing.smoothed, timing.describe().split(";")[0]
+    (False, 'pulse timing jitter 2 us RMS')
+    """
+
+    jitter_s: float
+    speed_uncertainty: float
+    speed_uncertainty_max: float
+    smoothing_s: float = 0.0
+    raw_speed_uncertainty: float = math.nan
+
+    @property
+    def smoothed(self) -> bool:
+        """True when the pulse times were smoothed before the fit."""
+        return self.smoothing_s > 0
+
+    def describe(self) -> str:
+        """One line for a log: the jitter, whether the times were smoothed, the uncertainty."""
+        if not math.isfinite(self.jitter_s):
+            return "pulse timing jitter not estimated (too few pulses)"
+        text = (f"pulse timing jitter {_duration(self.jitter_s)} RMS; speed uncertainty "
+                f"{100 * self.speed_uncertainty:.2g} % RMS, at most "
+                f"{100 * self.speed_uncertainty_max:.2g} % locally "
+                f"({100 * _COVERAGE * self.speed_uncertainty_max:.2g} % with coverage factor "
+                f"{_COVERAGE:g})")
+        if self.smoothed:
+            text += (f"; pulse times smoothed (interpolated: "
+                     f"{100 * self.raw_speed_uncertainty:.2g} % RMS), speed changes faster "
+                     f"than about {_duration(self.smoothing_s)} rounded off")
+        return text
+
+
+def _duration(seconds: float) -> str:
+    """A short duration for a message: '3.8 us', '1.93 ms', '0.2 s'."""
+    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("us", 1e-6)):
+        if seconds >= scale:
+            return f"{seconds / scale:.3g} {unit}"
+    return f"{seconds * 1e9:.3g} ns"
+
+
+def _divided_difference_scores(counts: np.ndarray, t: np.ndarray, order: int) -> np.ndarray:
+    """Divided differences of ``t`` over ``order + 1`` consecutive pulses, scaled to unit noise.
+
+    Each score is the ``order``-th divided difference of the pulse times against their pitch
+    counts divided by the root sum of squares of its weights, so independent timing errors
+    of standard deviation sigma give scores of standard deviation sigma, whatever the spacing
+    (lost pulses, a missing-tooth gap); a polynomial of degree below ``order`` gives 0.  On
+    evenly spaced pulses this is the plain ``order``-th difference over sqrt(C(2 order, order)).
+    """
+    y = t - t[0]
+    scores = np.diff(y, n=order) / math.sqrt(math.comb(2 * order, order))
+    step = np.diff(counts)
+    uneven = np.flatnonzero(np.ptp(sliding_window_view(step, order), axis=1) != 0)
+    if len(uneven):
+        m = order + 1
+        x = sliding_window_view(counts.astype(np.float64), m)[uneven]
+        yy = sliding_window_view(y, m)[uneven]
+        w = np.ones(x.shape)
+        for j in range(m):
+            for i in range(m):
+                if i != j:
+                    w[:, j] *= x[:, j] - x[:, i]
+        w = 1.0 / w
+        scores[uneven] = (w * yy).sum(axis=1) / np.sqrt((w * w).sum(axis=1))
+    return scores
+
+
+def _block_edges(n: int) -> np.ndarray:
+    """Edges (pulse indices) of the blocks of about _JITTER_BLOCK pulses."""
+    nb = max(1, int(round(n / _JITTER_BLOCK)))
+    return np.linspace(0, n, nb + 1).astype(np.int64)
+
+
+def _robust_scale(x: np.ndarray, axis=None):
+    """MAD about the median, scaled to the standard deviation of Gaussian data."""
+    med = np.median(x, axis=axis, keepdims=axis is not None)
+    return _MAD_TO_SIGMA * np.median(np.abs(x - med), axis=axis)
+
+
+def _jitter_by_block(counts: np.ndarray, t: np.ndarray, n_blocks: int
+                     ) -> tuple[np.ndarray, np.ndarray]:
+    """Robust jitter estimate (s) per block of pulses, the smallest over the orders.
+
+    Returns the block centres (pulse index) and the estimates.  White jitter gives the same
+    scale at every order; a genuine speed variation between pulses shrinks with the order (on
+    a smooth speed curve), so the smallest of the orders is the one least inflated by it.
+    """
+    sig = np.full(n_blocks, np.inf)
+    centres = np.zeros(n_blocks)
+    for order in _JITTER_ORDERS:
+        if len(t) < order + 4:
+            continue
+        s = _divided_difference_scores(counts, t, order)
+        size = len(s) // n_blocks
+        if size < 5:
+            continue
+        est = np.empty(n_blocks)
+        if n_blocks > 1:
+            est[:-1] = _robust_scale(s[:(n_blocks - 1) * size].reshape(n_blocks - 1, size), 1)
+        est[-1] = _robust_scale(s[(n_blocks - 1) * size:])
+        better = est < sig
+        sig = np.where(better, est, sig)
+        c = (np.arange(n_blocks) + 0.5) * size + 0.5 * order
+        c[-1] = 0.5 * ((n_blocks - 1) * size + len(s)) + 0.5 * order
+        centres = np.where(better, c, centres)
+    if not np.isfinite(sig).all():
+        return centres, np.full(n_blocks, np.nan)
+    return centres, sig
+
+
+@functools.lru_cache(maxsize=1)
+def _interpolant_speed_gain() -> float:
+    """RMS slope of the not-a-knot cubic spline through unit white noise on a unit grid.
+
+    Exact (the spline is linear in the data): the slope at a point is a weighted sum of the
+    data, its variance the sum of the squared weights; averaged over an interior interval.
+    """
+    n = 41
+    x = np.arange(n, dtype=np.float64)
+    spline = CubicSpline(x, np.eye(n), bc_type="not-a-knot")
+    w = spline(np.linspace(20.0, 21.0, 201)[:-1], 1)
+    return float(np.sqrt(np.mean(np.sum(w * w, axis=1))))
+
+
+@functools.lru_cache(maxsize=1)
+def _smoother_gain_table() -> tuple[np.ndarray, np.ndarray]:
+    """log10(lambda) and the RMS slope noise of the smoothing for unit white noise.
+
+    The smoothing acts in the interior like the filter ``1 / (1 + lambda (2 sin(w/2))^(2d))``
+    on a unit grid; the slope noise is ``sqrt((1/pi) int_0^pi w^2 H(w)^2 dw)`` (Parseval).
+    """
+    w = np.linspace(0.0, np.pi, 4001)
+    log_lam = np.arange(math.log10(_LAMBDA_MIN), math.log10(_LAMBDA_MAX) + 1e-9, 0.0625)
+    h = 1.0 / (1.0 + np.multiply.outer(10.0 ** log_lam,
+                                       (2 * np.sin(w / 2)) ** (2 * _SMOOTH_ORDER)))
+    f = w * w * h * h
+    gain = np.sqrt((f[:, 1:] + f[:, :-1]).sum(axis=1) * (0.5 * (w[1] - w[0])) / np.pi)
+    return log_lam, gain
+
+
+def _lambda_for_gain(gain: np.ndarray) -> np.ndarray:
+    """Penalty weight whose slope noise gain is ``gain`` (clipped to the table's range)."""
+    log_lam, g = _smoother_gain_table()
+    return 10.0 ** np.interp(-np.log(gain), -np.log(g), log_lam)
+
+
+def _half_power_period(lam: np.ndarray) -> np.ndarray:
+    """Period (pitches) of the variation the smoothing with weight ``lam`` halves."""
+    s = np.minimum(0.5 * lam ** (-1.0 / (2 * _SMOOTH_ORDER)), 1.0)
+    return 2 * np.pi / (2 * np.arcsin(s))
+
+
+def _penalty_bands(n_grid: int, lam_rows: np.ndarray) -> np.ndarray:
+    """Upper banded form of D' diag(lam_rows) D, D the differences of order _SMOOTH_ORDER."""
+    d = _SMOOTH_ORDER
+    dc = np.array([(-1) ** (d - i) * math.comb(d, i) for i in range(d + 1)], dtype=np.float64)
+    ab = np.zeros((d + 1, n_grid))
+    m = n_grid - d
+    for k in range(d + 1):
+        for a in range(d + 1 - k):
+            ab[d - k, a + k:a + k + m] += lam_rows * (dc[a] * dc[a + k])
+    return ab
+
+
+def _smooth_times(counts: np.ndarray, y: np.ndarray, lam_grid: np.ndarray) -> np.ndarray:
+    """Penalised least-squares smoothing of ``y`` (columns) against the pitch counts.
+
+    Minimises ``sum (y - z)^2 + sum lam (D^d z)^2`` over ``z`` on every pitch position from
+    the first count to the last (positions without a pulse carry no data, Eilers 2003); the
+    system is solved for the residual ``r = y - z``, which is small, so a long record (times
+    of thousands of seconds) loses no precision even with heavy smoothing.
+    """
+    d = _SMOOTH_ORDER
+    idx = counts - counts[0]
+    n_grid = int(idx[-1]) + 1
+    lam_rows = sliding_window_view(lam_grid, d + 1).mean(axis=1)
+    ab = _penalty_bands(n_grid, lam_rows)
+    ab[d, idx] += 1.0
+    if len(idx) < n_grid:   # fill positions without a pulse smoothly; any filling gives the
+        full = CubicSpline(idx.astype(np.float64), y)(np.arange(n_grid, dtype=np.float64))
+        full[idx] = y       # same z, a smooth one keeps the right-hand side small
+    else:
+        full = y
+    dc = np.array([(-1) ** (d - i) * math.comb(d, i) for i in range(d + 1)], dtype=np.float64)
+    m = n_grid - d
+    v = lam_rows[:, None] * sum(dc[i] * full[i:i + m] for i in range(d + 1))
+    rhs = np.zeros(full.shape)
+    for i in range(d + 1):
+        rhs[i:i + m] += dc[i] * v
+    resid = solveh_banded(ab, rhs, check_finite=False)
+    return y - resid[idx]
+
+
+def _speed_noise(counts: np.ndarray, z_noise: np.ndarray, pitch_s: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Relative speed error of the fit through noise replicates, at pulses and mid-intervals.
+
+    Returns the evaluation points (pitch counts) and the RMS over the replicates there.
+    """
+    c = counts.astype(np.float64)
+    x = np.sort(np.concatenate((c, 0.5 * (c[1:] + c[:-1]))))
+    slope = CubicSpline(c, z_noise, bc_type="not-a-knot")(x, 1)
+    rel = slope / np.interp(x, c, pitch_s)[:, None]
+    return x, np.sqrt(np.mean(rel * rel, axis=1))
+
+
+def _running_rms(u: np.ndarray, width: int) -> np.ndarray:
+    """RMS of ``u`` over a centred window of ``width`` points (shorter at the ends)."""
+    c = np.concatenate(([0.0], np.cumsum(u * u)))
+    i = np.arange(len(u))
+    lo = np.maximum(i - width // 2, 0)
+    hi = np.minimum(i + width // 2 + 1, len(u))
+    return np.sqrt((c[hi] - c[lo]) / (hi - lo))
+
+
+@dataclass(frozen=True)
+class _TimingResult:
+    """What :func:`_pulse_timing` found: the times to fit, the pulses kept, the timing."""
+
+    times: np.ndarray          # pulse times to fit (smoothed or not), all pulses
+    keep: slice                # pulses kept (the ends may be left out)
+    timing: PulseTiming
+    left_out: tuple            # (time_s, reason) for each end left out
+
+
+def _sample_grid_hint(t: np.ndarray) -> str:
+    """A hint when the pulse times fall on a regular grid: edges timed only to the sample.
+
+    A square tacho edge (no sample on the edge itself) is timed to the sample it falls on,
+    whatever the interpolation: the pulse times then differ by whole sample intervals, and
+    the jitter is up to half a sample.
+    """
+    d2 = np.abs(np.diff(t, n=2))
+    scale = float(np.max(np.abs(t)))
+    step = d2[d2 > 1e-9 * scale]
+    if len(step) < 10:
+        return ""
+    q = float(np.min(step))
+    k = d2 / q
+    if np.mean(np.abs(k - np.rint(k)) < 1e-3) < 0.99:
+        return ""
+    return (f"; the pulse times fall on a grid of {_duration(q)} (the tacho's sample interval, "
+            f"{1 / q:.6g} Hz?): its edges are timed only to the sample, so record the tacho at "
+            "a higher rate or through a slower (analogue) edge")
+
+
+def _pulses(k: int) -> str:
+    return f"{k} pulse" if k == 1 else f"{k} pulses"
+
+
+def _spans(bad: np.ndarray, t_eval: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Start and end times of the runs of ``bad``, widened to the neighbouring points."""
+    starts = np.flatnonzero(bad & ~np.concatenate(([False], bad[:-1])))
+    ends = np.flatnonzero(bad & ~np.concatenate((bad[1:], [False])))
+    return (t_eval[np.maximum(starts - 1, 0)],
+            t_eval[np.minimum(ends + 1, len(t_eval) - 1)])
+
+
+def _pulse_timing(t: np.ndarray, counts: np.ndarray) -> _TimingResult:
+    """Estimate the pulse timing jitter; smooth the pulse times when it would reach the speed.
+
+    Parameters
+    ----------
+    t : ndarray, shape (n,)
+        Kept pulse times (s).
+    counts : ndarray of int, shape (n,)
+        Pitch count of each pulse (strictly increasing).
+
+    Returns
+    -------
+    _TimingResult
+
+    Raises
+    ------
+    TachoError
+        Where even the smoothed speed's expanded uncertainty exceeds 0.1 %, naming the
+        seconds (short stretches at the very start or end are left out instead).  A
+        :class:`FoldlineWarning` says when the times were smoothed.
+    """
+    n = len(t)
+    whole = slice(0, n)
+    if n < _JITTER_ORDERS[0] + 8:
+        return _TimingResult(t, whole, PulseTiming(math.nan, math.nan, math.nan), ())
+    edges = _block_edges(n)
+    centres, sig_b = _jitter_by_block(counts, t, len(edges) - 1)
+    if not np.isfinite(sig_b).all():
+        return _TimingResult(t, whole, PulseTiming(math.nan, math.nan, math.nan), ())
+    block = np.clip(np.searchsorted(edges, np.arange(n), side="right") - 1, 0, len(sig_b) - 1)
+    sig = np.interp(np.arange(n), centres, sig_b)
+    pitch_int = np.diff(t) / np.diff(counts)              # seconds per pitch, per interval
+    pitch = np.interp(np.arange(n), np.arange(n - 1) + 0.5, pitch_int)
+    u_raw = _interpolant_speed_gain() * sig / pitch
+    jitter = float(np.median(sig_b))
+    raw_rms = float(np.sqrt(np.mean(u_raw * u_raw)))
+    if u_raw.max() <= _SMOOTH_ABOVE:
+        return _TimingResult(t, whole, PulseTiming(jitter, raw_rms, float(u_raw.max()), 0.0,
+                                                   raw_rms), ())
+
+    # Penalty weight per pulse: the least smoothing that brings the speed noise to the target.
+    lam = np.clip(_lambda_for_gain(_SPEED_RMS_TARGET * pitch / np.maximum(sig, 1e-300)),
+                  _LAMBDA_MIN, _LAMBDA_MAX)
+    lam = np.where(u_raw <= _SPEED_RMS_TARGET, _LAMBDA_MIN, lam)
+    c0 = counts - counts[0]
+    cf = c0.astype(np.float64)
+    # Remove a quadratic in the count (no change to the result: the penalty ignores it).
+    trend = np.polyval(np.polyfit(cf / cf[-1], t - t[0], 2), cf / cf[-1]) + t[0]
+    rng = np.random.default_rng(_MC_SEED)
+    noise = rng.standard_normal((n, _MC_REPLICATES)) * sig[:, None]
+    data = np.column_stack((t - trend, noise))
+    grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
+    factor = np.ones(len(sig_b))
+    for attempt in range(8):
+        lam_now = np.maximum(lam * factor[block], _LAMBDA_MIN)
+        z = _smooth_times(c0, data, np.interp(grid, cf, lam_now))
+        resid = data - z
+        # Residuals well above those the same smoothing leaves on pure jitter: it removed part
+        # of the speed itself there (the speed changes too fast); smooth less in that block.
+        ratio = np.array([_robust_scale(resid[a:b, 0]) /
+                          max(_robust_scale(resid[a:b, 1:].ravel()), 1e-300)
+                          for a, b in zip(edges[:-1], edges[1:])])
+        too_big = (ratio > _RESIDUAL_RATIO_MAX) & (factor > 0)
+        if not too_big.any():
+            break
+        factor = np.where(too_big, factor / _LAMBDA_STEP if attempt < 6 else 0.0, factor)
+    smooth_t = z[:, 0] + trend
+    x_eval, u = _speed_noise(c0, z[:, 1:], pitch)
+    u_local = _running_rms(u, 5)
+    t_eval = np.interp(x_eval, cf, smooth_t)
+    bad = _COVERAGE * u_local > _SPEED_LIMIT
+    keep, left_out = whole, []
+    if bad.any():
+        good = np.flatnonzero(~bad)
+        end_limit = max(2, int(_END_FRACTION * len(bad)))
+        if len(good) and not bad[good[0]:good[-1] + 1].any() and good[0] <= end_limit \
+                and len(bad) - 1 - good[-1] <= end_limit and good[-1] - good[0] >= 4:
+            # Only the very ends (where the smoothing sees one side only) are too uncertain:
+            # leave them out.  Evaluation point 2k is pulse k, 2k + 1 the middle after it.
+            k0, k1 = (int(good[0]) + 1) // 2, int(good[-1]) // 2
+            keep = slice(k0, k1 + 1)
+            why = (f"left out: the speed there is uncertain by up to "
+                   f"{100 * _COVERAGE * float(u_local[bad].max()):.3g} % (coverage factor "
+                   f"{_COVERAGE:g}; noisy tacho, smoothed from one side only)")
+            if k0 > 0:
+                left_out.append((float(t[0]), f"{_pulses(k0)} at the start of the record "
+                                 f"({t[0]:.3f}-{t[k0]:.3f} s) {why}"))
+            if k1 < n - 1:
+                left_out.append((float(t[k1 + 1]), f"{_pulses(n - 1 - k1)} at the end of the "
+                                 f"record ({t[k1]:.3f}-{t[-1]:.3f} s) {why}"))
+            u, u_local = u[2 * k0:2 * k1 + 1], u_local[2 * k0:2 * k1 + 1]
+        else:
+            t_a, t_b = _spans(bad, t_eval)
+            raise _unusable(
+                f"the tacho pulse times are too noisy (timing jitter about {_duration(jitter)} "
+                f"RMS, {100 * float(np.median(sig / pitch)):.2g} % of a pulse interval): even "
+                f"smoothed, the speed is uncertain by up to "
+                f"{100 * _COVERAGE * float(u_local.max()):.3g} % (coverage factor "
+                f"{_COVERAGE:g}; allowed: {100 * _SPEED_LIMIT:g} %){_sample_grid_hint(t)}",
+                t_a, t_b)
+    smoothed = lam_now > _LAMBDA_MIN
+    span = float(np.median(_half_power_period(lam_now[smoothed]) * pitch[smoothed])) \
+        if smoothed.any() else 0.0
+    timing = PulseTiming(jitter, float(np.sqrt(np.mean(u * u))), float(u_local.max()), span,
+                         raw_rms)
+    done = (f"so they were smoothed; speed changes faster than about {_duration(span)} are "
+            "rounded off" if smoothed.any() else "but the speed changes too fast to smooth them")
+    ends = "".join(f"; {reason}" for _, reason in left_out)
+    peak = (f", up to {_duration(float(sig_b.max()))} locally"
+            if sig_b.max() > 2 * jitter else "")
+    warnings.warn(
+        f"the tacho pulse times are noisy (timing jitter about {_duration(jitter)} RMS{peak}): "
+        f"interpolating them would leave the speed uncertain by {100 * raw_rms:.2g} % RMS "
+        f"(up to {100 * float(u_raw.max()):.2g} % locally), {done}; speed uncertainty now "
+        f"{100 * timing.speed_uncertainty:.2g} % RMS, at most "
+        f"{100 * _COVERAGE * timing.speed_uncertainty_max:.2g} % (coverage factor "
+        f"{_COVERAGE:g}){ends}{_sample_grid_hint(t)}", FoldlineWarning, stacklevel=3)
+    return _TimingResult(smooth_t, keep, timing, tuple(left_out))
+
+
+# --------------------------------------------------------------------------------------------
 # Pulse times -> shaft angle
 # --------------------------------------------------------------------------------------------
 
@@ -899,7 +1359,9 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
     Returns
     -------
     ShaftAngle
-        Angle fit; ``doubted`` lists removed, inferred and doubted pulses with reasons.
+        Angle fit; ``doubted`` lists removed, inferred and doubted pulses with reasons;
+        ``timing`` (a :class:`PulseTiming`) gives the estimated pulse timing jitter, whether
+        the pulse times were smoothed and the speed uncertainty left.
 
     Raises
     ------
@@ -908,8 +1370,17 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         longer than ``missing_pulses + 2`` pitches, or slower than ``min_rpm``), naming the
         unusable seconds; two or more pulses lost in a row (an interval of 3 to 6 whole pitches
         between regular pulses), named as such with the unusable seconds; a missing-tooth gap
-        not found or not recurring once per revolution.
+        not found or not recurring once per revolution; pulse times so noisy that even
+        smoothed the speed is uncertain by more than 0.1 % (coverage factor 3), naming the
+        jitter, the uncertainty and the unusable seconds.
         The whole record is refused rather than tracked in part: cut it to the usable span.
+
+    Warns
+    -----
+    FoldlineWarning
+        When the pulse times were smoothed: the estimated timing jitter, the speed
+        uncertainty interpolating them would have left and the one left after smoothing, the
+        shortest speed change kept, and any pulses left out at the ends of the record.
 
     Notes
     -----
@@ -931,12 +1402,55 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
     interval around it is long compared with its neighbours (or, on a missing-tooth wheel,
     when the gap stops recurring where expected).
 
+    **Timing jitter.**  Noise on the tacho moves each edge by a random amount; between pulses
+    an interpolating fit turns that into a speed error of about 1.57 x jitter / pulse interval
+    (RMS; the exact gain of the not-a-knot spline): up to 2.7 % between pulses in a run-up at
+    30 pulses per rev and 20 dB SNR (``tests/test_hard_runs.py``).
+    The jitter is estimated from the data, per block of 256 pulses: the ``k``-th divided
+    differences of the pulse times against their pitch counts (k = 4, 6, 8), each scaled to
+    unit noise gain, have the jitter as their standard deviation whatever the speed curve of
+    degree below ``k`` (difference-based variance estimation, Gasser et al. 1986, Hall et al.
+    1990); its robust scale (1.4826 x MAD, Hampel 1974) ignores the odd outlier, and the
+    smallest of the three orders is kept, so a genuine speed variation (which shrinks with the
+    order, white jitter does not) is not taken for jitter.
+
+    Where the jitter would leave an RMS speed error above 0.01 % (the clean-tacho target), the
+    pulse times are smoothed before the fit: a penalised least-squares fit of pulse time
+    against pitch count, penalising 4th differences (a Whittaker smoother, the discrete
+    analogue of a smoothing spline, Whittaker 1923, Reinsch 1967; pitch positions without a
+    pulse carry no data, Eilers 2003), so cubics in angle, and with them constant
+    acceleration, pass unchanged.  The penalty weight is set per pulse from the estimated
+    jitter, the least that brings the RMS speed error down to 0.005 %.  Angles stay whole
+    pitches and the fit stays monotone (the smoothed times increase).  Where the residuals are
+    well above those the same smoothing leaves on pure jitter (1.5 x, per block), it removed
+    part of the speed itself, and is reduced there.  The speed uncertainty left is found by
+    propagating simulated jitter of the estimated size through the same smoothing and fit
+    (24 replicates, fixed seed; Monte Carlo propagation, JCGM 101:2008).  Where it exceeds
+    0.1 % with coverage factor 3 (JCGM 100:2008), the record is refused naming those seconds,
+    except for a few pulses (at most 5 % of the record) at its very ends, where the smoothing
+    sees one side only: these are left out and listed in ``doubted``.  The uncertainty covers
+    the jitter; speed changes faster than ``timing.smoothing_s`` are rounded off as well.
+
     References
     ----------
     .. [1] K. R. Fyfe and E. D. S. Munck, "Analysis of computed order tracking", Mechanical
        Systems and Signal Processing 11(2):187-205, 1997.
     .. [2] J. R. Potter and M. Gribler, "Computed order tracking obsoletes older methods",
        SAE Technical Paper 891131, 1989.
+    .. [3] T. Gasser, L. Sroka and C. Jennen-Steinmetz, "Residual variance and residual pattern
+       in nonlinear regression", Biometrika 73(3):625-633, 1986.
+    .. [4] P. Hall, J. W. Kay and D. M. Titterington, "Asymptotically optimal difference-based
+       estimation of variance in nonparametric regression", Biometrika 77(3):521-528, 1990.
+    .. [5] F. R. Hampel, "The influence curve and its role in robust estimation", Journal of
+       the American Statistical Association 69(346):383-393, 1974.
+    .. [6] E. T. Whittaker, "On a new method of graduation", Proceedings of the Edinburgh
+       Mathematical Society 41:63-75, 1923.
+    .. [7] C. H. Reinsch, "Smoothing by spline functions", Numerische Mathematik 10:177-183,
+       1967.
+    .. [8] P. H. C. Eilers, "A perfect smoother", Analytical Chemistry 75(14):3631-3636, 2003.
+    .. [9] JCGM 101:2008, "Evaluation of measurement data - Supplement 1 to the 'Guide to the
+       expression of uncertainty in measurement' - Propagation of distributions using a Monte
+       Carlo method"; JCGM 100:2008 (GUM), coverage factor.
 
     Examples
     --------
@@ -1013,10 +1527,16 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         revs = c / n_pr
     else:
         revs = _gap_angles(tk, dt, r, n, c, n_pr, m_miss, d_times, d_reasons)
+    fit = _pulse_timing(tk, c)
+    for time_s, reason in fit.left_out:
+        d_times.append(time_s)
+        d_reasons.append(reason)
     order = np.argsort(d_times, kind="stable")
     doubted = DoubtedPulses(np.asarray(d_times, dtype=np.float64)[order],
                             tuple(d_reasons[i] for i in order))
-    angle = ShaftAngle(tk, revs, doubted, method)
+    # Smoothed times increase: their speed is within 0.1 % (coverage factor 3) of the truth.
+    t_fit, tk, revs = fit.times[fit.keep], tk[fit.keep], revs[fit.keep]
+    angle = ShaftAngle(t_fit, revs, doubted, method, fit.timing)
     if angle.rpm_min <= 0:
         bad = np.flatnonzero(angle._piece_lo <= 0)
         raise _unusable("the angle fitted through the pulses does not rise monotonically (the "
