@@ -487,7 +487,7 @@ def test_ends_too_uncertain_after_smoothing_are_left_out_and_listed():
     # pulses whose speed would be uncertain by more than 0.1 % are left out, listed as doubted
     # and named in the warning.
     times, speed = exact_pulse_times(10.0, 20.0, 3000, 60)
-    noisy = times + 20e-6 * np.random.default_rng(0).standard_normal(len(times))
+    noisy = times + 40e-6 * np.random.default_rng(0).standard_normal(len(times))
     with pytest.warns(FoldlineWarning, match=r"smoothed.*pulses? at the (start|end) of the "
                       r"record \([\d.]+-[\d.]+ s\) left out"):
         angle = tacho_angle(noisy, pulses_per_rev=60)
