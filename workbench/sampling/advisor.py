@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import FoldlineWarning, InputError
-from workbench.sampling.foldmap import find_collisions, fold_map
+from workbench.sampling.foldmap import MONOTONE_FILTERS, find_collisions, fold_map
 
 __all__ = ["AngleSettings", "Advice", "advise", "angle_settings", "STANDARD_RATES_HZ"]
 
@@ -259,8 +259,9 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
     rates_hz : sequence of float, optional
         Candidate rates (default: the plan's ``rates_hz``).
     n_speeds : int, optional
-        Speed grid size of each fold map (default 1000; interval edges are refined beyond the
-        grid, so the grid only sets the narrowest interval that cannot be missed).
+        Speed grid size of each fold map where the filter needs the grid method (Chebyshev,
+        elliptic, table; default 1000; edges are refined beyond the grid, so the grid only sets
+        the narrowest interval that cannot be missed).  Other filters are judged in closed form.
 
     Returns
     -------
@@ -280,14 +281,23 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
     top_hz = settings.max_order * settings.top_speed_rpm / 60.0
     rows, tables, notes = [], {}, []
 
-    grid = fold_map(lines, plan, float(rates[0]), n_speeds=n_speeds)
+    exact = plan.filter.kind in MONOTONE_FILTERS
+    grid = None if exact else fold_map(lines, plan, float(rates[0]), n_speeds=n_speeds)
 
     def judge(rate):
-        # The true frequencies on the speed grid do not depend on the rate: computed once.
-        fmap = fold_map(lines, plan, rate, rpm=grid.rpm, true_hz=grid.true_hz)
-        table = find_collisions(lines, plan, rate, fmap=fmap)
+        if exact:
+            # Closed form, no speed grid (see find_collisions): the threshold table, and the
+            # same intervals without a threshold for the worst folded residual.
+            table = find_collisions(lines, plan, rate, method="exact")
+            loose = find_collisions(lines, plan, rate, method="exact", threshold_db=-np.inf)
+            folded = loose["residual_db"][loose["kind"] == "collision"]
+            worst = float(folded.max()) if len(folded) else -np.inf
+        else:
+            # The true frequencies on the speed grid do not depend on the rate: computed once.
+            fmap = fold_map(lines, plan, rate, rpm=grid.rpm, true_hz=grid.true_hz)
+            table = find_collisions(lines, plan, rate, fmap=fmap, method="grid")
+            worst = _worst_folded_residual(lines, plan, fmap)
         coll = table[table["kind"] == "collision"]
-        worst = _worst_folded_residual(lines, plan, fmap)
         captures = plan.filter.usable_edge_hz(rate) >= top_hz
         return table, coll, worst, captures
 

@@ -11,6 +11,7 @@ by bracketed root finding where its residual meets the threshold), so they do no
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -19,7 +20,7 @@ import pandas as pd
 from workbench.errors import InputError
 from workbench.sampling.folding import fold
 
-__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS"]
+__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "MONOTONE_FILTERS"]
 
 #: Column order of the collision and overlap tables (the JSON contract's keys, then ``kind``).
 COLLISION_COLUMNS = (
@@ -338,7 +339,14 @@ class _Edges:
         return np.where(np.isnan(best), a, best)
 
 
-def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold_db=None, refine=True):
+#: Filter kinds whose attenuation never decreases with frequency: for them the residual of a
+#: line exceeds a threshold exactly below one frequency, and collisions are found in closed
+#: form (``method="exact"``).
+MONOTONE_FILTERS = ("none", "ideal", "butterworth", "bessel", "digital")
+
+
+def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold_db=None, refine=True,
+                    method="auto"):
     """Collisions and overlaps of lines with the plan's bands, as rpm intervals.
 
     Parameters
@@ -356,9 +364,17 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
     threshold_db : float, optional
         Residual above which a line counts (default: the plan's ``threshold_db``).
     refine : bool, optional
-        Refine interval edges beyond the grid (default True): exactly where the apparent
-        frequency meets a band limit or a zone edge, by bisection where the residual meets
-        the threshold.
+        Grid method: refine interval edges beyond the grid (default True): exactly where the
+        apparent frequency meets a band limit or a zone edge, by bracketed root finding where
+        the residual meets the threshold.
+    method : {"auto", "exact", "grid"}
+        ``"exact"`` solves the intervals in closed form, with no speed grid: within one Nyquist
+        zone a line's apparent frequency and a band's limits are linear in speed, and with a
+        filter whose attenuation never decreases (:data:`MONOTONE_FILTERS`) the residual is
+        above the threshold exactly below one frequency.  ``"grid"`` evaluates the fold map on
+        a speed grid and refines the edges; it serves every filter (Chebyshev and elliptic
+        ripple, tables) but cannot see an interval narrower than the grid step.  ``"auto"``
+        (default) is ``"exact"`` for the monotone filter kinds and ``"grid"`` otherwise.
 
     Returns
     -------
@@ -372,15 +388,30 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
     if hasattr(lines, "lines") and callable(lines.lines):
         lines = lines.lines()
     lines = tuple(lines)
+    if method not in ("auto", "exact", "grid"):
+        raise InputError(f"method = {method!r}: choose 'auto', 'exact' or 'grid'")
+    thr = plan.threshold_db if threshold_db is None else float(threshold_db)
+    exact_ok = plan.filter.kind in MONOTONE_FILTERS
+    if method == "exact" and not exact_ok:
+        raise InputError(
+            f"method 'exact' needs a filter whose attenuation never decreases ({', '.join(MONOTONE_FILTERS)}); "
+            f"the plan's filter is {plan.filter.kind!r}: use method 'grid'"
+        )
+    if method == "exact" or (method == "auto" and exact_ok):
+        if fmap is not None:
+            r0, r1 = float(fmap.rpm[0]), float(fmap.rpm[-1])
+            rate = fmap.rate_hz
+        else:
+            r0, r1 = float(plan.speed.rpm_min), float(plan.speed.rpm_max)
+            rate = _check_rate(rate_hz)
+        return _table(_exact_rows(lines, plan, rate, thr, r0, r1))
     if fmap is None:
         fmap = fold_map(lines, plan, rate_hz, n_speeds=n_speeds)
-    thr = plan.threshold_db if threshold_db is None else float(threshold_db)
     rpm = fmap.rpm
     n_grid = len(rpm)
     app, zone, res, true = fmap.apparent_hz, fmap.zone, fmap.residual_db, fmap.true_hz
     orders, fixed, levels = _line_arrays(lines)
     names = np.array([ln.name for ln in lines], dtype=object)
-    columns = list(COLLISION_COLUMNS) + ["kind", "true_hz_min", "true_hz_max"]
     frames = []
     for band in plan.bands:
         lo, hi = band.limits_hz(rpm, lines)
@@ -454,9 +485,144 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
                 "true_hz_max": rows["fmax"],
             }
         )
+    return _table(frames)
+
+
+_COLUMNS = list(COLLISION_COLUMNS) + ["kind", "true_hz_min", "true_hz_max"]
+
+
+def _table(frames):
+    """One DataFrame from per-band column dictionaries, highest residual first."""
     if not frames:
-        return pd.DataFrame({c: pd.Series(dtype=object if c in ("line", "band", "kind") else float) for c in columns})
-    data = {c: np.concatenate([f[c] for f in frames]) for c in columns}
+        return pd.DataFrame({c: pd.Series(dtype=object if c in ("line", "band", "kind") else float) for c in _COLUMNS})
+    data = {c: np.concatenate([f[c] for f in frames]) for c in _COLUMNS}
     # Highest residual first; ties by line name, then speed.
     order = np.lexsort((data["rpm_min"], data["line"].astype(str), -data["residual_db"]))
-    return pd.DataFrame({c: data[c][order] for c in columns})
+    return pd.DataFrame({c: data[c][order] for c in _COLUMNS})
+
+
+def _threshold_hz(filt, rate, allowed_db):
+    """Highest frequency below which the attenuation stays under ``allowed_db`` (per value).
+
+    For a filter whose attenuation never decreases, ``att(f) < A`` holds exactly for
+    ``f < f*(A)``: 0 where ``A <= att(0)``, infinity where the filter never reaches ``A``.
+    Found by bisection on log frequency, vectorised over the distinct values of ``A``.
+    """
+    allowed = np.asarray(allowed_db, dtype=float)
+    out = np.full(allowed.shape, np.inf)
+    at_dc = float(np.asarray(filt.attenuation_db(0.0, rate)))
+    out[allowed <= at_dc] = 0.0
+    todo = np.flatnonzero(allowed > at_dc)
+    if not len(todo):
+        return out
+    a = allowed[todo]
+    kind = filt.kind
+    if kind == "none":
+        return out  # never attenuates: every positive allowance holds at every frequency
+    if kind == "ideal":
+        out[todo] = filt.cutoff * rate  # 0 dB up to the cutoff, infinite above
+        return out
+    if kind == "butterworth":
+        # 10 log10(1 + (f / fc)^(2n)) < A  <=>  f < fc (10^(A/10) - 1)^(1/(2n))
+        out[todo] = filt.cutoff * rate * np.expm1(a * math.log(10.0) / 10.0) ** (0.5 / filt.order)
+        return out
+    lo = np.full(len(a), np.log(rate * 1e-9))
+    hi = np.full(len(a), np.log(rate * 1e9))
+    reach = np.minimum(np.asarray(filt.attenuation_db(np.exp(hi), rate), dtype=float), _FINITE_DB) >= a
+    for _ in range(80):
+        mid = 0.5 * (lo + hi)
+        below = np.asarray(filt.attenuation_db(np.exp(mid), rate), dtype=float) < a
+        lo = np.where(below, mid, lo)
+        hi = np.where(below, hi, mid)
+        if np.max(hi - lo) < 1e-13:
+            break
+    out[todo] = np.where(reach, np.exp(0.5 * (lo + hi)), np.inf)
+    return out
+
+
+def _exact_rows(lines, plan, rate, thr, r0, r1):
+    """Collision and overlap intervals in closed form (see :func:`find_collisions`)."""
+    if not plan.bands or not lines:
+        return []
+    orders, fixed, levels = _line_arrays(lines)
+    names = np.array([ln.name for ln in lines], dtype=object)
+    nyq = rate / 2.0
+    moving = ~np.isnan(orders)
+    o = np.where(moving, orders, 0.0)
+    # Segments: one per line and Nyquist zone crossed over [r0, r1].
+    f_lo = np.where(moving, o * r0 / 60.0, fixed)
+    f_hi = np.where(moving, o * r1 / 60.0, fixed)
+    _, z_lo = fold(f_lo, rate)
+    _, z_hi = fold(f_hi, rate)
+    counts = (z_hi - z_lo + 1).astype(int)
+    li = np.repeat(np.arange(len(lines)), counts)
+    z = np.repeat(z_lo, counts) + (np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts))
+    om = o[li]
+    mv = moving[li]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        seg_lo = np.where(mv, np.maximum(r0, z * nyq * 60.0 / om), r0)
+        seg_hi = np.where(mv, np.minimum(r1, (z + 1) * nyq * 60.0 / om), r1)
+    # Apparent frequency in the segment's zone: a1 * rpm + a0.
+    m = np.floor_divide(z, 2)
+    even = (z % 2) == 0
+    a1 = np.where(mv, np.where(even, om / 60.0, -om / 60.0), 0.0)
+    app_fixed = np.where(even, fixed[li] - m * rate, (m + 1) * rate - fixed[li])
+    a0 = np.where(mv, np.where(even, -m * rate, (m + 1) * rate), app_fixed)
+    # Residual above the threshold below one frequency (monotone filter): an upper speed bound.
+    allowed = levels - thr
+    uniq, inv = np.unique(allowed, return_inverse=True)
+    f_star = _threshold_hz(plan.filter, rate, uniq)[inv][li]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        res_hi = np.where(mv, 60.0 * f_star / om, np.where(fixed[li] < f_star, np.inf, -np.inf))
+    span = r1 - r0
+    rr = np.array([r0, r1]) if span > 0 else np.array([r0, r0 + 1.0])
+    frames = []
+    for band in plan.bands:
+        lo2, hi2 = band.limits_hz(rr, lines)
+        lo2 = np.broadcast_to(np.asarray(lo2, dtype=float), (2,))
+        hi2 = np.broadcast_to(np.asarray(hi2, dtype=float), (2,))
+        # Band limits are linear in speed (fixed Hz, fixed orders, or around a line).
+        l1 = (lo2[1] - lo2[0]) / (rr[1] - rr[0])
+        l0 = lo2[0] - l1 * rr[0]
+        h1 = (hi2[1] - hi2[0]) / (rr[1] - rr[0])
+        h0 = hi2[0] - h1 * rr[0]
+        p = seg_lo.copy()
+        q = np.minimum(seg_hi, res_hi)
+        for k1, k0 in ((a1 - l1, a0 - l0), (h1 - a1, h0 - a0)):
+            # k1 * rpm + k0 >= 0
+            with np.errstate(divide="ignore", invalid="ignore"):
+                root = -k0 / k1
+            p = np.where(k1 > 0, np.maximum(p, root), p)
+            q = np.where(k1 < 0, np.minimum(q, root), q)
+            q = np.where((k1 == 0) & (k0 < 0), -np.inf, q)
+        keep = (q > p) if span > 0 else (q >= p)
+        own = getattr(band, "around", None)
+        if own is not None:
+            keep &= names[li] != own
+        if not keep.any():
+            continue
+        j = np.flatnonzero(keep)
+        pj, qj = p[j], q[j]
+        ends = np.concatenate([pj, qj])
+        lj = np.concatenate([li[j], li[j]])
+        f_end = np.where(moving[lj], orders[lj] * ends / 60.0, fixed[lj])
+        app_end = np.concatenate([a1[j], a1[j]]) * ends + np.concatenate([a0[j], a0[j]])
+        att_end = np.minimum(np.asarray(plan.filter.attenuation_db(f_end, rate), dtype=float), _FINITE_DB)
+        res_end = levels[lj] - att_end
+        n = len(j)
+        frames.append(
+            {
+                "line": names[li[j]],
+                "band": np.full(n, band.name, dtype=object),
+                "rpm_min": pj,
+                "rpm_max": qj,
+                "zone": z[j].astype(int),
+                "apparent_hz_min": np.minimum(app_end[:n], app_end[n:]),
+                "apparent_hz_max": np.maximum(app_end[:n], app_end[n:]),
+                "residual_db": np.maximum(res_end[:n], res_end[n:]) + 0.0,
+                "kind": np.where(z[j] >= 1, "collision", "overlap").astype(object),
+                "true_hz_min": np.minimum(f_end[:n], f_end[n:]),
+                "true_hz_max": np.maximum(f_end[:n], f_end[n:]),
+            }
+        )
+    return frames
