@@ -159,7 +159,7 @@ def test_tacho_pulse_count_and_gap():
     m = Machine("m", "s", (Shaft("s"),), ())
     plan = Plan(SpeedProfile("linear", 600.0, 1800.0, 2.0), (20000.0,), BUTTER)
     run = simulate_run(m, plan, 20000.0, pulses_per_rev=ppr, missing_pulses=missing,
-                       noise_db=-np.inf)
+                       noise_db=-np.inf, tacho_rise_s=0.0)  # ideal steps
     v = run.channel("tacho")
     assert set(np.unique(v)) == {0.0, 5.0}
     rising = np.flatnonzero((v[1:] > 2.5) & (v[:-1] <= 2.5)) + 1
@@ -177,10 +177,21 @@ def test_tacho_pulse_count_and_gap():
     assert np.all(np.abs(ratio[ratio > 2.5] - 3.0) < 0.35)
 
 
+def test_default_tacho_edge_takes_four_samples():
+    m = Machine("m", "s", (Shaft("s"),), ())
+    v = simulate_run(m, _plan(filt=AntiAliasFilter("none")), RATE, pulses_per_rev=4,
+                     noise_db=-np.inf).channel(2)
+    rising = np.flatnonzero((v[1:] > v[:-1]))
+    # A linear ramp from 0 to 5 V over 4 sample periods passes through 3 or 4 samples between
+    # the rails (depending on where the edge starts between samples).
+    inner = np.sum((v > 0.0) & (v < 5.0))
+    assert rising.size and 3 * 319 <= inner // 2 <= 4 * 320
+
+
 def test_tacho_rise_time_makes_ramps():
     m = Machine("m", "s", (Shaft("s"),), ())
     plan = _plan(filt=AntiAliasFilter("none"))
-    sharp = simulate_run(m, plan, RATE, pulses_per_rev=4, noise_db=-np.inf).channel(2)
+    sharp = simulate_run(m, plan, RATE, pulses_per_rev=4, noise_db=-np.inf, tacho_rise_s=0.0).channel(2)
     soft = simulate_run(m, plan, RATE, pulses_per_rev=4, noise_db=-np.inf,
                         tacho_rise_s=2.5e-3).channel(2)
     middle = (soft > 0.1) & (soft < 4.9)

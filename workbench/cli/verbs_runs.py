@@ -154,7 +154,7 @@ def cmd_simulate(args) -> int:
         pulses_per_rev=args.pulses_per_rev,
         missing_pulses=args.missing_pulses,
         machine_file=machine_file,
-        tacho_rise_s=(4.0 / rate) if args.tacho_rise_ms is None else args.tacho_rise_ms / 1000.0,
+        tacho_rise_s=None if args.tacho_rise_ms is None else args.tacho_rise_ms / 1000.0,
         sample_format=args.format,
         force=args.force,
     )

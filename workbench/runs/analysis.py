@@ -353,6 +353,8 @@ def track_run(
                          f"{run.rate_hz / 2.0:g} Hz; allowed: speeds below "
                          f"{30.0 * run.rate_hz:g} rpm")
     log = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
+    if getattr(angle, "timing", None) is not None:
+        log.append(f"tacho timing: {angle.timing.describe()}")
     n_total = run.n_samples
 
     def chunks():

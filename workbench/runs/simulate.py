@@ -163,7 +163,9 @@ def _settings(plan: Any, rate_hz: float, seed: int, duration_s: float | None, no
     q = _number("resonance_q", resonance_q, positive=True)
     gain = _number("resonance_gain_db", resonance_gain_db)
     chunk = _number("chunk_s", chunk_s, positive=True)
-    rise = _number("tacho_rise_s", tacho_rise_s)
+    # Default: edges that take 4 samples, as a real tacho edge does at usual rates; ideal steps
+    # (0) time the pulses only to the nearest sample.
+    rise = 4.0 / rate if tacho_rise_s is None else _number("tacho_rise_s", tacho_rise_s)
     if rise < 0:
         raise InputError(f"tacho_rise_s {rise!r} is not valid; allowed: a number >= 0 (s)")
     if isinstance(pulses_per_rev, bool) or not isinstance(pulses_per_rev, (int, np.integer)) \
@@ -328,7 +330,7 @@ def simulate_run(machine: Any, plan: Any, rate_hz: float, *, seed: int = 0,
                  resonance_hz: float | None = None, resonance_q: float = 8.0,
                  resonance_gain_db: float = 12.0, pulses_per_rev: int = 1,
                  missing_pulses: int = 0, tacho_channel: bool = True, chunk_s: float = 10.0,
-                 tacho_rise_s: float = 0.0, machine_file: str | os.PathLike | None = None
+                 tacho_rise_s: float | None = None, machine_file: str | os.PathLike | None = None
                  ) -> Run:
     """Simulate an acquisition in memory (see the module notes for the model).
 
@@ -363,7 +365,8 @@ def simulate_run(machine: Any, plan: Any, rate_hz: float, *, seed: int = 0,
     chunk_s : float, optional
         Length of a computation chunk in s (memory only; the result does not depend on it).
     tacho_rise_s : float, optional
-        Rise and fall time of the tacho edges in s (linear ramps); 0 for ideal steps.
+        Rise and fall time of the tacho edges in s (linear ramps); default 4 samples.  0 gives
+        ideal steps, whose pulse times can only be found to the nearest sample.
     machine_file : path-like, optional
         Machine file to record in the run.
 
@@ -403,7 +406,7 @@ def simulate_to_wav(machine: Any, plan: Any, rate_hz: float, path: str | os.Path
                     resonance_hz: float | None = None, resonance_q: float = 8.0,
                     resonance_gain_db: float = 12.0, pulses_per_rev: int = 1,
                     missing_pulses: int = 0, tacho_channel: bool = True, chunk_s: float = 10.0,
-                    tacho_rise_s: float = 0.0, machine_file: str | os.PathLike | None = None,
+                    tacho_rise_s: float | None = None, machine_file: str | os.PathLike | None = None,
                     sample_format: str = "float32", force: bool = False) -> Path:
     """Simulate an acquisition straight into a WAV file and its sidecar, chunk by chunk.
 
