@@ -175,11 +175,16 @@ _LINE_COLUMNS = (
     Column("level_db", "level (dB)", fixed(1), numeric=True),
 )
 
+def _residual_text(v) -> str:
+    """A residual in dB; "none" where no folded line enters any band (-inf)."""
+    return "none" if float(v) == float("-inf") else fixed(1)(v)
+
+
 _CANDIDATE_COLUMNS = (
     Column("rate_hz", "rate (Hz)", general(8), numeric=True),
     Column("clean", "clean", yes_no),
     Column("collisions", "collisions", str, numeric=True),
-    Column("worst_residual_db", "worst folded residual in a band (dB)", fixed(1), numeric=True),
+    Column("worst_residual_db", "worst folded residual in a band (dB)", _residual_text, numeric=True),
     Column("captures_max_order", "captures highest order", yes_no),
 )
 
