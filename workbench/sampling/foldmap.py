@@ -512,19 +512,19 @@ def _threshold_hz(filt, rate, allowed_db):
     out = np.full(allowed.shape, np.inf)
     at_dc = float(np.asarray(filt.attenuation_db(0.0, rate)))
     out[allowed <= at_dc] = 0.0
-    todo = np.flatnonzero(allowed > at_dc)
-    if not len(todo):
+    need = np.flatnonzero(allowed > at_dc)
+    if not len(need):
         return out
-    a = allowed[todo]
+    a = allowed[need]
     kind = filt.kind
     if kind == "none":
         return out  # never attenuates: every positive allowance holds at every frequency
     if kind == "ideal":
-        out[todo] = filt.cutoff * rate  # 0 dB up to the cutoff, infinite above
+        out[need] = filt.cutoff * rate  # 0 dB up to the cutoff, infinite above
         return out
     if kind == "butterworth":
         # 10 log10(1 + (f / fc)^(2n)) < A  <=>  f < fc (10^(A/10) - 1)^(1/(2n))
-        out[todo] = filt.cutoff * rate * np.expm1(a * math.log(10.0) / 10.0) ** (0.5 / filt.order)
+        out[need] = filt.cutoff * rate * np.expm1(a * math.log(10.0) / 10.0) ** (0.5 / filt.order)
         return out
     lo = np.full(len(a), np.log(rate * 1e-9))
     hi = np.full(len(a), np.log(rate * 1e9))
@@ -536,7 +536,7 @@ def _threshold_hz(filt, rate, allowed_db):
         hi = np.where(below, hi, mid)
         if np.max(hi - lo) < 1e-13:
             break
-    out[todo] = np.where(reach, np.exp(0.5 * (lo + hi)), np.inf)
+    out[need] = np.where(reach, np.exp(0.5 * (lo + hi)), np.inf)
     return out
 
 
