@@ -17,12 +17,12 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
                                      OrderSpectrum, RpmFrequencyMap, WindowGains,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
                                      order_map, order_spectrum, rpm_frequency_map, window_gains)
-from workbench.angle.tacho import (DoubtedPulses, PulseDetector, ShaftAngle, detect_pulses,
-                                   tacho_angle)
+from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
+                                   detect_pulses, tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
 
 __all__ = [
-    "PulseDetector", "detect_pulses", "DoubtedPulses", "ShaftAngle", "tacho_angle",
+    "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
     "AngleSignal", "OrderTracker", "order_track", "iter_order_track",
     "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
