@@ -83,8 +83,16 @@ def draw_fold_map(ax, fmap, plan, *, collisions=None, view="hz", show_faint=True
                 ax.add_line(Line2D(rpm[s:e], y[s:e], color="#BBBBBB", lw=0.6, ls=(0, (1, 2)), zorder=2))
     if collisions is not None and len(collisions):
         index = {ln.name: i for i, ln in enumerate(all_lines)}
+        kinds = {ln.name: ln.kind for ln in all_lines}
         labelled = set()
-        # The table is sorted by residual: label only the strongest collision of each band.
+        # Label one collision per band: the strongest, or a line that is not a sideband when
+        # one lies within 0.5 dB of it (a mesh harmonic says more than its sidebands).
+        chosen = {}
+        folded = collisions[collisions["kind"] == "collision"]
+        for band, rows in folded.groupby("band", sort=False):
+            near = rows[rows["residual_db"] >= rows["residual_db"].max() - 0.5]
+            main = [n for n in near["line"] if kinds.get(n) != "sideband"]
+            chosen[band] = main[0] if main else near["line"].iloc[0]
         for row in collisions.itertuples(index=False):
             if row.kind != "collision" or row.line not in index:
                 continue
@@ -96,10 +104,10 @@ def draw_fold_map(ax, fmap, plan, *, collisions=None, view="hz", show_faint=True
                 sel[k] = True
             ax.plot(rpm[sel], y_all[i][sel], color="#D00000", lw=4.0, alpha=0.75, zorder=5,
                     solid_capstyle="round", marker="o" if sel.sum() == 1 else None, ms=4)
-            if row.band in labelled:
+            if row.band in labelled or chosen.get(row.band) != row.line:
                 continue
             labelled.add(row.band)
-            stagger = 26 * (len(labelled) - 1)
+            stagger = 34 * (len(labelled) - 1)
             k = np.flatnonzero(sel)[len(np.flatnonzero(sel)) // 2]
             ax.annotate(
                 f"{row.line} in {row.band}\n{row.residual_db:.0f} dB",
