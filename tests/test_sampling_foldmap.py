@@ -260,3 +260,16 @@ def test_exact_method_needs_a_monotone_filter():
     # auto falls to the grid for this filter, and finds the folded interval.
     table = find_collisions(m, plan, 1000.0)
     assert (table["kind"] == "collision").any()
+
+
+def test_absurd_orders_fall_back_to_the_grid_with_a_warning():
+    # An order of 1e9 at 1000 S/s crosses about 1e11 Nyquist zones: the closed form would need
+    # a segment per zone, so "auto" warns and uses the grid; "exact" refuses.
+    from workbench.errors import FoldlineWarning
+
+    m = _machine(order=1e9)
+    plan = _plan([{"name": "b", "hz": [420.0, 480.0]}])
+    with pytest.warns(FoldlineWarning, match="Nyquist zones"):
+        find_collisions(m, plan, 1000.0, n_speeds=50)
+    with pytest.raises(InputError, match="use method 'grid'"):
+        find_collisions(m, plan, 1000.0, method="exact")

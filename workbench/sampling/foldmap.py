@@ -12,12 +12,13 @@ by bracketed root finding where its residual meets the threshold), so they do no
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
 
-from workbench.errors import InputError
+from workbench.errors import FoldlineWarning, InputError
 from workbench.sampling.folding import fold
 
 __all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "MONOTONE_FILTERS"]
@@ -404,7 +405,14 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
         else:
             r0, r1 = float(plan.speed.rpm_min), float(plan.speed.rpm_max)
             rate = _check_rate(rate_hz)
-        return _table(_exact_rows(lines, plan, rate, thr, r0, r1))
+        crossed = _zones_crossed(lines, rate, r0, r1)
+        if crossed <= MAX_EXACT_SEGMENTS:
+            return _table(_exact_rows(lines, plan, rate, thr, r0, r1))
+        message = (f"the lines cross {crossed:,} Nyquist zones over {r0:g}-{r1:g} rpm at {rate:g} Hz "
+                   f"(more than {MAX_EXACT_SEGMENTS:,}): check the line orders and the rate")
+        if method == "exact":
+            raise InputError(message + "; or use method 'grid'")
+        warnings.warn(message + "; collisions found on a speed grid instead", FoldlineWarning, stacklevel=2)
     if fmap is None:
         fmap = fold_map(lines, plan, rate_hz, n_speeds=n_speeds)
     rpm = fmap.rpm
@@ -499,6 +507,22 @@ def _table(frames):
     # Highest residual first; ties by line name, then speed.
     order = np.lexsort((data["rpm_min"], data["line"].astype(str), -data["residual_db"]))
     return pd.DataFrame({c: data[c][order] for c in _COLUMNS})
+
+
+#: Most (line, Nyquist zone) segments the closed form handles; beyond, lines far above the
+#: rate (a typo in an order, or a rate in kHz given as Hz) would take unbounded memory.
+MAX_EXACT_SEGMENTS = 1_000_000
+
+
+def _zones_crossed(lines, rate, r0, r1) -> int:
+    """Number of (line, Nyquist zone) segments over the speed range."""
+    orders, fixed, _ = _line_arrays(lines)
+    moving = ~np.isnan(orders)
+    nyq = rate / 2.0
+    with np.errstate(over="ignore", invalid="ignore"):
+        zones = np.where(moving, np.abs(orders) * abs(r1 - r0) / 60.0 / nyq, 0.0)
+    total = float(np.sum(np.floor(zones) + 2.0))
+    return int(min(total, 1e18)) if np.isfinite(total) else 10**18
 
 
 def _threshold_hz(filt, rate, allowed_db):
