@@ -288,8 +288,8 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
         if exact:
             # Closed form, no speed grid (see find_collisions): the threshold table, and the
             # same intervals without a threshold for the worst folded residual.
-            table = find_collisions(lines, plan, rate, method="exact")
-            loose = find_collisions(lines, plan, rate, method="exact", threshold_db=-np.inf)
+            table = find_collisions(lines, plan, rate, method="auto")
+            loose = find_collisions(lines, plan, rate, method="auto", threshold_db=-np.inf)
             folded = loose["residual_db"][loose["kind"] == "collision"]
             worst = float(folded.max()) if len(folded) else -np.inf
         else:
