@@ -2,7 +2,7 @@
 
 Scenario (issue "every bad input gets a clear error, nothing is lost, long recordings stay
 within memory"): a 2-channel float32 WAV of exactly 1 GiB of samples (134,217,728 frames at
-51.2 kHz, 2621 s), a linear run-up from 600 to 3000 rpm with a once-per-rev 0/5 V tacho on
+51.2 kHz, 2621 s), a linear run-up from 600 to 3000 rpm with a once-per-rev 0/5 V tacho (4-sample edges) on
 channel 2 and orders 1, 10 and 33 on channel 1.  The file is written on the fly, chunk by
 chunk, with :class:`workbench.runs.WavWriter` (so this process never holds the record), then
 tracked by ``foldline track RUN --json`` in a subprocess whose resident memory is sampled from
@@ -53,6 +53,23 @@ def revs_at(t_s: np.ndarray) -> np.ndarray:
     return (RPM_START * t_s + 0.5 * slope * t_s**2) / 60.0
 
 
+#: Rise and fall time of the tacho edges: 4 samples, as a real tacho edge takes at this rate
+#: (an ideal step would time pulses only to the sample, which the tacho processing refuses
+#: where that leaves the speed uncertain beyond 0.1 %).
+TACHO_RISE_S = 4.0 / RATE
+
+
+def tacho_volts(t_s: np.ndarray, revs: np.ndarray) -> np.ndarray:
+    """0/5 V once-per-rev tacho with linear edges of TACHO_RISE_S."""
+    f_rot = (RPM_START + (RPM_END - RPM_START) * t_s / DURATION_S) / 60.0
+    frac = np.mod(revs, 1.0)
+    since_rise = frac / f_rot
+    since_fall = (frac - 0.5) / f_rot
+    up = np.clip(since_rise / TACHO_RISE_S, 0.0, 1.0)
+    down = 1.0 - np.clip(since_fall / TACHO_RISE_S, 0.0, 1.0)
+    return 5.0 * np.where(frac < 0.5, up, down)
+
+
 def write_run(path: Path) -> float:
     """Stream the 1 GiB WAV and its sidecar; return the seconds it took."""
     from workbench.runs import WavWriter
@@ -66,7 +83,7 @@ def write_run(path: Path) -> float:
             vib = np.zeros(b - a)
             for order, amp in ORDERS.items():
                 vib += amp * np.sin(2 * np.pi * order * revs)
-            tacho = np.where(np.mod(revs, 1.0) < 0.5, 5.0, 0.0)
+            tacho = tacho_volts(t, revs)
             w.write(np.vstack([vib, tacho]).astype(np.float32))
     path.with_suffix(".json").write_text(json.dumps({
         "channels": [{"name": "vibration", "unit": "m/s^2", "sensitivity": 1.0},
