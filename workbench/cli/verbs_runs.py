@@ -79,7 +79,7 @@ def cmd_demo(args) -> int:
                                  revs_per_block=advice.resampling.revs_per_block)
         track_dir = out / "run"
         _check_out_folder(track_dir, force=args.force)
-        figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force, machine=machine))
+        figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force))
     figures.append(_demo_report(machine_path, plan_path, run_path, analysis, out, args.force))
     result = {
         "machine": str(machine_path),
@@ -224,12 +224,11 @@ def _check_out_folder(out: Path, *, force: bool) -> None:
             raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace the outputs in {out}")
 
 
-def write_track_outputs(analysis, out: Path, *, force: bool = False, machine=None) -> list:
+def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
     """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``."""
     import numpy as np
     import pandas as pd
 
-    from workbench.machine import read_machine
     from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_rpm_frequency_map,
                                  plot_tacho_check, save_figure)
 
@@ -263,15 +262,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, machine=Non
     figure(plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=getattr(sa, "pulse_times_s", None),
                             doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})"), "tacho_check.png")
-    lines = None
-    if a.identification is not None:
-        lines = machine.lines() if machine is not None else None
-        if lines is None:
-            from workbench.runs import read_run
-
-            run = read_run(a.source, rate_hz=a.rate_hz) if Path(a.source).exists() else None
-            if run is not None and run.machine_file:
-                lines = read_machine(run.machine_file).lines()
+    lines = a.lines or None  # the machine's lines the tracking identified with
     top = a.samples_per_rev / 2.56
     figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,
                                title=f"Order spectrum: {Path(a.source).name}, channel {a.channel}"), "order_spectrum.png")

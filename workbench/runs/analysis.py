@@ -87,6 +87,8 @@ class RunAnalysis:
     cuts : tuple of OrderCut
     rf_map : RpmFrequencyMap or None
     identification : Identification or None
+    lines : tuple of Line
+        The machine's predicted lines the identification used (empty without a machine).
     doubted : pandas.DataFrame
         Tacho pulses the processing doubted (time_s, reason).
     log : tuple of str
@@ -111,6 +113,7 @@ class RunAnalysis:
     rf_map: object
     identification: object
     doubted: pd.DataFrame
+    lines: tuple = ()
     protect: bool = True
     log: tuple = field(default_factory=tuple)
 
@@ -426,6 +429,7 @@ def track_run(
         cuts=tuple(cuts),
         rf_map=rfm,
         identification=ident,
+        lines=() if mach is None else tuple(mach.lines()),
         doubted=doubted,
         protect=bool(protect),
         log=tuple(log),
