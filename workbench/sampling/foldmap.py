@@ -226,15 +226,6 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true
     )
 
 
-def _runs(mask):
-    """Start and stop indices (inclusive) of each run of True in a 1-D boolean array."""
-    padded = np.concatenate(([False], mask, [False]))
-    d = np.diff(padded.astype(np.int8))
-    starts = np.flatnonzero(d == 1)
-    stops = np.flatnonzero(d == -1) - 1
-    return starts, stops
-
-
 def _apparent_in_zone(f, zone, rate):
     """Apparent frequency of true ``f`` computed with a given zone (linear in f within it)."""
     m = np.floor_divide(zone, 2)
@@ -590,8 +581,7 @@ def _exact_rows(lines, plan, rate, thr, r0, r1):
     m = np.floor_divide(z, 2)
     even = (z % 2) == 0
     a1 = np.where(mv, np.where(even, om / 60.0, -om / 60.0), 0.0)
-    app_fixed = np.where(even, fixed[li] - m * rate, (m + 1) * rate - fixed[li])
-    a0 = np.where(mv, np.where(even, -m * rate, (m + 1) * rate), app_fixed)
+    a0 = np.where(mv, np.where(even, -m * rate, (m + 1) * rate), _apparent_in_zone(fixed[li], z, rate))
     # Residual above the threshold below one frequency (monotone filter): an upper speed bound.
     allowed = levels - thr
     uniq, inv = np.unique(allowed, return_inverse=True)
