@@ -62,14 +62,6 @@ def emit_json(obj) -> None:
     sys.stdout.write(json.dumps(_jsonable(obj), allow_nan=False) + "\n")
 
 
-def _float_list(text: str, name: str) -> tuple:
-    try:
-        vals = tuple(float(v) for v in text.split(","))
-    except ValueError:
-        raise InputError(f"{name} = {text!r}: give numbers separated by a comma, e.g. 2000,5000") from None
-    return vals
-
-
 def _positive(value, name):
     v = float(value)
     if not math.isfinite(v) or v <= 0:

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import sys
 import warnings
 from pathlib import Path
 
@@ -350,6 +349,3 @@ def _add_report_and_batch(verb) -> None:
     add_report_verb(verb)
     add_batch_verb(verb)
 
-
-def _stderr(msg: str) -> None:
-    sys.stderr.write(msg + "\n")

@@ -26,13 +26,11 @@ def cmd_report(args) -> int:
     if args.run is None and opts:
         raise InputError(f"tracking options ({', '.join('--' + k.replace('_', '-') for k in opts)}) "
                          "need a RUN; give the run file after the plan")
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        report = write_report(args.machine, args.plan, args.run, out=args.out, force=args.force,
-                              track_options=opts,
-                              progress=None if args.json else (lambda t: _stderr(f"report: {t}")))
-    for w in caught:
-        _stderr(f"warning: {w.message}")
+    # Progress only for a person at a terminal: a script's stderr keeps the one-line error
+    # contract (warnings go through the command's one-line handler).
+    show = not args.json and sys.stderr.isatty()
+    report = write_report(args.machine, args.plan, args.run, out=args.out, force=args.force,
+                          track_options=opts, progress=(lambda t: _stderr(f"report: {t}")) if show else None)
     result = {"out": str(args.out), **report.to_dict()}
     if args.json:
         emit_json(result)
