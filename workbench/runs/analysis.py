@@ -28,7 +28,7 @@ from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoErr
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
-__all__ = ["RunAnalysis", "track_run", "CHUNK_S"]
+__all__ = ["RunAnalysis", "track_run", "run_speed", "SPEED_OPTIONS", "CHUNK_S"]
 
 #: Seconds of the record read per chunk while streaming.
 CHUNK_S = 8.0
@@ -198,6 +198,39 @@ def _vibration_channel(run: Run, channel):
     raise RunFileError(
         f"{run.source}: the run has only the tacho channel; there is no vibration channel to track"
     )
+
+
+#: Keyword options of :func:`run_speed` (and of every function that finds a run's speed).
+SPEED_OPTIONS = ("tacho", "pulses_per_rev", "missing_pulses", "rpm", "speed_table")
+
+
+def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None, rpm=None,
+              speed_table=None, chunk=None) -> tuple[ShaftAngle, str]:
+    """The reference shaft's angle against time for a run, and where the speed came from.
+
+    Parameters
+    ----------
+    run : Run
+    tacho : int or str, optional
+        Tacho channel (1-based index or name); default the sidecar's.
+    pulses_per_rev, missing_pulses : int, optional
+        Tacho wheel; default the sidecar's.
+    rpm : float, optional
+        Constant speed standing in for a tacho, rpm.
+    speed_table : path-like, optional
+        CSV with columns ``time_s, rpm`` standing in for a tacho.
+    chunk : int, optional
+        Samples read per chunk while streaming the tacho.
+
+    Returns
+    -------
+    (ShaftAngle, str)
+        The angle, and the speed source: ``"tacho"``, ``"rpm"`` or ``"speed table"``.
+    """
+    if chunk is None:
+        chunk = max(4096, int(CHUNK_S * run.rate_hz))
+    return _speed(run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
+                  rpm=rpm, speed_table=speed_table, chunk=chunk)
 
 
 def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table, chunk):
