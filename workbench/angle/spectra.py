@@ -404,6 +404,12 @@ class _Blocks:
             self._aux_buf = np.array(abuf[used:]) if used < len(abuf) else np.empty(0)
         self._next += used
 
+    def restart(self, index: int) -> None:
+        """Drop the partial block; the stream goes on at global sample ``index``."""
+        self._buf = np.empty(0)
+        self._aux_buf = np.empty(0)
+        self._next = index
+
     def mean_amplitude(self) -> np.ndarray:
         return np.sqrt(self.power / max(self.count, 1))
 
@@ -519,7 +525,8 @@ class OrderAnalysis:
         self.log: tuple[str, ...] = ()
 
     def feed(self, sig: AngleSignal) -> None:
-        """Add the next angle-domain piece (must follow the previous one without a gap)."""
+        """Add the next angle-domain piece: it follows the previous one, or starts after a
+        gap in the angle (blocks then start afresh: none spans the gap)."""
         if not isinstance(sig, AngleSignal):
             raise InputError(f"piece of type {type(sig).__name__} is not valid; allowed: "
                              "AngleSignal pieces (from order_track / iter_order_track)")
@@ -536,10 +543,13 @@ class OrderAnalysis:
             self._revs0 = sig.revs_start
             self._revs_next = sig.revs_start
         elif sig.samples_per_rev != self._spr or \
-                abs(sig.revs_start - self._revs_next) * self._spr > 1e-6:
+                (sig.revs_start - self._revs_next) * self._spr < -1e-6:
             raise InputError(f"angle pieces are not consecutive: expected a piece at "
                              f"{self._revs_next:.6f} rev with {self._spr} samples/rev, got "
                              f"{sig.revs_start:.6f} rev with {sig.samples_per_rev}")
+        elif (sig.revs_start - self._revs_next) * self._spr > 1e-6:
+            # A gap in the angle (the speed was unknown there): blocks start afresh after it.
+            self._blocks.restart(int(round((sig.revs_start - self._revs0) * self._spr)))
         self._blocks.feed(sig.data, sig.rpm)
         self._revs_next = sig.revs_start + sig.n_samples / self._spr
         if sig.log:

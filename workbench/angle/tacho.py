@@ -37,6 +37,8 @@ __all__ = [
     "PulseTiming",
     "ShaftAngle",
     "tacho_angle",
+    "speed_tolerance_for",
+    "DEFAULT_SPEED_TOLERANCE",
     "FIT_METHODS",
 ]
 
@@ -422,6 +424,13 @@ def _quadratic_pieces(t: np.ndarray, r: np.ndarray) -> np.ndarray:
     return coef
 
 
+def _fit_pieces(t: np.ndarray, r: np.ndarray, method: str) -> np.ndarray:
+    """Polynomial pieces (4, n - 1), ascending powers of (t - t_j), of the angle fit."""
+    if method == "spline" and len(t) > 2:
+        return CubicSpline(t, r, bc_type="not-a-knot").c[::-1].copy()
+    return _quadratic_pieces(t, r)
+
+
 @dataclass(frozen=True, eq=False)
 class ShaftAngle:
     """Shaft angle (revolutions) as a smooth function of time, fitted through tacho pulses.
@@ -444,12 +453,18 @@ class ShaftAngle:
     timing : PulseTiming or None
         From :func:`tacho_angle`: the estimated pulse timing jitter, whether the pulse times
         were smoothed, and the speed uncertainty left; None for a known speed.
+    gaps : tuple of int
+        Pieces (the interval from knot ``j`` to knot ``j + 1``) where the speed is unknown (a
+        stop, a reversal, pulses lost in a row): the angle is fitted on each side apart, the
+        stretch after a gap starts a whole number of revolutions on, and :meth:`revs_at`,
+        :meth:`rpm_at` and :meth:`time_at_revs` return NaN inside it.
+        :meth:`stretch_angles` gives the usable stretches one by one.
 
     Notes
     -----
     The angle is defined from the first to the last pulse (:attr:`t_start_s`,
-    :attr:`t_end_s`); outside that span :meth:`revs_at`, :meth:`rpm_at` and
-    :meth:`time_at_revs` return NaN rather than extrapolate.  The fit must rise monotonically;
+    :attr:`t_end_s`); outside that span (and inside a gap) :meth:`revs_at`, :meth:`rpm_at`
+    and :meth:`time_at_revs` return NaN rather than extrapolate.  The fit must rise monotonically;
     :func:`tacho_angle` refuses data where it does not.
 
     A linear run-up (constant angular acceleration) makes the angle an exact quadratic of time;
@@ -479,6 +494,7 @@ class ShaftAngle:
     doubted: DoubtedPulses = field(default_factory=DoubtedPulses.empty)
     method: str = "spline"
     timing: PulseTiming | None = None
+    gaps: tuple = ()
     _coef: Any = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
@@ -507,24 +523,34 @@ class ShaftAngle:
         if self.method not in methods:
             raise InputError(f"ShaftAngle: method {self.method!r} is not valid; allowed: "
                              f"{', '.join(repr(m) for m in methods)}")
+        gaps = tuple(sorted({int(j) for j in self.gaps}))
+        if any(not 0 < j < len(t) - 2 for j in gaps) or \
+                any(b - a < 2 for a, b in zip(gaps[:-1], gaps[1:])):
+            raise InputError(f"ShaftAngle: gaps {self.gaps!r} are not valid; allowed: indices "
+                             "of pieces between knots, each stretch keeping at least 2 knots")
+        object.__setattr__(self, "gaps", gaps)
         if self._coef is not None:
             coef = np.array(self._coef, dtype=np.float64)
             if coef.shape != (4, len(t) - 1):
                 raise InputError("ShaftAngle: internal coefficients do not match the knots")
-        elif self.method == "spline":
-            if len(t) == 2:
-                coef = _quadratic_pieces(t, r)
-            else:
-                cs = CubicSpline(t, r, bc_type="not-a-knot")
-                coef = cs.c[::-1].copy()             # ascending powers of (t - t_j)
-        elif self.method in ("quadratic", "constant speed"):
-            coef = _quadratic_pieces(t, r)
-        else:
+        elif self.method == "speed table":
             raise InputError("ShaftAngle: method 'speed table' needs ShaftAngle.from_speed_table")
+        else:
+            coef = np.zeros((4, len(t) - 1))
+            bounds = (-1,) + gaps + (len(t) - 1,)
+            for a, b in zip(bounds[:-1], bounds[1:]):
+                coef[:, a + 1:b] = _fit_pieces(t[a + 1:b + 1], r[a + 1:b + 1], self.method)
+            for j in gaps:        # a straight line across a gap keeps the inverse monotone
+                coef[0, j] = r[j]
+                coef[1, j] = (r[j + 1] - r[j]) / (t[j + 1] - t[j])
         coef.setflags(write=False)
         object.__setattr__(self, "_coef", coef)
         h = np.diff(t)
         lo, hi = _piece_speed_extremes(coef, h)
+        if gaps:
+            lo, hi = lo.copy(), hi.copy()
+            lo[list(gaps)] = np.nan
+            hi[list(gaps)] = np.nan
         object.__setattr__(self, "_piece_lo", lo)
         object.__setattr__(self, "_piece_hi", hi)
 
@@ -606,23 +632,52 @@ class ShaftAngle:
 
     @property
     def revolutions(self) -> float:
-        """Revolutions turned over the span."""
-        return float(self.pulse_revs[-1] - self.pulse_revs[0])
+        """Revolutions turned over the usable stretches."""
+        r = self.pulse_revs
+        return float(r[-1] - r[0] - sum(r[j + 1] - r[j] for j in self.gaps))
 
     @property
     def rpm_min(self) -> float:
         """Lowest speed of the fit over the span (rpm)."""
-        return float(self._piece_lo.min() * 60.0)
+        return float(np.nanmin(self._piece_lo) * 60.0)
 
     @property
     def rpm_max(self) -> float:
         """Highest speed of the fit over the span (rpm)."""
-        return float(self._piece_hi.max() * 60.0)
+        return float(np.nanmax(self._piece_hi) * 60.0)
+
+    @property
+    def stretches(self) -> tuple:
+        """(start, end) times (s) of the usable stretches: the whole span unless there are gaps."""
+        t = self.pulse_times_s
+        bounds = (-1,) + self.gaps + (len(t) - 1,)
+        return tuple((float(t[a + 1]), float(t[b])) for a, b in zip(bounds[:-1], bounds[1:]))
+
+    def stretch_angles(self) -> tuple:
+        """The usable stretches as ShaftAngle objects of their own (this one when no gaps).
+
+        Each keeps its pulses, angles and fit; ``doubted`` and ``timing`` are shared.
+        """
+        if not self.gaps:
+            return (self,)
+        t, r = self.pulse_times_s, self.pulse_revs
+        bounds = (-1,) + self.gaps + (len(t) - 1,)
+        return tuple(ShaftAngle(t[a + 1:b + 1], r[a + 1:b + 1], self.doubted, self.method,
+                                self.timing, _coef=self._coef[:, a + 1:b])
+                     for a, b in zip(bounds[:-1], bounds[1:]))
 
     def _locate(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         knots = self.pulse_times_s
         j = np.clip(np.searchsorted(knots, t, side="right") - 1, 0, len(knots) - 2)
         return j, t - knots[j]
+
+    def _known(self, t: np.ndarray, j: np.ndarray) -> np.ndarray:
+        """Where times ``t`` (in pieces ``j``) lie inside the span and outside every gap."""
+        knots = self.pulse_times_s
+        ok = (t >= knots[0]) & (t <= knots[-1])
+        for g in self.gaps:
+            ok &= ~((t > knots[g]) & (t < knots[g + 1]))
+        return ok
 
     def revs_at(self, t_s) -> np.ndarray:
         """Shaft angle (revolutions) at times ``t_s`` (s); NaN outside the span.
@@ -640,8 +695,7 @@ class ShaftAngle:
         j, tau = self._locate(t)
         c = self._coef
         out = ((c[3, j] * tau + c[2, j]) * tau + c[1, j]) * tau + c[0, j]
-        return np.where((t >= self.pulse_times_s[0]) & (t <= self.pulse_times_s[-1]), out,
-                        np.nan)[()]
+        return np.where(self._known(t, j), out, np.nan)[()]
 
     def rpm_at(self, t_s) -> np.ndarray:
         """Shaft speed (rpm) at times ``t_s`` (s); NaN outside the span.
@@ -659,8 +713,7 @@ class ShaftAngle:
         j, tau = self._locate(t)
         c = self._coef
         out = 60.0 * ((3 * c[3, j] * tau + 2 * c[2, j]) * tau + c[1, j])
-        return np.where((t >= self.pulse_times_s[0]) & (t <= self.pulse_times_s[-1]), out,
-                        np.nan)[()]
+        return np.where(self._known(t, j), out, np.nan)[()]
 
     def _invert(self, revs: np.ndarray, iterations: int = 8) -> tuple[np.ndarray, np.ndarray]:
         """Times and speeds (rev/s) at angles ``revs``, extrapolating the end pieces."""
@@ -701,6 +754,8 @@ class ShaftAngle:
         r = np.asarray(revs, dtype=np.float64)
         flat = r.ravel()
         inside = (flat >= self.pulse_revs[0]) & (flat <= self.pulse_revs[-1])
+        for g in self.gaps:
+            inside &= ~((flat > self.pulse_revs[g]) & (flat < self.pulse_revs[g + 1]))
         out = np.full(flat.shape, np.nan)
         if inside.any():
             out[inside] = self._invert(flat[inside])[0]
@@ -783,28 +838,36 @@ _JITTER_ORDERS = (4, 6, 8)
 _JITTER_BLOCK = 256
 # Order of the differences the smoothing penalises: cubics in angle are left untouched.
 _SMOOTH_ORDER = 4
-# Where the jitter would leave an RMS relative speed error above the clean-tacho target of
-# 0.01 % anywhere, the pulse times are smoothed, down to 0.005 % where they need it.
-_SMOOTH_ABOVE = 1e-4
-_SPEED_RMS_TARGET = 5e-5
-# Refuse where the expanded speed uncertainty (coverage factor 3) exceeds 0.1 %.
-_SPEED_LIMIT = 1e-3
+# The speed tolerance: an RMS relative speed uncertainty (a fraction).  Where the jitter would
+# leave the interpolated speed uncertain by more than half of it, the pulse times are smoothed,
+# aiming at a third of it; beyond the tolerance a warning names the figure and the seconds.
+_SMOOTH_ABOVE_FRACTION = 0.5
+_SMOOTH_TARGET_FRACTION = 1.0 / 3.0
+# Coverage factor of the expanded uncertainty quoted beside the RMS figures (JCGM 100:2008).
 _COVERAGE = 3.0
 # Penalty weights stay inside [_LAMBDA_MIN, _LAMBDA_MAX] (pitch units); the smallest keeps
-# the system definite at pitch positions without a pulse, the largest (a span of about 100
+# the system definite at pitch positions without a pulse, the largest (a span of about 200
 # pulses) keeps it well conditioned.
 _LAMBDA_MIN = 1e-6
 _LAMBDA_MAX = 1e12
 # Noise replicates propagated through the smoothing (fixed seed: the result is repeatable).
 _MC_REPLICATES = 16
 _MC_SEED = 1729
-# Residuals more than this times the scale of pure-noise residuals: the smoothing removed
-# part of the speed itself there, and is reduced (by _LAMBDA_STEP) in that block.
-_RESIDUAL_RATIO_MAX = 1.5
-_LAMBDA_STEP = 40.0
-# At most this fraction of the record at each end may be left out where only the one-sided
-# smoothing there leaves the speed too uncertain; more is refused.
-_END_FRACTION = 0.05
+# Smoothing removes part of the speed itself where the residuals, averaged over a few pulses,
+# stand out from what the same smoothing leaves on pure jitter: the smoothing is reduced there
+# (by _LAMBDA_STEP per pass, at most _SMOOTH_PASSES passes).
+_STRUCTURE_RATIO_MAX = 2.0
+_LAMBDA_STEP = 30.0
+_SMOOTH_PASSES = 4
+# Edges timed only to the sample: a smoothed pulse time may be at most this times half a
+# sample from its pulse.  Each time is within half a sample of its edge, but where the pitch is
+# close to a whole number of samples the errors form a slow sawtooth whose jumps of one sample
+# the smoothing splits in the middle (and rings a little).
+_QUANTISED_SLACK = 2.0
+# A block's jitter estimate is not taken below this fraction of the record's median: where the
+# pitch is close to a whole number of samples the timing errors of neighbouring pulses are
+# alike and the differences see almost none of them.
+_JITTER_FLOOR_FRACTION = 0.5
 # MAD to standard deviation for Gaussian data (Hampel 1974).
 _MAD_TO_SIGMA = 1.482602218505602
 
@@ -831,6 +894,18 @@ class PulseTiming:
     raw_speed_uncertainty : float
         The RMS relative speed error interpolating the pulse times would have left (a
         fraction); equals ``speed_uncertainty`` when they were not smoothed.
+    angle_uncertainty_rev : float
+        Estimated RMS error of the fitted shaft angle (revolutions) over the record: at order
+        ``k`` it is a phase error of ``360 k angle_uncertainty_rev`` degrees RMS.
+    tolerance : float
+        The speed tolerance the smoothing aimed at and the warnings refer to (RMS, a fraction);
+        NaN when none was set.
+    sample_step_s : float
+        The tacho's sample interval (s) when its edges are timed only to the sample (the pulse
+        times fall on that grid: an ideal step has no sample on the edge itself, and the
+        timing error is uniform within +-half a sample); NaN otherwise.
+    beyond_tolerance_s : tuple of (float, float)
+        Spans (s) where the local speed uncertainty exceeds the tolerance.
 
     Notes
     -----
@@ -850,26 +925,55 @@ class PulseTiming:
     speed_uncertainty_max: float
     smoothing_s: float = 0.0
     raw_speed_uncertainty: float = math.nan
+    angle_uncertainty_rev: float = math.nan
+    tolerance: float = math.nan
+    sample_step_s: float = math.nan
+    beyond_tolerance_s: tuple = ()
 
     @property
     def smoothed(self) -> bool:
         """True when the pulse times were smoothed before the fit."""
         return self.smoothing_s > 0
 
+    @property
+    def within_tolerance(self) -> bool:
+        """True unless the local speed uncertainty exceeds the tolerance somewhere."""
+        return not self.beyond_tolerance_s
+
     def describe(self) -> str:
         """One line for a log: the jitter, whether the times were smoothed, the uncertainty."""
         if not math.isfinite(self.jitter_s):
             return "pulse timing jitter not estimated (too few pulses)"
-        text = (f"pulse timing jitter {_duration(self.jitter_s)} RMS; speed uncertainty "
-                f"{100 * self.speed_uncertainty:.2g} % RMS, at most "
-                f"{100 * self.speed_uncertainty_max:.2g} % locally "
-                f"({100 * _COVERAGE * self.speed_uncertainty_max:.2g} % with coverage factor "
-                f"{_COVERAGE:g})")
+        text = (f"pulse timing jitter {_duration(self.jitter_s)} RMS")
+        if math.isfinite(self.sample_step_s):
+            text += (f" (edges timed only to the sample, {_duration(self.sample_step_s)}: "
+                     "uniform within +-half a sample)")
+        text += (f"; speed uncertainty {_pct(self.speed_uncertainty)} % RMS, at most "
+                 f"{_pct(self.speed_uncertainty_max)} % locally "
+                 f"({_pct(_COVERAGE * self.speed_uncertainty_max)} % with coverage factor "
+                 f"{_COVERAGE:g})")
+        if math.isfinite(self.angle_uncertainty_rev):
+            text += f"; angle uncertainty {360 * self.angle_uncertainty_rev:.2g} deg RMS"
         if self.smoothed:
             text += (f"; pulse times smoothed (interpolated: "
-                     f"{100 * self.raw_speed_uncertainty:.2g} % RMS), speed changes faster "
+                     f"{_pct(self.raw_speed_uncertainty)} % RMS), speed changes faster "
                      f"than about {_duration(self.smoothing_s)} rounded off")
+        if math.isfinite(self.tolerance):
+            text += (f"; speed tolerance {_pct(self.tolerance)} % RMS" +
+                     ("" if self.within_tolerance else
+                      f", exceeded in {_span_list(self.beyond_tolerance_s)}"))
         return text
+
+
+def _pct(fraction: float) -> str:
+    """A fraction as a percentage with two significant figures ('0.016', '2.1')."""
+    return f"{100 * fraction:.2g}"
+
+
+def _span_list(spans) -> str:
+    """'1.000-2.000 s, 3.100-3.200 s and 4 more'."""
+    text = ", ".join(f"{round(a, 3) + 0.0:.3f}-{round(b, 3) + 0.0:.3f} s" for a, b in spans[:5])
+    return text + (f" and {len(spans) - 5} more" if len(spans) > 5 else "")
 
 
 def _duration(seconds: float) -> str:
@@ -965,24 +1069,47 @@ def _interpolant_speed_gain() -> float:
 
 
 @functools.lru_cache(maxsize=1)
-def _smoother_gain_table() -> tuple[np.ndarray, np.ndarray]:
-    """log10(lambda) and the RMS slope noise of the smoothing for unit white noise.
+def _smoother_gain_table() -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Noise figures of the smoothing against log10(lambda), for unit white noise.
 
-    The smoothing acts in the interior like the filter ``1 / (1 + lambda (2 sin(w/2))^(2d))``
-    on a unit grid; the slope noise is ``sqrt((1/pi) int_0^pi w^2 H(w)^2 dw)`` (Parseval).
+    The smoothing acts in the interior like the filter ``H(w) = 1 / (1 + lambda (2
+    sin(w/2))^(2d))`` on a unit grid.  Returns ``log10(lambda)`` and, by Parseval:
+
+    * the RMS slope noise ``sqrt((1/pi) int_0^pi w^2 H^2 dw)``;
+    * the RMS value noise ``sqrt((1/pi) int_0^pi H^2 dw)``;
+    * for the residual ``(1 - H)`` of white noise, the ratio of the RMS of its running mean
+      over :func:`_structure_width` points to its own RMS (the running mean of width ``m``
+      has the response ``sin(m w / 2) / (m sin(w / 2))``).
     """
-    w = np.linspace(0.0, np.pi, 4001)
+    w = np.linspace(0.0, np.pi, 4001)[1:]
+    dw = w[1] - w[0]
     log_lam = np.arange(math.log10(_LAMBDA_MIN), math.log10(_LAMBDA_MAX) + 1e-9, 0.0625)
-    h = 1.0 / (1.0 + np.multiply.outer(10.0 ** log_lam,
-                                       (2 * np.sin(w / 2)) ** (2 * _SMOOTH_ORDER)))
-    f = w * w * h * h
-    gain = np.sqrt((f[:, 1:] + f[:, :-1]).sum(axis=1) * (0.5 * (w[1] - w[0])) / np.pi)
-    return log_lam, gain
+    lam = 10.0 ** log_lam
+    h = 1.0 / (1.0 + np.multiply.outer(lam, (2 * np.sin(w / 2)) ** (2 * _SMOOTH_ORDER)))
+    slope = np.sqrt((w * w * h * h).sum(axis=1) * dw / np.pi)
+    value = np.sqrt((h * h).sum(axis=1) * dw / np.pi)
+    m = _structure_width(lam)[:, None].astype(np.float64)
+    avg = (np.sin(m * w / 2) / (m * np.sin(w / 2))) ** 2
+    r2 = (1.0 - h) ** 2
+    ratio = np.sqrt((avg * r2).sum(axis=1) / r2.sum(axis=1))
+    return log_lam, slope, value, ratio
+
+
+def _structure_width(lam: np.ndarray) -> np.ndarray:
+    """Pulses averaged by the structure test: a quarter of the smoothing's span, 4 to 256."""
+    return np.clip(np.rint(0.25 * _half_power_period(np.asarray(lam, dtype=np.float64))), 4,
+                   256).astype(np.int64)
+
+
+def _table_at(lam: np.ndarray, column: int) -> np.ndarray:
+    """Column ``column`` of :func:`_smoother_gain_table` at penalty weights ``lam``."""
+    table = _smoother_gain_table()
+    return np.interp(np.log10(np.clip(lam, _LAMBDA_MIN, _LAMBDA_MAX)), table[0], table[column])
 
 
 def _lambda_for_gain(gain: np.ndarray) -> np.ndarray:
     """Penalty weight whose slope noise gain is ``gain`` (clipped to the table's range)."""
-    log_lam, g = _smoother_gain_table()
+    log_lam, g = _smoother_gain_table()[:2]
     return 10.0 ** np.interp(-np.log(gain), -np.log(g), log_lam)
 
 
@@ -1060,33 +1187,32 @@ def _running_rms(u: np.ndarray, width: int) -> np.ndarray:
 
 @dataclass(frozen=True)
 class _TimingResult:
-    """What :func:`_pulse_timing` found: the times to fit, the pulses kept, the timing."""
+    """What :func:`_pulse_timing` found: the times to fit and the timing."""
 
     times: np.ndarray          # pulse times to fit (smoothed or not), all pulses
-    keep: slice                # pulses kept (the ends may be left out)
     timing: PulseTiming
-    left_out: tuple            # (time_s, reason) for each end left out
+    knots: np.ndarray | None = None   # pulses the angle fit needs (None: all)
 
 
-def _sample_grid_hint(t: np.ndarray) -> str:
-    """A hint when the pulse times fall on a regular grid: edges timed only to the sample.
+def _sample_step(t: np.ndarray) -> float:
+    """The sample interval when the pulse times fall on a regular grid, else NaN.
 
     A square tacho edge (no sample on the edge itself) is timed to the sample it falls on,
     whatever the interpolation: the pulse times then differ by whole sample intervals, and
-    the jitter is up to half a sample.
+    the timing error is uniform within +-half a sample.
     """
+    if len(t) < 12:
+        return math.nan
     d2 = np.abs(np.diff(t, n=2))
     scale = float(np.max(np.abs(t)))
     step = d2[d2 > 1e-9 * scale]
     if len(step) < 10:
-        return ""
+        return math.nan
     q = float(np.min(step))
     k = d2 / q
     if np.mean(np.abs(k - np.rint(k)) < 1e-3) < 0.99:
-        return ""
-    return (f"; the pulse times fall on a grid of {_duration(q)} (the tacho's sample interval, "
-            f"{1 / q:.6g} Hz?): its edges are timed only to the sample, so record the tacho at "
-            "a higher rate or through a slower (analogue) edge")
+        return math.nan
+    return q
 
 
 def _pulses(k: int) -> str:
@@ -1101,8 +1227,61 @@ def _spans(bad: np.ndarray, t_eval: np.ndarray) -> tuple[np.ndarray, np.ndarray]
             t_eval[np.minimum(ends + 1, len(t_eval) - 1)])
 
 
-def _pulse_timing(t: np.ndarray, counts: np.ndarray) -> _TimingResult:
-    """Estimate the pulse timing jitter; smooth the pulse times when it would reach the speed.
+def _block_rms(x: np.ndarray, edges: np.ndarray) -> np.ndarray:
+    """RMS of the rows of ``x`` (all columns together) within each block of rows."""
+    sq = (x * x).sum(axis=1) if x.ndim == 2 else x * x
+    cols = x.shape[1] if x.ndim == 2 else 1
+    sums = np.add.reduceat(sq, edges[:-1])
+    return np.sqrt(sums / (np.diff(edges) * cols))
+
+
+def _running_mean(x: np.ndarray, width: np.ndarray) -> np.ndarray:
+    """Centred running mean of the rows of ``x`` over ``width`` rows (per row; shorter at ends)."""
+    c = np.concatenate((np.zeros((1,) + x.shape[1:]), np.cumsum(x, axis=0)))
+    i = np.arange(len(x))
+    lo = np.maximum(i - width // 2, 0)
+    hi = np.minimum(i + width // 2 + 1, len(x))
+    d = (hi - lo).astype(np.float64)
+    return (c[hi] - c[lo]) / (d[:, None] if x.ndim == 2 else d)
+
+
+def _end_noise(c0: np.ndarray, sig: np.ndarray, pitch: np.ndarray, lam: np.ndarray,
+               u: np.ndarray) -> None:
+    """Raise ``u`` (relative speed noise per pulse) near the ends to what a Monte Carlo
+    propagation through the same smoothing and fit gives there (the smoothing sees one side
+    only); in place."""
+    n = len(c0)
+    for side in (0, 1):
+        idx = np.arange(n) if side == 0 else np.arange(n)[::-1]
+        reach = int(np.clip(4 * _half_power_period(lam[idx[0]]), 16, n))
+        part = np.sort(idx[:reach])
+        c = c0[part] - c0[part[0]]
+        rng = np.random.default_rng(_MC_SEED + side)
+        noise = rng.standard_normal((len(part), _MC_REPLICATES)) * sig[part, None]
+        grid = np.arange(int(c[-1]) + 1, dtype=np.float64)
+        z = _smooth_times(c, noise, np.interp(grid, c.astype(np.float64), lam[part]))
+        x_eval, mc = _speed_noise(c, z, pitch[part])
+        mc = np.maximum(mc[0::2], np.concatenate((mc[1::2], mc[-1:])))
+        near = part[:reach // 2] if side == 0 else part[reach - reach // 2:]
+        near_mc = mc[:reach // 2] if side == 0 else mc[reach - reach // 2:]
+        u[near] = np.maximum(u[near], near_mc)
+
+
+def _merged_spans(t_a: np.ndarray, t_b: np.ndarray, *, span_s: float) -> list:
+    """Spans (t_a, t_b) joined where less than 2 % of ``span_s`` (or 0.5 s) separates them."""
+    out: list = []
+    join = max(0.02 * span_s, 0.5)
+    for a, b in zip(t_a.tolist(), t_b.tolist()):
+        if out and a - out[-1][1] <= join:
+            out[-1] = (out[-1][0], max(out[-1][1], b))
+        else:
+            out.append((a, b))
+    return out
+
+
+def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
+                  tolerance: float) -> _TimingResult:
+    """Estimate the pulse timing jitter; smooth the pulse times as far as the tolerance asks.
 
     Parameters
     ----------
@@ -1110,26 +1289,34 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray) -> _TimingResult:
         Kept pulse times (s).
     counts : ndarray of int, shape (n,)
         Pitch count of each pulse (strictly increasing).
+    pulses_per_rev : int
+        Pitches per revolution.
+    tolerance : float
+        Speed tolerance, RMS relative (a fraction).
 
     Returns
     -------
     _TimingResult
-
-    Raises
-    ------
-    TachoError
-        Where even the smoothed speed's expanded uncertainty exceeds 0.1 %, naming the
-        seconds (short stretches at the very start or end are left out instead).  A
-        :class:`FoldlineWarning` says when the times were smoothed.
+        The times to fit and the :class:`PulseTiming`; a :class:`FoldlineWarning` names the
+        seconds where the speed uncertainty exceeds the tolerance.
     """
     n = len(t)
-    whole = slice(0, n)
+    step_s = _sample_step(t)
     if n < _JITTER_ORDERS[0] + 8:
-        return _TimingResult(t, whole, PulseTiming(math.nan, math.nan, math.nan), ())
+        return _TimingResult(t, PulseTiming(math.nan, math.nan, math.nan, tolerance=tolerance,
+                                            sample_step_s=step_s))
     edges = _block_edges(n)
     centres, sig_b = _jitter_by_block(counts, t, len(edges) - 1)
     if not np.isfinite(sig_b).all():
-        return _TimingResult(t, whole, PulseTiming(math.nan, math.nan, math.nan), ())
+        return _TimingResult(t, PulseTiming(math.nan, math.nan, math.nan, tolerance=tolerance,
+                                            sample_step_s=step_s))
+    # Floors: near a whole number of samples per pitch neighbouring timing errors are alike and
+    # the differences miss them; edges timed only to the sample are uniform within +-half a
+    # sample (standard deviation step / sqrt(12)).
+    floor = _JITTER_FLOOR_FRACTION * float(np.median(sig_b))
+    if math.isfinite(step_s):
+        floor = max(floor, step_s / math.sqrt(12.0))
+    sig_b = np.maximum(sig_b, floor)
     block = np.clip(np.searchsorted(edges, np.arange(n), side="right") - 1, 0, len(sig_b) - 1)
     sig = np.interp(np.arange(n), centres, sig_b)
     pitch_int = np.diff(t) / np.diff(counts)              # seconds per pitch, per interval
@@ -1137,88 +1324,82 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray) -> _TimingResult:
     u_raw = _interpolant_speed_gain() * sig / pitch
     jitter = float(np.median(sig_b))
     raw_rms = float(np.sqrt(np.mean(u_raw * u_raw)))
-    if u_raw.max() <= _SMOOTH_ABOVE:
-        return _TimingResult(t, whole, PulseTiming(jitter, raw_rms, float(u_raw.max()), 0.0,
-                                                   raw_rms), ())
+    angle_raw = float(np.sqrt(np.mean((sig / pitch) ** 2))) / pulses_per_rev
+    cf = (counts - counts[0]).astype(np.float64)
+    if u_raw.max() <= _SMOOTH_ABOVE_FRACTION * tolerance:
+        timing = PulseTiming(jitter, raw_rms, float(u_raw.max()), 0.0, raw_rms, angle_raw,
+                             tolerance, step_s)
+        return _TimingResult(t, timing)
 
     # Penalty weight per pulse: the least smoothing that brings the speed noise to the target.
-    lam = np.clip(_lambda_for_gain(_SPEED_RMS_TARGET * pitch / np.maximum(sig, 1e-300)),
+    target = _SMOOTH_TARGET_FRACTION * tolerance
+    lam = np.clip(_lambda_for_gain(target * pitch / np.maximum(sig, 1e-300)),
                   _LAMBDA_MIN, _LAMBDA_MAX)
-    lam = np.where(u_raw <= _SPEED_RMS_TARGET, _LAMBDA_MIN, lam)
+    lam = np.where(u_raw <= target, _LAMBDA_MIN, lam)
     c0 = counts - counts[0]
-    cf = c0.astype(np.float64)
     # Remove a quadratic in the count (no change to the result: the penalty ignores it).
     trend = np.polyval(np.polyfit(cf / cf[-1], t - t[0], 2), cf / cf[-1]) + t[0]
-    rng = np.random.default_rng(_MC_SEED)
-    noise = rng.standard_normal((n, _MC_REPLICATES)) * sig[:, None]
-    data = np.column_stack((t - trend, noise))
+    y = (t - trend)[:, None]
     grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
+    mid = (edges[:-1] + edges[1:]) // 2
     factor = np.ones(len(sig_b))
-    for attempt in range(8):
+    for attempt in range(_SMOOTH_PASSES + 1):
         lam_now = np.maximum(lam * factor[block], _LAMBDA_MIN)
-        z = _smooth_times(c0, data, np.interp(grid, cf, lam_now))
-        resid = data - z
-        # Residuals well above those the same smoothing leaves on pure jitter: it removed part
-        # of the speed itself there (the speed changes too fast); smooth less in that block.
-        ratio = np.array([_robust_scale(resid[a:b, 0]) /
-                          max(_robust_scale(resid[a:b, 1:].ravel()), 1e-300)
-                          for a, b in zip(edges[:-1], edges[1:])])
-        too_big = (ratio > _RESIDUAL_RATIO_MAX) & (factor > 0)
+        z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
+        if attempt == _SMOOTH_PASSES:
+            break
+        resid = (y - z)[:, 0]
+        if math.isfinite(step_s):
+            # Edges timed only to the sample: each time is within half a sample of the edge, so
+            # a smoothed time further than that from its pulse has left the true speed.
+            worst = np.maximum.reduceat(np.abs(resid), edges[:-1])
+            too_big = worst > _QUANTISED_SLACK * 0.5 * step_s
+        else:
+            # Residuals averaged over a quarter of the smoothing's span: pure jitter averages
+            # away (to the ratio the smoothing's response gives white noise), speed the
+            # smoothing removed does not.  Relative to the residuals' own scale, so a
+            # misjudged jitter does not matter.
+            avg = _running_mean(resid, _structure_width(lam_now))
+            own = _block_rms(avg, edges) / np.maximum(_block_rms(resid, edges), 1e-300)
+            too_big = own > _STRUCTURE_RATIO_MAX * _table_at(lam_now[mid], 3)
+        too_big &= factor * lam[edges[:-1]] > _LAMBDA_MIN
         if not too_big.any():
             break
-        factor = np.where(too_big, factor / _LAMBDA_STEP if attempt < 6 else 0.0, factor)
+        factor = np.where(too_big, factor / _LAMBDA_STEP, factor)
     smooth_t = z[:, 0] + trend
-    x_eval, u = _speed_noise(c0, z[:, 1:], pitch)
-    u_local = _running_rms(u, 5)
-    t_eval = np.interp(x_eval, cf, smooth_t)
-    bad = _COVERAGE * u_local > _SPEED_LIMIT
-    keep, left_out = whole, []
-    if bad.any():
-        good = np.flatnonzero(~bad)
-        end_limit = max(2, int(_END_FRACTION * len(bad)))
-        if len(good) and not bad[good[0]:good[-1] + 1].any() and good[0] <= end_limit \
-                and len(bad) - 1 - good[-1] <= end_limit and good[-1] - good[0] >= 4:
-            # Only the very ends (where the smoothing sees one side only) are too uncertain:
-            # leave them out.  Evaluation point 2k is pulse k, 2k + 1 the middle after it.
-            k0, k1 = (int(good[0]) + 1) // 2, int(good[-1]) // 2
-            keep = slice(k0, k1 + 1)
-            why = (f"left out: the speed there is uncertain by up to "
-                   f"{100 * _COVERAGE * float(u_local[bad].max()):.3g} % (coverage factor "
-                   f"{_COVERAGE:g}; noisy tacho, smoothed from one side only)")
-            if k0 > 0:
-                left_out.append((float(t[0]), f"{_pulses(k0)} at the start of the record "
-                                 f"({t[0]:.3f}-{t[k0]:.3f} s) {why}"))
-            if k1 < n - 1:
-                left_out.append((float(t[k1 + 1]), f"{_pulses(n - 1 - k1)} at the end of the "
-                                 f"record ({t[k1]:.3f}-{t[-1]:.3f} s) {why}"))
-            u, u_local = u[2 * k0:2 * k1 + 1], u_local[2 * k0:2 * k1 + 1]
-        else:
-            t_a, t_b = _spans(bad, t_eval)
-            raise _unusable(
-                f"the tacho pulse times are too noisy (timing jitter about {_duration(jitter)} "
-                f"RMS, {100 * float(np.median(sig / pitch)):.2g} % of a pulse interval): even "
-                f"smoothed, the speed is uncertain by up to "
-                f"{100 * _COVERAGE * float(u_local.max()):.3g} % (coverage factor "
-                f"{_COVERAGE:g}; allowed: {100 * _SPEED_LIMIT:g} %){_sample_grid_hint(t)}",
-                t_a, t_b)
+    # Speed and angle noise the smoothing leaves: its interior response (Parseval); near the
+    # ends, where it sees one side only, by propagating simulated jitter through the same
+    # smoothing and fit (Monte Carlo, JCGM 101:2008).
+    u = _table_at(lam_now, 1) * sig / pitch
+    angle_noise = _table_at(lam_now, 2) * sig / pitch
+    _end_noise(c0, sig, pitch, lam_now, u)
+    angle_unc = float(np.sqrt(np.mean(angle_noise ** 2))) / pulses_per_rev
+    bad = u > tolerance
+    beyond = tuple(_merged_spans(*_spans(bad, t), span_s=float(t[-1] - t[0]))) \
+        if bad.any() else ()
     smoothed = lam_now > _LAMBDA_MIN
-    span = float(np.median(_half_power_period(lam_now[smoothed]) * pitch[smoothed])) \
-        if smoothed.any() else 0.0
-    timing = PulseTiming(jitter, float(np.sqrt(np.mean(u * u))), float(u_local.max()), span,
-                         raw_rms)
-    done = (f"so they were smoothed; speed changes faster than about {_duration(span)} are "
-            "rounded off" if smoothed.any() else "but the speed changes too fast to smooth them")
-    ends = "".join(f"; {reason}" for _, reason in left_out)
-    peak = (f", up to {_duration(float(sig_b.max()))} locally"
-            if sig_b.max() > 2 * jitter else "")
-    warnings.warn(
-        f"the tacho pulse times are noisy (timing jitter about {_duration(jitter)} RMS{peak}): "
-        f"interpolating them would leave the speed uncertain by {100 * raw_rms:.2g} % RMS "
-        f"(up to {100 * float(u_raw.max()):.2g} % locally), {done}; speed uncertainty now "
-        f"{100 * timing.speed_uncertainty:.2g} % RMS, at most "
-        f"{100 * _COVERAGE * timing.speed_uncertainty_max:.2g} % (coverage factor "
-        f"{_COVERAGE:g}){ends}{_sample_grid_hint(t)}", FoldlineWarning, stacklevel=3)
-    return _TimingResult(smooth_t, keep, timing, tuple(left_out))
+    period = _half_power_period(lam_now)
+    span = float(np.median(period[smoothed] * pitch[smoothed])) if smoothed.any() else 0.0
+    timing = PulseTiming(jitter, float(np.sqrt(np.mean(u * u))), float(u.max()), span,
+                         raw_rms, angle_unc, tolerance, step_s, beyond)
+    if beyond:
+        where = ("; edges timed only to the sample (" + _duration(step_s) + ")"
+                 if math.isfinite(step_s) else "")
+        warnings.warn(
+            f"the speed from the tacho is uncertain by up to {_pct(float(u.max()))} % "
+            f"(RMS, {_pct(timing.speed_uncertainty)} % over the record) in "
+            f"{_span_list(beyond)}, beyond the speed tolerance of {_pct(tolerance)} %: timing "
+            f"jitter about {_duration(jitter)} RMS{where}, "
+            + (f"pulse times smoothed over about {_duration(span)}"
+               if smoothed.any() else "pulse times interpolated"),
+            FoldlineWarning, stacklevel=3)
+    # Knots: the smoothed curve holds nothing faster than its span, so a knot every eighth of
+    # it (in pitches) reproduces it; unsmoothed stretches keep every pulse.
+    step = np.maximum(1, np.floor(period / 8.0)).astype(np.int64)
+    knots = np.flatnonzero(np.diff(c0 // step, prepend=-1) != 0)
+    if knots[-1] != n - 1:
+        knots = np.append(knots, n - 1)
+    return _TimingResult(smooth_t, timing, knots)
 
 
 # --------------------------------------------------------------------------------------------
@@ -1287,8 +1468,8 @@ def _remove_extra_pulses(t: np.ndarray, tol: float) -> tuple[np.ndarray, list, l
 def _unusable(message: str, t_a: np.ndarray, t_b: np.ndarray) -> TachoError:
     spans = ", ".join(f"{a:.3f}-{b:.3f} s" for a, b in zip(t_a[:5], t_b[:5]))
     more = f" and {len(t_a) - 5} more" if len(t_a) > 5 else ""
-    return TachoError(f"{message}: unusable seconds {spans}{more}; cut the record to the usable "
-                      "part (or give a speed table) and track each part on its own")
+    return TachoError(f"{message}: unusable seconds {spans}{more}; check the tacho channel, its "
+                      "pulses per rev and missing pulses, or give the speed another way")
 
 
 def _lost_in_a_row(dt: np.ndarray, i: int, n_i: int, tolerance: float) -> bool:
@@ -1307,8 +1488,9 @@ def _lost_in_a_row(dt: np.ndarray, i: int, n_i: int, tolerance: float) -> bool:
                 and abs(dt[i] / pitch - n_i) <= tolerance)
 
 
-def _too_long_error(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm) -> TachoError:
-    """The refusal for intervals longer than a lost pulse (or slower than ``min_rpm``).
+def _break_reasons(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm) -> str:
+    """Why the speed is unknown across the intervals ``too_long`` (longer than a lost pulse,
+    or slower than ``min_rpm``).
 
     Intervals of a few whole pitches between regular neighbours are named as pulses lost in a
     row; the others as a stop, an abrupt slow-down or a reversal.
@@ -1333,12 +1515,59 @@ def _too_long_error(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm) ->
         parts.append("the shaft stopped, slowed abruptly or reversed (a pulse interval far "
                      "longer than its neighbours predict" +
                      (f", or slower than {min_rpm:g} rpm)" if min_rpm else ")"))
-    return _unusable("; ".join(parts), tk[idx], tk[idx + 1])
+    return "; ".join(parts)
+
+
+def speed_tolerance_for(max_order: float, revs_per_block: float) -> float:
+    """Default speed tolerance from the error budget of order analysis (RMS, a fraction).
+
+    Parameters
+    ----------
+    max_order : float
+        Highest order of interest (the order spectrum's top, ``samples_per_rev / 2.56`` by
+        default).
+    revs_per_block : float
+        Revolutions per FFT block (order resolution = 1 / revs_per_block).
+
+    Returns
+    -------
+    float
+        ``1 / (8 max_order revs_per_block)``.
+
+    Notes
+    -----
+    A relative speed error ``e`` held over one FFT block of ``R`` revolutions makes the shaft
+    angle drift by ``e R`` revolutions across the block; at order ``K`` that is a phase walk of
+    ``360 K e R`` degrees, which spreads the order's line over ``K e R`` bins of the order
+    resolution.  The tolerance keeps the walk at the highest order of interest within an
+    eighth of a cycle (45 degrees, an eighth of a bin of smearing): a Hann-windowed block then
+    loses at most 0.09 dB of that order's amplitude (computed; a quarter cycle would lose 0.35
+    dB).  The budget is pessimistic for wheels with many teeth, whose smoothed speed error
+    changes sign within a block.  With the defaults (order 100, 16 revolutions per block) it
+    is 7.8e-5 (0.0078 %).
+
+    Examples
+    --------
+    >>> round(100 * speed_tolerance_for(100.0, 16.0), 5)
+    0.00781
+    """
+    max_order = finite_real(max_order, "max_order")
+    revs_per_block = finite_real(revs_per_block, "revs_per_block")
+    if max_order <= 0 or revs_per_block <= 0:
+        raise InputError(f"max_order {max_order!r} and revs_per_block {revs_per_block!r}: "
+                         "allowed: both > 0")
+    return 1.0 / (8.0 * max_order * revs_per_block)
+
+
+#: Speed tolerance when none is given: the budget of :func:`speed_tolerance_for` at order 100
+#: (256 samples per revolution / 2.56) and 16 revolutions per block.
+DEFAULT_SPEED_TOLERANCE = 1.0 / (8.0 * 100.0 * 16.0)
 
 
 def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int = 0,
                 method: str = "spline", tolerance: float = 0.3,
-                min_rpm: float | None = None) -> ShaftAngle:
+                min_rpm: float | None = None,
+                speed_tolerance: float | None = None) -> ShaftAngle:
     """Assign each tacho pulse its shaft angle and fit the angle curve through them.
 
     Parameters
@@ -1486,6 +1715,13 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         min_rpm = finite_real(min_rpm, "min_rpm")
         if min_rpm <= 0:
             raise InputError(f"min_rpm {min_rpm!r} is not valid; allowed: a speed > 0 rpm")
+    if speed_tolerance is None:
+        speed_tol = DEFAULT_SPEED_TOLERANCE
+    else:
+        speed_tol = finite_real(speed_tolerance, "speed_tolerance")
+        if not 0 < speed_tol < 1:
+            raise InputError(f"speed_tolerance {speed_tolerance!r} is not valid; allowed: a "
+                             "relative speed uncertainty between 0 and 1 (1e-4 is 0.01 %)")
     if not np.isfinite(t).all():
         raise InputError("pulse_times_s holds NaN or infinite values; allowed: finite times")
     bad = np.flatnonzero(np.diff(t) <= 0)
@@ -1518,33 +1754,100 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
     if min_rpm is not None:
         slow = (60.0 / (dt / n * n_pr)) < min_rpm
         too_long |= slow
-    if too_long.any():
-        raise _too_long_error(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm)
-    c = np.concatenate(([0], np.cumsum(n)))
-    if m_miss == 0:
-        for i in np.flatnonzero(n >= 2):
-            for k in range(1, n[i]):
-                d_times.append(float(tk[i] + k * dt[i] / n[i]))
-                d_reasons.append(f"missing pulse: angle assigned across an interval of "
-                                 f"{r[i]:.2f} pitches")
-        revs = c / n_pr
-    else:
-        revs = _gap_angles(tk, dt, r, n, c, n_pr, m_miss, d_times, d_reasons)
-    fit = _pulse_timing(tk, c)
-    for time_s, reason in fit.left_out:
-        d_times.append(time_s)
-        d_reasons.append(reason)
+    breaks = np.flatnonzero(too_long)
+    why = (_break_reasons(tk, dt, r, n, too_long, slow, tolerance, m_miss, min_rpm)
+           if len(breaks) else "")
+    bounds = np.concatenate(([0], breaks + 1, [len(tk)]))
+    pieces = []        # (fitted times, angles, timing) of each usable stretch
+    unusable = []      # (t_a, t_b, reason) of each span where the speed is unknown
+    for i in breaks:
+        unusable.append((float(tk[i]), float(tk[i + 1]), why))
+    for s0, s1 in zip(bounds[:-1], bounds[1:]):
+        ts = tk[s0:s1]
+        if len(ts) < need:
+            if len(ts) > 1:
+                unusable.append((float(ts[0]), float(ts[-1]), f"{_pulses(len(ts))} between "
+                                 f"breaks, too few to find a shaft angle (at least {need})"))
+            continue
+        n_s, r_s, dt_s = n[s0:s1 - 1], r[s0:s1 - 1], dt[s0:s1 - 1]
+        c = np.concatenate(([0], np.cumsum(n_s)))
+        if m_miss == 0:
+            for i in np.flatnonzero(n_s >= 2):
+                for k in range(1, n_s[i]):
+                    d_times.append(float(ts[i] + k * dt_s[i] / n_s[i]))
+                    d_reasons.append(f"missing pulse: angle assigned across an interval of "
+                                     f"{r_s[i]:.2f} pitches")
+            revs = c / n_pr
+        else:
+            try:
+                revs = _gap_angles(ts, dt_s, r_s, n_s, c, n_pr, m_miss, d_times, d_reasons)
+            except TachoError as exc:
+                if len(bounds) == 2:
+                    raise
+                unusable.append((float(ts[0]), float(ts[-1]), str(exc)))
+                continue
+        fit = _pulse_timing(ts, c, pulses_per_rev=n_pr, tolerance=speed_tol)
+        keep_k = slice(None) if fit.knots is None else fit.knots
+        pieces.append((fit.times[keep_k], revs[keep_k], fit.timing))
+    if not pieces:
+        raise _unusable(f"no stretch of the record gives a shaft angle: {why}" if why else
+                        "no stretch of the record gives a shaft angle",
+                        np.array([u[0] for u in unusable]), np.array([u[1] for u in unusable]))
+    for t_a, t_b, reason in unusable:
+        d_times.append(t_a)
+        d_reasons.append(f"speed unknown from {t_a:.3f} to {t_b:.3f} s: {reason}")
     order = np.argsort(d_times, kind="stable")
     doubted = DoubtedPulses(np.asarray(d_times, dtype=np.float64)[order],
                             tuple(d_reasons[i] for i in order))
-    # Smoothed times increase: their speed is within 0.1 % (coverage factor 3) of the truth.
-    t_fit, tk, revs = fit.times[fit.keep], tk[fit.keep], revs[fit.keep]
-    angle = ShaftAngle(t_fit, revs, doubted, method, fit.timing)
+    # Stretches joined by whole revolutions, so a once-per-revolution reference keeps its phase.
+    times, angles, gaps = [pieces[0][0]], [pieces[0][1]], []
+    for t_s, revs, _ in pieces[1:]:
+        shift = math.ceil(angles[-1][-1] + 1.0 - revs[0])
+        gaps.append(sum(len(a) for a in angles) - 1)
+        times.append(t_s)
+        angles.append(revs + shift)
+    timing = _combine_timing([pc[2] for pc in pieces], [len(pc[0]) for pc in pieces])
+    angle = ShaftAngle(np.concatenate(times), np.concatenate(angles), doubted, method, timing,
+                       gaps=tuple(gaps))
     if angle.rpm_min <= 0:
         bad = np.flatnonzero(angle._piece_lo <= 0)
         raise _unusable("the angle fitted through the pulses does not rise monotonically (the "
-                        "speed changes too abruptly between pulses)", tk[bad], tk[bad + 1])
+                        "speed changes too abruptly between pulses)", angle.pulse_times_s[bad],
+                        angle.pulse_times_s[bad + 1])
+    if unusable:
+        spans = sorted((a, b) for a, b, _ in unusable)
+        kept = ", ".join(f"{a:.3f}-{b:.3f} s" for a, b in angle.stretches[:5])
+        more = f" and {len(angle.stretches) - 5} more" if len(angle.stretches) > 5 else ""
+        warnings.warn(f"the speed is unknown in {_span_list(spans)} ({why or unusable[0][2]}); "
+                      f"the usable stretches {kept}{more} are tracked on their own",
+                      FoldlineWarning, stacklevel=2)
     return angle
+
+
+def _combine_timing(timings: list, weights: list) -> PulseTiming:
+    """One :class:`PulseTiming` for stretches fitted apart (RMS figures weighted by pulses)."""
+    if len(timings) == 1:
+        return timings[0]
+    w = np.asarray(weights, dtype=np.float64)
+
+    def rms(name):
+        v = np.array([getattr(tm, name) for tm in timings])
+        ok = np.isfinite(v)
+        return float(np.sqrt(np.sum(w[ok] * v[ok] ** 2) / np.sum(w[ok]))) if ok.any() else \
+            math.nan
+
+    def mx(name):
+        v = np.array([getattr(tm, name) for tm in timings])
+        return float(np.nanmax(v)) if np.isfinite(v).any() else math.nan
+
+    jit = np.array([tm.jitter_s for tm in timings])
+    smooth = [tm.smoothing_s for tm in timings if tm.smoothing_s > 0]
+    return PulseTiming(float(np.nanmedian(jit)) if np.isfinite(jit).any() else math.nan,
+                       rms("speed_uncertainty"), mx("speed_uncertainty_max"),
+                       float(np.median(smooth)) if smooth else 0.0,
+                       rms("raw_speed_uncertainty"), rms("angle_uncertainty_rev"),
+                       timings[0].tolerance, mx("sample_step_s"),
+                       tuple(sp for tm in timings for sp in tm.beyond_tolerance_s))
 
 
 def _gap_angles(tk, dt, r, n, c, n_pr, m_miss, d_times, d_reasons) -> np.ndarray:

@@ -275,6 +275,14 @@ class OrderTracker:
                              "ShaftAngle (from tacho_angle, ShaftAngle.from_rpm or "
                              "ShaftAngle.from_speed_table)")
         self.angle = angle
+        # An angle with gaps (a stop, a reversal, pulses lost in a row) is tracked stretch by
+        # stretch, each by a tracker of its own fed the same chunks; the pieces follow one
+        # another with a jump in angle across each gap.
+        self._subs = None
+        if angle.gaps:
+            self._subs = [OrderTracker(rate_hz, a, samples_per_rev=samples_per_rev,
+                                       protect=protect, max_order=max_order)
+                          for a in angle.stretch_angles()]
         self.samples_per_rev = positive_int(samples_per_rev, "samples_per_rev", 4)
         if not isinstance(protect, (bool, np.bool_)):
             raise InputError(f"protect {protect!r} is not valid; allowed: True or False")
@@ -451,6 +459,7 @@ class OrderTracker:
             plan = self._plan
             s0 = plan.s0
             if not self._finished and self._n_in < s0 + plan.support:
+                self._discard_before(s0)      # nothing before the block is needed again
                 return
             tb = (plan.a + plan.valid) / R
             if tb >= self.angle.t_end_s:
@@ -511,6 +520,9 @@ class OrderTracker:
         if not np.isfinite(x).all():
             raise InputError(f"chunk starting at sample {self._n_in} holds NaN or infinite "
                              "values; allowed: finite numbers")
+        if self._subs is not None:
+            self._n_in += len(x)
+            return [piece for sub in self._subs for piece in sub.feed(x)]
         if len(x) and self._k_next < self._k_stop:
             self._bufs.append((self._n_in, x))
         self._n_in += len(x)
@@ -523,6 +535,11 @@ class OrderTracker:
         self._finished = True
         if self._n_in == 0:
             raise InputError("the record is empty; nothing to track")
+        if self._subs is not None:
+            out = [piece for sub in self._subs for piece in sub.finish()]
+            self._n_out = sum(sub._n_out for sub in self._subs)
+            self._blocks = sum(sub._blocks for sub in self._subs)
+            return out
         out = list(self._drain())
         self._bufs = []
         return out
@@ -547,6 +564,13 @@ class OrderTracker:
     @property
     def log(self) -> tuple[str, ...]:
         """What was done, in words (complete after :meth:`finish`)."""
+        if self._subs is not None:
+            lines = [f"order tracking in {len(self._subs)} stretches (the speed is unknown "
+                     "between them): " + ", ".join(f"{a.t_start_s:.3f}-{a.t_end_s:.3f} s"
+                                                   for a in (t.angle for t in self._subs))]
+            for sub in self._subs:
+                lines += [ln for ln in sub.log if ln not in lines]
+            return tuple(lines)
         R = self.rate_hz
         lines = [f"order tracking: {self.samples_per_rev} samples/rev (order Nyquist "
                  f"{self.order_nyquist:g}), rate {R:g} Hz, {self._n_out} samples in "
