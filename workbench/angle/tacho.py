@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
+from scipy import ndimage
 from scipy.interpolate import CubicSpline, make_interp_spline
 from scipy.linalg import solveh_banded
 
@@ -984,7 +985,8 @@ def _duration(seconds: float) -> str:
     return f"{seconds * 1e9:.3g} ns"
 
 
-def _divided_difference_scores(counts: np.ndarray, t: np.ndarray, order: int) -> np.ndarray:
+def _divided_difference_scores(counts: np.ndarray, t: np.ndarray, order: int
+                               ) -> tuple[np.ndarray, np.ndarray]:
     """Divided differences of ``t`` over ``order + 1`` consecutive pulses, scaled to unit noise.
 
     Each score is the ``order``-th divided difference of the pulse times against their pitch
@@ -992,11 +994,21 @@ def _divided_difference_scores(counts: np.ndarray, t: np.ndarray, order: int) ->
     of standard deviation sigma give scores of standard deviation sigma, whatever the spacing
     (lost pulses, a missing-tooth gap); a polynomial of degree below ``order`` gives 0.  On
     evenly spaced pulses this is the plain ``order``-th difference over sqrt(C(2 order, order)).
+
+    Returns the scores and the index of each one's first pulse.  Windows that span an uneven
+    step (a gap, a lost pulse) are left out when most windows are even (cheaper, and enough).
     """
     y = t - t[0]
     scores = np.diff(y, n=order) / math.sqrt(math.comb(2 * order, order))
     step = np.diff(counts)
-    uneven = np.flatnonzero(np.ptp(sliding_window_view(step, order), axis=1) != 0)
+    odd = np.concatenate(([0], np.cumsum(step != step[0])))
+    mixed = odd[order:] - odd[:-order]                    # odd steps in each window
+    uneven = np.flatnonzero((mixed != 0) & (mixed != order))
+    index = np.arange(len(scores))
+    if 2 * len(uneven) <= len(scores):
+        keep = np.ones(len(scores), dtype=bool)
+        keep[uneven] = False
+        return scores[keep], index[keep]
     if len(uneven):
         m = order + 1
         x = sliding_window_view(counts.astype(np.float64), m)[uneven]
@@ -1008,7 +1020,7 @@ def _divided_difference_scores(counts: np.ndarray, t: np.ndarray, order: int) ->
                     w[:, j] *= x[:, j] - x[:, i]
         w = 1.0 / w
         scores[uneven] = (w * yy).sum(axis=1) / np.sqrt((w * w).sum(axis=1))
-    return scores
+    return scores, index
 
 
 def _block_edges(n: int) -> np.ndarray:
@@ -1036,7 +1048,7 @@ def _jitter_by_block(counts: np.ndarray, t: np.ndarray, n_blocks: int
     for order in _JITTER_ORDERS:
         if len(t) < order + 4:
             continue
-        s = _divided_difference_scores(counts, t, order)
+        s, first = _divided_difference_scores(counts, t, order)
         size = len(s) // n_blocks
         if size < 5:
             continue
@@ -1046,9 +1058,10 @@ def _jitter_by_block(counts: np.ndarray, t: np.ndarray, n_blocks: int
         est[-1] = _robust_scale(s[(n_blocks - 1) * size:])
         better = est < sig
         sig = np.where(better, est, sig)
-        c = (np.arange(n_blocks) + 0.5) * size + 0.5 * order
-        c[-1] = 0.5 * ((n_blocks - 1) * size + len(s)) + 0.5 * order
-        centres = np.where(better, c, centres)
+        c = np.empty(n_blocks)
+        c[:-1] = first[(np.arange(n_blocks - 1) + 0.5).astype(np.int64) * size + size // 2]
+        c[-1] = first[((n_blocks - 1) * size + len(s)) // 2]
+        centres = np.where(better, c + 0.5 * order, centres)
     if not np.isfinite(sig).all():
         return centres, np.full(n_blocks, np.nan)
     return centres, sig
@@ -1145,9 +1158,10 @@ def _smooth_times(counts: np.ndarray, y: np.ndarray, lam_grid: np.ndarray) -> np
     lam_rows = sliding_window_view(lam_grid, d + 1).mean(axis=1)
     ab = _penalty_bands(n_grid, lam_rows)
     ab[d, idx] += 1.0
-    if len(idx) < n_grid:   # fill positions without a pulse smoothly; any filling gives the
-        full = CubicSpline(idx.astype(np.float64), y)(np.arange(n_grid, dtype=np.float64))
-        full[idx] = y       # same z, a smooth one keeps the right-hand side small
+    if len(idx) < n_grid:   # fill positions without a pulse; any filling gives the same z,
+        g = np.arange(n_grid, dtype=np.float64)     # a smooth one keeps the right-hand side small
+        full = np.column_stack([np.interp(g, idx.astype(np.float64), col) for col in y.T])
+        full[idx] = y
     else:
         full = y
     dc = np.array([(-1) ** (d - i) * math.comb(d, i) for i in range(d + 1)], dtype=np.float64)
@@ -1245,6 +1259,46 @@ def _running_mean(x: np.ndarray, width: np.ndarray) -> np.ndarray:
     return (c[hi] - c[lo]) / (d[:, None] if x.ndim == 2 else d)
 
 
+def _quadratic_trend(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Least-squares quadratic in ``x`` through ``y`` (normal equations on a scaled abscissa)."""
+    u = 2.0 * x / x[-1] - 1.0
+    y0 = y[0]
+    v = np.vstack((np.ones_like(u), u, u * u))
+    coef = np.linalg.solve(v @ v.T, v @ (y - y0))
+    return coef[0] + u * (coef[1] + u * coef[2]) + y0
+
+
+def _inertia_cap(cf: np.ndarray, pitch: np.ndarray, sig: np.ndarray,
+                 tolerance: float) -> np.ndarray:
+    """Largest penalty weight per pulse whose rounding-off of the speed stays in tolerance.
+
+    A shaft's inertia bounds how fast its speed changes; the sharpest change a run-up gives is
+    its start from rest, where the pulse time grows as the square root of the count ``c``
+    (constant angular acceleration).  For ``t = sqrt(c)`` the smoothing (response ``1 -
+    lambda w^8`` at low frequency) errs on the slope by ``lambda t^(9) / t' = 7918 lambda /
+    c^8`` (relative; 7918 = 2 x 1 x 3 x ... x 15 / 2^9), so ``lambda <= tolerance c^8 /
+    7918``.  ``c`` is read from the data as ``1 / (2 g)``, ``g`` the rate of change of the log
+    pitch per count (for ``t = sqrt(c)``, ``g = 1 / (2 c)``), the largest of its estimates over
+    3, 9 and 33 pulses that stands clear of the jitter (three times its noise); a steady or
+    slowly sweeping shaft (g ~ 0) is not capped.
+    """
+    n = len(cf)
+    lp = np.log(pitch)
+    i = np.arange(n)
+    g = np.zeros(n)
+    for half in (1, 4, 16):
+        if n < 2 * half + 1:
+            break
+        a = np.clip(i - half, 0, n - 1)
+        b = np.clip(i + half, 0, n - 1)
+        span = np.maximum(cf[b] - cf[a], 1.0)
+        est = np.abs(lp[b] - lp[a]) / span - 3.0 * 2.0 * (sig / pitch) / span
+        g = np.maximum(g, est)
+    with np.errstate(divide="ignore", over="ignore"):
+        cap = tolerance * (0.5 / g) ** 8 / 7918.0
+    return np.where(np.isfinite(cap), cap, _LAMBDA_MAX)
+
+
 def _end_noise(c0: np.ndarray, sig: np.ndarray, pitch: np.ndarray, lam: np.ndarray,
                u: np.ndarray) -> None:
     """Raise ``u`` (relative speed noise per pulse) near the ends to what a Monte Carlo
@@ -1280,7 +1334,45 @@ def _merged_spans(t_a: np.ndarray, t_b: np.ndarray, *, span_s: float) -> list:
 
 
 def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
-                  tolerance: float) -> _TimingResult:
+                  tolerance: float, rate_hz: float | None = None) -> _TimingResult:
+    """:func:`_fit_timing`, after removing the edge detector's bias where it shows.
+
+    The detector times an edge by linear interpolation between the two samples around the
+    trigger level; on a band-limited or ramped edge its error depends on where the edge falls
+    between samples (the sub-sample phase ``frac(t x rate)``).  Where the pitch is close to a
+    whole number of samples that phase barely moves and the error becomes a slow drift the
+    smoothing would take for speed.  With the sample rate known, the residuals of a first fit
+    are regressed on three harmonics of the sub-sample phase per block of 4096 pulses; a bias
+    that stands clear of the noise (its fitted RMS above three times what pure jitter gives) is
+    subtracted from the pulse times before the fit that counts.  Edges timed only to the sample
+    have no phase to regress on and are left to :func:`_fit_timing`.
+    """
+    if rate_hz is None or len(t) < 64 or math.isfinite(_sample_step(t)):
+        return _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", FoldlineWarning)
+        first = _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+    if not first.timing.smoothed:
+        return first
+    resid = t - first.times
+    phase = 2 * np.pi * np.mod(t * rate_hz, 1.0)
+    basis = np.column_stack([f(m * phase) for m in (1, 2, 3) for f in (np.cos, np.sin)])
+    bias = np.zeros(len(t))
+    n_block = 4096
+    blocks = max(1, int(round(len(t) / n_block)))
+    for idx in np.array_split(np.arange(len(t)), blocks):
+        coef, *_ = np.linalg.lstsq(basis[idx], resid[idx], rcond=None)
+        fit = basis[idx] @ coef
+        noise = float(np.sqrt(np.mean((resid[idx] - fit) ** 2)))
+        if np.sqrt(np.mean(fit ** 2)) > 3.0 * noise * math.sqrt(basis.shape[1] / len(idx)):
+            bias[idx] = fit
+    if not bias.any():
+        return first
+    return _fit_timing(t - bias, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+
+
+def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
+                tolerance: float) -> _TimingResult:
     """Estimate the pulse timing jitter; smooth the pulse times as far as the tolerance asks.
 
     Parameters
@@ -1336,9 +1428,10 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     lam = np.clip(_lambda_for_gain(target * pitch / np.maximum(sig, 1e-300)),
                   _LAMBDA_MIN, _LAMBDA_MAX)
     lam = np.where(u_raw <= target, _LAMBDA_MIN, lam)
+    lam = np.minimum(lam, _inertia_cap(cf, pitch, sig, tolerance))
     c0 = counts - counts[0]
     # Remove a quadratic in the count (no change to the result: the penalty ignores it).
-    trend = np.polyval(np.polyfit(cf / cf[-1], t - t[0], 2), cf / cf[-1]) + t[0]
+    trend = _quadratic_trend(cf, t)
     y = (t - trend)[:, None]
     grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
     mid = (edges[:-1] + edges[1:]) // 2
@@ -1407,13 +1500,19 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
 # --------------------------------------------------------------------------------------------
 
 def _local_pitch(dt: np.ndarray) -> np.ndarray:
-    """Running median of the pulse intervals: the interval each one is predicted to be."""
+    """Running median of the pulse intervals: the interval each one is predicted to be.
+
+    The ends are padded by odd reflection, which carries a trend on: a run-up from rest,
+    whose first intervals shrink fast, keeps its centre values as predictions (the median of
+    a monotone window is its centre).
+    """
     w = _PITCH_WINDOW
     if len(dt) <= w:
         return np.full(len(dt), np.median(dt))
     pad = w // 2
-    ext = np.pad(dt, pad, mode="reflect")
-    return np.median(sliding_window_view(ext, w), axis=1)
+    ext = np.pad(dt, pad, mode="reflect", reflect_type="odd")
+    ext = np.maximum(ext, 0.5 * float(np.min(dt)))
+    return ndimage.median_filter(ext, size=w, mode="nearest")[pad:-pad]
 
 
 def _remove_extra_pulses(t: np.ndarray, tol: float) -> tuple[np.ndarray, list, list]:
@@ -1567,7 +1666,8 @@ DEFAULT_SPEED_TOLERANCE = 1.0 / (8.0 * 100.0 * 16.0)
 def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int = 0,
                 method: str = "spline", tolerance: float = 0.3,
                 min_rpm: float | None = None,
-                speed_tolerance: float | None = None) -> ShaftAngle:
+                speed_tolerance: float | None = None,
+                sample_rate_hz: float | None = None) -> ShaftAngle:
     """Assign each tacho pulse its shaft angle and fit the angle curve through them.
 
     Parameters
@@ -1715,6 +1815,8 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         min_rpm = finite_real(min_rpm, "min_rpm")
         if min_rpm <= 0:
             raise InputError(f"min_rpm {min_rpm!r} is not valid; allowed: a speed > 0 rpm")
+    if sample_rate_hz is not None:
+        sample_rate_hz = positive_rate(sample_rate_hz, "sample_rate_hz")
     if speed_tolerance is None:
         speed_tol = DEFAULT_SPEED_TOLERANCE
     else:
@@ -1786,7 +1888,8 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
                     raise
                 unusable.append((float(ts[0]), float(ts[-1]), str(exc)))
                 continue
-        fit = _pulse_timing(ts, c, pulses_per_rev=n_pr, tolerance=speed_tol)
+        fit = _pulse_timing(ts, c, pulses_per_rev=n_pr, tolerance=speed_tol,
+                            rate_hz=sample_rate_hz)
         keep_k = slice(None) if fit.knots is None else fit.knots
         pieces.append((fit.times[keep_k], revs[keep_k], fit.timing))
     if not pieces:

@@ -40,6 +40,9 @@ def add_track_options(p) -> None:
     speed = g.add_mutually_exclusive_group()
     speed.add_argument("--rpm", type=float, metavar="RPM", help="constant speed in place of a tacho")
     speed.add_argument("--speed-table", metavar="CSV", help="CSV time_s,rpm in place of a tacho")
+    g.add_argument("--speed-tolerance", type=float, metavar="PCT",
+                   help="RMS speed uncertainty (percent) the tacho stage aims at and warns "
+                        "beyond; default from the order resolution and highest order")
     g.add_argument("--rate", type=float, metavar="HZ", help="sample rate where the file has none")
     g.add_argument("--samples-per-rev", type=int, metavar="N", help="angle-domain samples per rev")
     g.add_argument("--revs-per-block", type=float, metavar="N", help="revolutions per FFT block")
@@ -57,6 +60,7 @@ def track_options_from_args(args) -> dict:
         "missing_pulses": args.missing_pulses,
         "rpm": args.rpm,
         "speed_table": args.speed_table,
+        "speed_tolerance": _percent(args.speed_tolerance, "--speed-tolerance"),
         "rate_hz": args.rate,
         "samples_per_rev": args.samples_per_rev,
         "revs_per_block": args.revs_per_block,
@@ -65,6 +69,15 @@ def track_options_from_args(args) -> dict:
         "cut_bandwidth_orders": args.cut_bandwidth,
     }
     return {k: v for k, v in opts.items() if v is not None}
+
+
+def _percent(value, name: str):
+    """A percentage option as a fraction (None stays None); 0 < value < 100."""
+    if value is None:
+        return None
+    if not 0 < value < 100:
+        raise InputError(f"{name} {value:g}: give a percentage between 0 and 100, e.g. 0.05")
+    return value / 100.0
 
 
 def _channel(text):

@@ -24,6 +24,7 @@ from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
                              tacho_angle)
 from workbench.angle.matching import identify_order_map
+from workbench.angle.tacho import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
@@ -201,11 +202,12 @@ def _vibration_channel(run: Run, channel):
 
 
 #: Keyword options of :func:`run_speed` (and of every function that finds a run's speed).
-SPEED_OPTIONS = ("tacho", "pulses_per_rev", "missing_pulses", "rpm", "speed_table")
+SPEED_OPTIONS = ("tacho", "pulses_per_rev", "missing_pulses", "rpm", "speed_table",
+                 "speed_tolerance")
 
 
 def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None, rpm=None,
-              speed_table=None, chunk=None) -> tuple[ShaftAngle, str]:
+              speed_table=None, speed_tolerance=None, chunk=None) -> tuple[ShaftAngle, str]:
     """The reference shaft's angle against time for a run, and where the speed came from.
 
     Parameters
@@ -219,6 +221,9 @@ def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
         Constant speed standing in for a tacho, rpm.
     speed_table : path-like, optional
         CSV with columns ``time_s, rpm`` standing in for a tacho.
+    speed_tolerance : float, optional
+        RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
+        default :data:`~workbench.angle.tacho.DEFAULT_SPEED_TOLERANCE`.
     chunk : int, optional
         Samples read per chunk while streaming the tacho.
 
@@ -230,10 +235,12 @@ def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
     if chunk is None:
         chunk = max(4096, int(CHUNK_S * run.rate_hz))
     return _speed(run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
-                  rpm=rpm, speed_table=speed_table, chunk=chunk)
+                  rpm=rpm, speed_table=speed_table, speed_tolerance=speed_tolerance,
+                  chunk=chunk)
 
 
-def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table, chunk):
+def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table, chunk,
+           speed_tolerance=None):
     """ShaftAngle from the tacho (streamed) or from a known speed; and where it came from."""
     if rpm is not None and speed_table is not None:
         raise InputError("give either --rpm or --speed-table, not both")
@@ -261,7 +268,8 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
         for piece in run.iter_chunks(name, chunk):
             detector.feed(piece)
         pulses = detector.finish()
-        return tacho_angle(pulses, pulses_per_rev=ppr, missing_pulses=miss), "tacho"
+        return tacho_angle(pulses, pulses_per_rev=ppr, missing_pulses=miss,
+                           speed_tolerance=speed_tolerance, sample_rate_hz=run.rate_hz), "tacho"
     except (TachoError, InputError) as exc:  # say which file and channel the speed came from
         raise type(exc)(f"{run.source or '<memory>'}: tacho channel '{name}': {exc}") from None
 
@@ -291,6 +299,7 @@ def track_run(
     missing_pulses=None,
     rpm=None,
     speed_table=None,
+    speed_tolerance=None,
     rate_hz=None,
     samples_per_rev=256,
     revs_per_block=None,
@@ -323,6 +332,10 @@ def track_run(
         Constant speed standing in for a tacho, rpm.
     speed_table : path-like, optional
         CSV with columns ``time_s, rpm`` standing in for a tacho.
+    speed_tolerance : float, optional
+        RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
+        default from the error budget of the settings,
+        :func:`~workbench.angle.tacho.speed_tolerance_for` (``max_order``, revs per block).
     rate_hz : float, optional
         Sample rate, where the file does not give it (CSV without time column, MAT).
     samples_per_rev : int
@@ -377,9 +390,11 @@ def track_run(
     vib_index = _vibration_channel(run, channel)
     vib = run.channels[vib_index].name  # Run methods take names or 1-based indices
     unit = run.channels[vib_index].unit
+    if speed_tolerance is None:
+        speed_tolerance = speed_tolerance_for(top, rpb)
     angle, speed_source = _speed(
         run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
-        rpm=rpm, speed_table=speed_table, chunk=chunk,
+        rpm=rpm, speed_table=speed_table, chunk=chunk, speed_tolerance=speed_tolerance,
     )
     if not angle.rpm_max / 60.0 < run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
         given = {"rpm": f"--rpm {rpm}", "speed table": f"--speed-table {speed_table}"}.get(
@@ -391,6 +406,12 @@ def track_run(
     log = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
     if getattr(angle, "timing", None) is not None:
         log.append(f"tacho timing: {angle.timing.describe()}")
+        if math.isfinite(angle.timing.angle_uncertainty_rev):
+            log.append(f"phase uncertainty at order {top:g}: "
+                       f"{360.0 * top * angle.timing.angle_uncertainty_rev:.2g} deg RMS")
+    if len(angle.stretches) > 1:
+        log.append("speed unknown between the stretches " + ", ".join(
+            f"{a:.3f}-{b:.3f} s" for a, b in angle.stretches) + "; each tracked on its own")
     n_total = run.n_samples
 
     def chunks():
