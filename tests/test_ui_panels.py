@@ -390,7 +390,8 @@ def direct(run_path, machine):
     """The same analysis by direct calls of the angle layer (256 samples per rev, 20 revs)."""
     run = read_run(run_path)
     pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
-    angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+    angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
+                        sample_rate_hz=run.rate_hz)
     sig = order_track(run.channel("vibration"), run.rate_hz, angle, samples_per_rev=256)
     omap = order_map(sig, revs_per_block=20, max_order=100.0)
     # The identification settings of the command-line tracking (track_run): 20 dB floor, 60

@@ -34,7 +34,7 @@ from scipy.signal import butter, find_peaks, get_window, hilbert, sosfiltfilt
 
 from workbench.angle._common import finite_real, iter_chunks, one_d, positive_int, positive_rate
 from workbench.angle.tacho import ShaftAngle
-from workbench.angle.tracking import AngleSignal, order_track
+from workbench.angle.tracking import AngleSignal, iter_order_track
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = [
@@ -850,7 +850,8 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     band = sosfiltfilt(sos, xa)
     env = np.abs(hilbert(band, sfft.next_fast_len(len(band)))[:len(band)])
     env -= env.mean()
-    sig = order_track(env, rate_hz, angle, samples_per_rev=samples_per_rev, protect=protect)
+    sig = iter_order_track(env, rate_hz, angle, samples_per_rev=samples_per_rev,
+                           protect=protect)     # pieces: an angle with gaps is fine
     return order_spectrum(sig, revs_per_block=revs_per_block, order_resolution=order_resolution,
                           window=window, overlap=overlap, scaling=scaling)
 

@@ -865,6 +865,11 @@ _SMOOTH_PASSES = 4
 # close to a whole number of samples the errors form a slow sawtooth whose jumps of one sample
 # the smoothing splits in the middle (and rings a little).
 _QUANTISED_SLACK = 2.0
+# The edge detector's linear interpolation is taken to be no better than this fraction of a
+# sample on a real edge (band-limited or ramped), whatever the difference estimate says.
+_DETECTOR_FLOOR = 0.01
+# A pulse whose time is this many times the jitter off the smoothed curve is given no weight.
+_OUTLIER_SIGMAS = 8.0
 # A block's jitter estimate is not taken below this fraction of the record's median: where the
 # pitch is close to a whole number of samples the timing errors of neighbouring pulses are
 # alike and the differences see almost none of them.
@@ -1035,6 +1040,21 @@ def _robust_scale(x: np.ndarray, axis=None):
     return _MAD_TO_SIGMA * np.median(np.abs(x - med), axis=axis)
 
 
+def _jitter_scale(scores: np.ndarray) -> np.ndarray:
+    """Scale of each row of difference scores: the larger of a robust and a trimmed RMS one.
+
+    The robust scale (1.4826 x MAD) ignores the odd outlier; but an edge detector's error can
+    be zero at most pulses and large at a few (a ramp whose ends fall between samples), which
+    the MAD does not see.  The RMS of the scores without their largest 0.5 % sees it and still
+    ignores an odd outlier.
+    """
+    robust = _robust_scale(scores, 1)
+    sq = np.sort(scores * scores, axis=1)
+    keep = max(1, int(math.floor(0.995 * sq.shape[1])))
+    trimmed = np.sqrt(sq[:, :keep].mean(axis=1))
+    return np.maximum(robust, trimmed)
+
+
 def _jitter_by_block(counts: np.ndarray, t: np.ndarray, n_blocks: int
                      ) -> tuple[np.ndarray, np.ndarray]:
     """Robust jitter estimate (s) per block of pulses, the smallest over the orders.
@@ -1054,8 +1074,8 @@ def _jitter_by_block(counts: np.ndarray, t: np.ndarray, n_blocks: int
             continue
         est = np.empty(n_blocks)
         if n_blocks > 1:
-            est[:-1] = _robust_scale(s[:(n_blocks - 1) * size].reshape(n_blocks - 1, size), 1)
-        est[-1] = _robust_scale(s[(n_blocks - 1) * size:])
+            est[:-1] = _jitter_scale(s[:(n_blocks - 1) * size].reshape(n_blocks - 1, size))
+        est[-1] = _jitter_scale(s[(n_blocks - 1) * size:][None, :])[0]
         better = est < sig
         sig = np.where(better, est, sig)
         c = np.empty(n_blocks)
@@ -1144,10 +1164,12 @@ def _penalty_bands(n_grid: int, lam_rows: np.ndarray) -> np.ndarray:
     return ab
 
 
-def _smooth_times(counts: np.ndarray, y: np.ndarray, lam_grid: np.ndarray) -> np.ndarray:
+def _smooth_times(counts: np.ndarray, y: np.ndarray, lam_grid: np.ndarray,
+                  weights: np.ndarray | None = None) -> np.ndarray:
     """Penalised least-squares smoothing of ``y`` (columns) against the pitch counts.
 
-    Minimises ``sum (y - z)^2 + sum lam (D^d z)^2`` over ``z`` on every pitch position from
+    Minimises ``sum w (y - z)^2 + sum lam (D^d z)^2`` (``w`` = ``weights``, default 1) over
+    ``z`` on every pitch position from
     the first count to the last (positions without a pulse carry no data, Eilers 2003); the
     system is solved for the residual ``r = y - z``, which is small, so a long record (times
     of thousands of seconds) loses no precision even with heavy smoothing.
@@ -1157,7 +1179,7 @@ def _smooth_times(counts: np.ndarray, y: np.ndarray, lam_grid: np.ndarray) -> np
     n_grid = int(idx[-1]) + 1
     lam_rows = sliding_window_view(lam_grid, d + 1).mean(axis=1)
     ab = _penalty_bands(n_grid, lam_rows)
-    ab[d, idx] += 1.0
+    ab[d, idx] += 1.0 if weights is None else weights
     if len(idx) < n_grid:   # fill positions without a pulse; any filling gives the same z,
         g = np.arange(n_grid, dtype=np.float64)     # a smooth one keeps the right-hand side small
         full = np.column_stack([np.interp(g, idx.astype(np.float64), col) for col in y.T])
@@ -1206,6 +1228,7 @@ class _TimingResult:
     times: np.ndarray          # pulse times to fit (smoothed or not), all pulses
     timing: PulseTiming
     knots: np.ndarray | None = None   # pulses the angle fit needs (None: all)
+    outliers: np.ndarray = field(default_factory=lambda: np.empty(0))  # times given no weight
 
 
 def _sample_step(t: np.ndarray) -> float:
@@ -1348,10 +1371,12 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     have no phase to regress on and are left to :func:`_fit_timing`.
     """
     if rate_hz is None or len(t) < 64 or math.isfinite(_sample_step(t)):
-        return _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+        return _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
+                           rate_hz=rate_hz)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", FoldlineWarning)
-        first = _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+        first = _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
+                            rate_hz=rate_hz)
     if not first.timing.smoothed:
         return first
     resid = t - first.times
@@ -1368,11 +1393,12 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
             bias[idx] = fit
     if not bias.any():
         return first
-    return _fit_timing(t - bias, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance)
+    return _fit_timing(t - bias, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
+                       rate_hz=rate_hz)
 
 
 def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
-                tolerance: float) -> _TimingResult:
+                tolerance: float, rate_hz: float | None = None) -> _TimingResult:
     """Estimate the pulse timing jitter; smooth the pulse times as far as the tolerance asks.
 
     Parameters
@@ -1408,6 +1434,8 @@ def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     floor = _JITTER_FLOOR_FRACTION * float(np.median(sig_b))
     if math.isfinite(step_s):
         floor = max(floor, step_s / math.sqrt(12.0))
+    if rate_hz is not None:
+        floor = max(floor, _DETECTOR_FLOOR / rate_hz)
     sig_b = np.maximum(sig_b, floor)
     block = np.clip(np.searchsorted(edges, np.arange(n), side="right") - 1, 0, len(sig_b) - 1)
     sig = np.interp(np.arange(n), centres, sig_b)
@@ -1459,6 +1487,16 @@ def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
         if not too_big.any():
             break
         factor = np.where(too_big, factor / _LAMBDA_STEP, factor)
+    # A pulse timed far off the smoothed curve (many times the jitter: an edge the detector
+    # misjudged) is given almost no weight, so it does not bend the speed around it.
+    resid = (y - z)[:, 0]
+    mag = np.abs(resid)
+    side = np.maximum(np.concatenate(([0.0], mag[:-1])), np.concatenate((mag[1:], [0.0])))
+    far = (mag > _OUTLIER_SIGMAS * sig) & (side < 0.5 * mag)      # isolated, not a bend
+    outliers = np.empty(0)
+    if far.any() and far.sum() <= 0.01 * n:
+        z = _smooth_times(c0, y, np.interp(grid, cf, lam_now), np.where(far, 1e-6, 1.0))
+        outliers = t[far]
     smooth_t = z[:, 0] + trend
     # Speed and angle noise the smoothing leaves: its interior response (Parseval); near the
     # ends, where it sees one side only, by propagating simulated jitter through the same
@@ -1492,7 +1530,7 @@ def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     knots = np.flatnonzero(np.diff(c0 // step, prepend=-1) != 0)
     if knots[-1] != n - 1:
         knots = np.append(knots, n - 1)
-    return _TimingResult(smooth_t, timing, knots)
+    return _TimingResult(smooth_t, timing, knots, outliers)
 
 
 # --------------------------------------------------------------------------------------------
@@ -1892,6 +1930,11 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
                             rate_hz=sample_rate_hz)
         keep_k = slice(None) if fit.knots is None else fit.knots
         pieces.append((fit.times[keep_k], revs[keep_k], fit.timing))
+        for time_s in fit.outliers:
+            d_times.append(float(time_s))
+            d_reasons.append("pulse timed far off its neighbours (more than "
+                             f"{_OUTLIER_SIGMAS:g} x the timing jitter): given no weight in the "
+                             "speed")
     if not pieces:
         raise _unusable(f"no stretch of the record gives a shaft angle: {why}" if why else
                         "no stretch of the record gives a shaft angle",

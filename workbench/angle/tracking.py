@@ -283,6 +283,8 @@ class OrderTracker:
             self._subs = [OrderTracker(rate_hz, a, samples_per_rev=samples_per_rev,
                                        protect=protect, max_order=max_order)
                           for a in angle.stretch_angles()]
+            self._queues: list[list] = [[] for _ in self._subs]
+            self._current = 0
         self.samples_per_rev = positive_int(samples_per_rev, "samples_per_rev", 4)
         if not isinstance(protect, (bool, np.bool_)):
             raise InputError(f"protect {protect!r} is not valid; allowed: True or False")
@@ -522,7 +524,9 @@ class OrderTracker:
                              "values; allowed: finite numbers")
         if self._subs is not None:
             self._n_in += len(x)
-            return [piece for sub in self._subs for piece in sub.feed(x)]
+            for sub, queue in zip(self._subs, self._queues):
+                queue.extend(sub.feed(x))
+            return self._release()
         if len(x) and self._k_next < self._k_stop:
             self._bufs.append((self._n_in, x))
         self._n_in += len(x)
@@ -536,12 +540,26 @@ class OrderTracker:
         if self._n_in == 0:
             raise InputError("the record is empty; nothing to track")
         if self._subs is not None:
-            out = [piece for sub in self._subs for piece in sub.finish()]
+            for sub, queue in zip(self._subs, self._queues):
+                queue.extend(sub.finish())
             self._n_out = sum(sub._n_out for sub in self._subs)
             self._blocks = sum(sub._blocks for sub in self._subs)
-            return out
+            return self._release()
         out = list(self._drain())
         self._bufs = []
+        return out
+
+    def _release(self) -> list[AngleSignal]:
+        """Pieces of the stretches in order: a stretch's pieces wait until the one before it
+        is complete."""
+        out: list[AngleSignal] = []
+        while self._current < len(self._subs):
+            sub, queue = self._subs[self._current], self._queues[self._current]
+            out.extend(queue)
+            queue.clear()
+            if not (sub._finished or sub._k_next >= sub._k_stop):
+                break
+            self._current += 1
         return out
 
     def stream(self, x) -> Iterator[AngleSignal]:

@@ -221,7 +221,8 @@ class AngleDomainPanel:
                 raise InputError(f"{run.source or 'run'}: no tacho channel; name one in the run's sidecar "
                                  "(tacho_channel)")
             pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
-            angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+            angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
+                                sample_rate_hz=run.rate_hz)
             self._tacho = (pulses, angle)
         return self._tacho
 
