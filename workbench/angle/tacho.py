@@ -1291,6 +1291,77 @@ def _quadratic_trend(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return coef[0] + u * (coef[1] + u * coef[2]) + y0
 
 
+def _detector_bias(t: np.ndarray, resid: np.ndarray, rate_hz: float) -> np.ndarray | None:
+    """The edge detector's bias as a function of sub-sample phase, where it shows; else None.
+
+    The detector times an edge by linear interpolation between the two samples around the
+    trigger level; on a band-limited or ramped edge its error depends on where the edge falls
+    between samples (the sub-sample phase ``frac(t x rate)``).  Where the pitch is close to a
+    whole number of samples that phase barely moves and the error becomes a slow drift the
+    smoothing would take for speed.  The residuals of a first smoothing are regressed on three
+    harmonics of the sub-sample phase per block of 4096 pulses (normal equations, all blocks
+    at once); a block's fit counts where its RMS stands above three times what pure jitter
+    gives (``sqrt(6 / n)`` of the residual scale).
+    """
+    n = len(t)
+    if n < 64:
+        return None
+    phase = 2 * np.pi * np.mod(t * rate_hz, 1.0)
+    basis = np.stack([f(m * phase) for m in (1, 2, 3) for f in (np.cos, np.sin)], axis=1)
+    blocks = max(1, int(round(n / 4096)))
+    edges = np.linspace(0, n, blocks + 1).astype(np.int64)
+    which = np.repeat(np.arange(blocks), np.diff(edges))
+    k = basis.shape[1]
+    gram = np.empty((blocks, k, k))
+    rhs = np.empty((blocks, k))
+    for i, (a, b) in enumerate(zip(edges[:-1], edges[1:])):
+        gram[i] = basis[a:b].T @ basis[a:b]
+        rhs[i] = basis[a:b].T @ resid[a:b]
+    gram += 1e-12 * np.eye(k) * np.trace(gram, axis1=1, axis2=2)[:, None, None]
+    coef = np.linalg.solve(gram, rhs[:, :, None])[:, :, 0]
+    fit = np.einsum("ij,ij->i", basis, coef[which])
+    size = np.diff(edges).astype(np.float64)
+    fit_rms = np.sqrt(np.add.reduceat(fit * fit, edges[:-1]) / size)
+    noise = np.sqrt(np.add.reduceat((resid - fit) ** 2, edges[:-1]) / size)
+    clear = fit_rms > 3.0 * noise * np.sqrt(k / size)
+    if not clear.any():
+        return None
+    return np.where(clear[which], fit, 0.0)
+
+
+def _smooth_local(c0: np.ndarray, y: np.ndarray, lam: np.ndarray, z: np.ndarray,
+                  changed: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
+    """Smoothing re-solved where the weights changed (``changed``, per pulse), in segments.
+
+    The smoothing's influence fades within a few of its spans, so each run of changed pulses
+    is solved on a segment padded by six spans (and 32 pulses) each side and the middle of it
+    replaces ``z``; when most pulses changed, the whole record is solved again.
+    """
+    n = len(c0)
+    if not changed.any():
+        return z
+    if changed.mean() > 0.3:
+        grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
+        return _smooth_times(c0, y, np.interp(grid, c0.astype(np.float64), lam), weights)
+    period = _half_power_period(lam)
+    idx = np.flatnonzero(changed)
+    cut = np.flatnonzero(np.diff(idx) > 1)
+    starts = np.concatenate(([idx[0]], idx[cut + 1]))
+    ends = np.concatenate((idx[cut], [idx[-1]])) + 1
+    z = z.copy()
+    for a, b in zip(starts, ends):
+        pad = int(min(n, 6 * float(period[max(0, a - 1):min(n, b + 1)].max()) + 32))
+        a0, b0 = max(0, a - pad), min(n, b + pad)
+        c = c0[a0:b0] - c0[a0]
+        grid = np.arange(int(c[-1]) + 1, dtype=np.float64)
+        part = _smooth_times(c, y[a0:b0], np.interp(grid, c.astype(np.float64), lam[a0:b0]),
+                             None if weights is None else weights[a0:b0])
+        lo = 0 if a0 == 0 else max(0, a - pad // 2)
+        hi = n if b0 == n else min(n, b + pad // 2)
+        z[lo:hi] = part[lo - a0:hi - a0]
+    return z
+
+
 def _inertia_cap(cf: np.ndarray, pitch: np.ndarray, sig: np.ndarray,
                  tolerance: float) -> np.ndarray:
     """Largest penalty weight per pulse whose rounding-off of the speed stays in tolerance.
@@ -1358,47 +1429,6 @@ def _merged_spans(t_a: np.ndarray, t_b: np.ndarray, *, span_s: float) -> list:
 
 def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
                   tolerance: float, rate_hz: float | None = None) -> _TimingResult:
-    """:func:`_fit_timing`, after removing the edge detector's bias where it shows.
-
-    The detector times an edge by linear interpolation between the two samples around the
-    trigger level; on a band-limited or ramped edge its error depends on where the edge falls
-    between samples (the sub-sample phase ``frac(t x rate)``).  Where the pitch is close to a
-    whole number of samples that phase barely moves and the error becomes a slow drift the
-    smoothing would take for speed.  With the sample rate known, the residuals of a first fit
-    are regressed on three harmonics of the sub-sample phase per block of 4096 pulses; a bias
-    that stands clear of the noise (its fitted RMS above three times what pure jitter gives) is
-    subtracted from the pulse times before the fit that counts.  Edges timed only to the sample
-    have no phase to regress on and are left to :func:`_fit_timing`.
-    """
-    if rate_hz is None or len(t) < 64 or math.isfinite(_sample_step(t)):
-        return _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
-                           rate_hz=rate_hz)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", FoldlineWarning)
-        first = _fit_timing(t, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
-                            rate_hz=rate_hz)
-    if not first.timing.smoothed:
-        return first
-    resid = t - first.times
-    phase = 2 * np.pi * np.mod(t * rate_hz, 1.0)
-    basis = np.column_stack([f(m * phase) for m in (1, 2, 3) for f in (np.cos, np.sin)])
-    bias = np.zeros(len(t))
-    n_block = 4096
-    blocks = max(1, int(round(len(t) / n_block)))
-    for idx in np.array_split(np.arange(len(t)), blocks):
-        coef, *_ = np.linalg.lstsq(basis[idx], resid[idx], rcond=None)
-        fit = basis[idx] @ coef
-        noise = float(np.sqrt(np.mean((resid[idx] - fit) ** 2)))
-        if np.sqrt(np.mean(fit ** 2)) > 3.0 * noise * math.sqrt(basis.shape[1] / len(idx)):
-            bias[idx] = fit
-    if not bias.any():
-        return first
-    return _fit_timing(t - bias, counts, pulses_per_rev=pulses_per_rev, tolerance=tolerance,
-                       rate_hz=rate_hz)
-
-
-def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
-                tolerance: float, rate_hz: float | None = None) -> _TimingResult:
     """Estimate the pulse timing jitter; smooth the pulse times as far as the tolerance asks.
 
     Parameters
@@ -1464,11 +1494,22 @@ def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
     mid = (edges[:-1] + edges[1:]) // 2
     factor = np.ones(len(sig_b))
+    lam_now = np.maximum(lam, _LAMBDA_MIN)
+    z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
+    if rate_hz is not None and not math.isfinite(step_s):
+        bias = _detector_bias(t, (y - z)[:, 0], rate_hz)
+        if bias is not None:
+            t = t - bias
+            y = y - bias[:, None]
+            z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
     for attempt in range(_SMOOTH_PASSES + 1):
-        lam_now = np.maximum(lam * factor[block], _LAMBDA_MIN)
-        z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
+        if attempt:
+            changed = factor[block] != previous[block]
+            lam_now = np.maximum(lam * factor[block], _LAMBDA_MIN)
+            z = _smooth_local(c0, y, lam_now, z, changed)
         if attempt == _SMOOTH_PASSES:
             break
+        previous = factor.copy()
         resid = (y - z)[:, 0]
         if math.isfinite(step_s):
             # Edges timed only to the sample: each time is within half a sample of the edge, so
@@ -1495,7 +1536,7 @@ def _fit_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     far = (mag > _OUTLIER_SIGMAS * sig) & (side < 0.5 * mag)      # isolated, not a bend
     outliers = np.empty(0)
     if far.any() and far.sum() <= 0.01 * n:
-        z = _smooth_times(c0, y, np.interp(grid, cf, lam_now), np.where(far, 1e-6, 1.0))
+        z = _smooth_local(c0, y, lam_now, z, far, np.where(far, 1e-6, 1.0))
         outliers = t[far]
     smooth_t = z[:, 0] + trend
     # Speed and angle noise the smoothing leaves: its interior response (Parseval); near the
