@@ -49,7 +49,7 @@ narrow-band, so the same least-squares problem is posed on a coarser *envelope g
 1. the channel is demodulated by each order's phasor and low-passed by a cascade of
    linear-phase Kaiser FIR decimators (Kaiser 1974; 110 dB stopband, passband flat to 3e-6) to
    the envelope rate, chosen so that the filter's own response ``H`` has fallen below 1e-5
-   (-100 dB) at the decimators' pass edge and the envelope rate is at least 40 x the widest
+   (-100 dB) at the decimators' pass edge and the envelope rate is at least 20 x the widest
    bandwidth (at least 2.5 x the pass edge).  The first stage runs chunk by chunk over the
    record;
 2. the coupling terms ``theta_k* theta_j`` are kept where the two orders lie closer than the
@@ -115,8 +115,8 @@ _HALF_POWER = math.sqrt(2.0) - 1.0
 _EDGE_RESPONSE = 1e-5
 #: Stopband attenuation of the decimators, dB (passband ripple 10**(-110/20) = 3e-6).
 _STOP_DB = 110.0
-#: Envelope samples per Hz of the widest bandwidth (keeps the spline rebuild within ~1e-6).
-_RATE_PER_BANDWIDTH = 40.0
+#: Envelope rate over the widest bandwidth (a cubic spline rebuilds B/2 within ~2e-6).
+_RATE_PER_BANDWIDTH = 20.0
 #: Influence below which the overlap of two sections is cut off (doubled for safety).
 _DECAY = 1e-13
 #: Full-rate samples demodulated per chunk in the first decimation stage.
