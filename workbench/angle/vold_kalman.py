@@ -46,7 +46,10 @@ in the normal equations the unit data term is lost in rounding beside ``r^2 grad
 (Cholesky fails or returns noise; measured while designing this module).  The envelopes are
 narrow-band, so the same least-squares problem is posed on a coarser *envelope grid*:
 
-1. the channel is demodulated by each order's phasor and low-passed by a cascade of
+1. the channel is demodulated by each order's phasor (phase reduced to one turn in double
+   precision, its cosine and sine taken in single precision: at most 2e-7 rad, about -134 dB,
+   per sample, averaged down by the filters; in double precision when nothing is decimated)
+   and low-passed by a cascade of
    linear-phase Kaiser FIR decimators (Kaiser 1974; 110 dB stopband, passband flat to 3e-6) to
    the envelope rate, chosen so that the filter's own response ``H`` has fallen below 1e-5
    (-100 dB) at the decimators' pass edge and the envelope rate is at least 20 x the widest
@@ -597,31 +600,44 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
                       f"{60 * f_hi:.0f} rpm: its extraction there is meaningless",
                       FoldlineWarning, stacklevel=2)
 
-    # 1. demodulate and decimate (first stage chunk by chunk)
+    # 1. demodulate and decimate (first stage chunk by chunk).  Rows 0..K-1 hold x cos(phi_k),
+    # rows K..2K-1 hold -x sin(phi_k) (real filtering of the two halves is three times faster
+    # than complex filtering in scipy.signal.upfirdn).
     stages = _design_stages(rate, factors, pass_hz) if factors else []
-    two_pi_orders = np.asarray(ords)[:, None]
+    n_ord = len(ords)
+    ord_col = np.asarray(ords)[:, None]
+    trig_dtype = np.float32 if stages else np.float64   # no decimation: exact equations
 
     def demodulated(a: int, b: int) -> np.ndarray:
         t = t_first + np.arange(a, b, dtype=np.float64) / rate
-        ph = two_pi_orders * angle.revs_at(t)[None, :]
-        ph -= np.floor(ph)
-        return np.asarray(x[i0 + a:i0 + b], dtype=np.float64)[None, :] * np.exp(-2j * np.pi * ph)
+        ph = ord_col * angle.revs_at(t)[None, :]
+        ph -= np.floor(ph)                       # one turn, in double precision
+        ph32 = ph.astype(trig_dtype)
+        ph32 *= trig_dtype(2 * np.pi)
+        xs = np.asarray(x[i0 + a:i0 + b], dtype=np.float64)
+        out = np.empty((2 * n_ord, b - a))
+        np.multiply(np.cos(ph32), xs, out=out[:n_ord])
+        np.multiply(np.sin(ph32), -xs, out=out[n_ord:])
+        return out
 
     if not stages:
-        y = demodulated(0, n_span)
+        parts = demodulated(0, n_span)
     else:
         first = stages[0]
         n1 = -(-n_span // first.q)
         per = max(1, _CHUNK // first.q)
-        y = np.empty((len(ords), n1), dtype=np.complex128)
+        parts = np.empty((2 * n_ord, n1))
         for m0 in range(0, n1, per):
             m1 = min(n1, m0 + per)
-            y[:, m0:m1] = _decimate(first, demodulated, n_span, m0, m1)
+            parts[:, m0:m1] = _decimate(first, demodulated, n_span, m0, m1)
         for st in stages[1:]:
-            prev = y
+            prev = parts
             n_prev = prev.shape[1]
-            y = _decimate(st, lambda a, b, arr=prev: arr[:, a:b], n_prev, 0, -(-n_prev // st.q))
+            parts = _decimate(st, lambda a, b, arr=prev: arr[:, a:b], n_prev, 0,
+                              -(-n_prev // st.q))
             del prev
+    y = parts[:n_ord] + 1j * parts[n_ord:]
+    del parts
     # 2. the envelope grid: speed, bandwidth, weights, coupling
     t_env = t_first + np.arange(n_env, dtype=np.float64) * ratio / rate
     rpm_env = np.asarray(angle.rpm_at(t_env), dtype=np.float64)
