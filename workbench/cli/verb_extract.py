@@ -9,18 +9,13 @@ import numpy as np
 
 from workbench.errors import FoldlineWarning, InputError
 
-__all__ = ["add_extract_verb", "cmd_extract", "order_file_stem", "MAX_JSON_POINTS"]
+__all__ = ["add_extract_verb", "cmd_extract", "write_extract_outputs", "MAX_JSON_POINTS"]
 
 #: Longest array in the JSON answer; longer envelopes are thinned evenly.
 MAX_JSON_POINTS = 5000
 
 #: Tracking options that shape an order spectrum and mean nothing to the extraction.
 _UNUSED = ("samples_per_rev", "revs_per_block", "envelope_hz", "cut_orders", "cut_bandwidth_orders")
-
-
-def order_file_stem(order: float) -> str:
-    """``order_<k>`` with ``k`` written as ``%g`` (``order_4``, ``order_4.1``)."""
-    return f"order_{order:g}"
 
 
 def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
@@ -30,11 +25,9 @@ def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
 
 
 def _outputs(orders, out: Path) -> list:
-    names = []
-    for o in orders:
-        stem = order_file_stem(o)
-        names += [out / f"{stem}.wav", out / f"{stem}.csv"]
-    return names + [out / "order_envelopes.png"]
+    from workbench.runs.extraction import order_files
+
+    return order_files(orders, out) + [out / "order_envelopes.png"]
 
 
 def cmd_extract(args) -> int:
@@ -142,27 +135,14 @@ def write_extract_outputs(ex, out: Path, *, unit: str = "", force: bool = False,
     -------
     list of Path
     """
-    import pandas as pd
-
     from workbench.plots import plot_order_envelopes, save_figure
-    from workbench.runs import WavWriter, atomic_output
+    from workbench.runs.extraction import write_order_envelope, write_order_waveform
 
     out.mkdir(parents=True, exist_ok=True)
     files = []
-    for i, o in enumerate(ex.orders):
-        stem = order_file_stem(o)
-        wav = out / f"{stem}.wav"
-        with WavWriter(wav, ex.rate_hz, 1, sample_format="float32", force=force,
-                       channel_names=(stem,)) as w:
-            for piece in ex.iter_waveform(o):
-                w.write(piece.astype(np.float32))
-        files.append(wav)
-        csv = out / f"{stem}.csv"
-        table = pd.DataFrame({"time_s": ex.time_s, "rpm": ex.rpm, "amplitude": ex.amplitude[i],
-                              "phase_deg": ex.phase_deg[i]})
-        with atomic_output(csv, force=force) as tmp:
-            table.to_csv(tmp, index=False)
-        files.append(csv)
+    for o in ex.orders:
+        files.append(write_order_waveform(ex, o, out, force=force))
+        files.append(write_order_envelope(ex, o, out, force=force))
     png = out / "order_envelopes.png"
     save_figure(plot_order_envelopes(ex, unit=unit, title=title), png, force=force)
     files.append(png)
