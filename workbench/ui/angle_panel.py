@@ -215,15 +215,7 @@ class AngleDomainPanel:
         return tuple(sorted(list(dict.fromkeys(orders))[:3]))
 
     def _orders(self) -> tuple:
-        text = self.cut_orders.value
-        try:
-            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
-        except ValueError:
-            values = ()
-        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
-            raise InputError(f"orders to cut {text!r}: give positive orders separated by commas, "
-                             "e.g. 1, 29, 58")
-        return values
+        return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
 
     # -- computation ----------------------------------------------------------------------
     def tacho(self):
@@ -523,13 +515,14 @@ class AngleDomainPanel:
         return self._extractions.get(key, make)
 
     @staticmethod
-    def _parse_orders(text, label) -> tuple:
+    def _parse_orders(text, label, example="4, 4.1") -> tuple:
+        """Positive orders separated by commas (or semicolons) from a text box."""
         try:
             values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
         except ValueError:
             values = ()
         if not values or any(not (math.isfinite(v) and v > 0) for v in values):
-            raise InputError(f"{label} {text!r}: give positive orders separated by commas, e.g. 4, 4.1")
+            raise InputError(f"{label} {text!r}: give positive orders separated by commas, e.g. {example}")
         return values
 
     def _draw_extraction(self):
