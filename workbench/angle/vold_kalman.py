@@ -164,7 +164,7 @@ def vk_weighting(bandwidth_hz, rate_hz, filter_order=2):
     Examples
     --------
     >>> round(float(vk_weighting(10.0, 1000.0, 1)), 3)  # sqrt(0.41421 / (2 - 2 cos(0.01 pi)))
-    20.481
+    20.487
     """
     p = _filter_order(filter_order)
     rate = positive_rate(rate_hz)
@@ -208,7 +208,8 @@ def _decay_samples(r2: float, p: int) -> int:
     poly = np.array([r2 * (-1) ** p * comb(2 * p, j) * (-1) ** j for j in range(2 * p + 1)],
                     dtype=np.float64)
     poly[p] += 1.0
-    rho = float(np.max(np.abs(np.roots(poly))[np.abs(np.roots(poly)) < 1.0]))
+    moduli = np.abs(np.roots(poly))
+    rho = float(np.max(moduli[moduli < 1.0]))
     return int(math.ceil(2.0 * math.log(_DECAY) / math.log(rho))) + 2 * p
 
 
@@ -659,15 +660,13 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
                       f"one envelope rate ({env_rate:g} Hz): the solution keeps only about "
                       f"{max(0, 16 - math.log10(float(w.max()) * 4.0 ** p)):.0f} digits",
                       FoldlineWarning, stacklevel=2)
-    image = [(o, float(np.min(rpm_env[2 * o * f_env < bws[i]], initial=np.inf)))
-             for i, o in enumerate(ords) if np.any(2 * o * f_env < bws[i])]
-    if image:
-        o, _ = image[0]
-        i = ords.index(o)
-        top = float(np.max(rpm_env[2 * o * f_env < bws[i]]))
-        warnings.warn(f"order {o:g}: below {top:.0f} rpm its frequency is within its bandwidth, "
-                      "so the mirror image of the real signal is not rejected there",
-                      FoldlineWarning, stacklevel=2)
+    for i, o in enumerate(ords):
+        below = 2 * o * f_env < bws[i]
+        if below.any():
+            warnings.warn(f"order {o:g}: below {float(np.max(rpm_env[below])):.0f} rpm its "
+                          "frequency is within its bandwidth, so the mirror image of the real "
+                          "signal is not rejected there", FoldlineWarning, stacklevel=2)
+            break
     coupling = {}
     revs_env = angle.revs_at(t_env)
     for k in range(len(ords)):
