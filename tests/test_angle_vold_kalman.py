@@ -186,6 +186,29 @@ def test_two_orders_a_tenth_apart_separate_when_extracted_together():
     assert abs(err_single - predicted) < 3.0
 
 
+def test_fast_sweep_at_a_modest_rate():
+    # 600 -> 6000 rpm in 8 s (675 rpm/s) at 1024 Hz; order 2 with amplitude 1 + 0.3 sin(2 pi
+    # 0.25 t) and order 2.1 (0.8) extracted together.  With B = 2 Hz the waveform error stays
+    # below -45 dB; with B = 1 Hz it is the filter's own loss on the 0.25 Hz modulation,
+    # 0.3 (1 - H(0.25 Hz)) = -42.4 dB (Tuma's response), which the measurement must show.
+    rate = 1024.0
+    angle, t, revs = _runup(rate, 8.0, 600.0, 6000.0)
+    amp = 1 + 0.3 * np.sin(2 * np.pi * 0.25 * t)
+    o2, o21 = amp * np.cos(2 * np.pi * 2 * revs), 0.8 * np.cos(2 * np.pi * 2.1 * revs + 1.0)
+    sl = (t > 2) & (t < 6)
+    errors, env_rate = {}, {}
+    for bw in (1.0, 2.0):
+        ex = extract_orders(o2 + o21, rate, angle, (2, 2.1), bandwidth_hz=bw)
+        env_rate[bw] = ex.envelope_rate_hz
+        errors[bw] = (_db(np.max(np.abs(ex.waveform(2)[sl] - o2[sl]))),
+                      _db(np.max(np.abs(ex.waveform(2.1)[sl] - o21[sl])) / 0.8))
+    predicted = _db(0.3 * (1 - vk_response(0.25, 1.0, env_rate[1.0], 2)))
+    print(f"fast sweep: B = 2 Hz errors {errors[2.0][0]:.1f} / {errors[2.0][1]:.1f} dB; B = 1 Hz "
+          f"order 2 {errors[1.0][0]:.1f} dB (predicted modulation loss {predicted:.1f} dB)")
+    assert max(errors[2.0]) < -45.0
+    assert abs(errors[1.0][0] - predicted) < 1.5
+
+
 def test_fixed_line_crossing_an_order_disturbs_only_the_crossing():
     # Order 4 (amplitude 1) and a fixed 150 Hz line (amplitude 1) during a run-up 600 -> 3000
     # rpm in 40 s: order 4 sweeps 40 -> 200 Hz at 4 Hz/s and meets the line at 2250 rpm
