@@ -429,9 +429,9 @@ def _orders_tuple(orders) -> tuple:
 
 
 def _stage_factors(ratio: int) -> list:
-    """Split a decimation ratio 8^a x q into stages of 8 and a last stage q (<= 8)."""
+    """Split a decimation ratio 8^a x q into stages of 8 and a last stage q."""
     factors = []
-    while ratio >= 8 and ratio % 8 == 0:
+    while ratio % 8 == 0 and ratio // 8 >= 2:
         factors.append(8)
         ratio //= 8
     if ratio > 1:
@@ -440,15 +440,14 @@ def _stage_factors(ratio: int) -> list:
 
 
 def _choose_ratio(rate_hz: float, min_rate_hz: float) -> int:
-    """Largest 8^a x q (q <= 8) with rate / ratio >= min_rate (1 when none)."""
+    """Largest 8^a x q (2 <= q <= 15, stages of 8 first) with rate / ratio >= min_rate."""
     most = int(math.floor(rate_hz / min_rate_hz))
     if most < 2:
         return 1
-    a = int(math.floor(math.log(most, 8) + 1e-12))
-    while 8 ** a > most:
-        a -= 1
-    q = max(1, min(8, most // 8 ** a))
-    return 8 ** a * q
+    a = 0
+    while most // 8 ** (a + 1) >= 2:
+        a += 1
+    return 8 ** a * min(15, most // 8 ** a)
 
 
 def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
@@ -655,11 +654,12 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     else:
         bws = np.full((len(ords), n_env), bw)
     w = vk_weighting(bws, env_rate, p) ** 2
-    if float(w.max()) * 4.0 ** p > 1e12:
-        warnings.warn(f"the bandwidth ({b_min:.3g} to {b_max:.3g} Hz) spans too wide a range for "
-                      f"one envelope rate ({env_rate:g} Hz): the solution keeps only about "
-                      f"{max(0, 16 - math.log10(float(w.max()) * 4.0 ** p)):.0f} digits",
-                      FoldlineWarning, stacklevel=2)
+    cond = float(w.max()) * 4.0 ** p              # condition number of the normal equations
+    if cond > 1e12:
+        warnings.warn(f"the bandwidth ({b_min:.3g} to {b_max:.3g} Hz) spans a wide range for one "
+                      f"envelope rate ({env_rate:g} Hz): rounding limits the envelopes' relative "
+                      f"precision to about {cond * 2.2e-16:.0e}; a constant bandwidth or filter "
+                      "order 2 avoids it", FoldlineWarning, stacklevel=2)
     for i, o in enumerate(ords):
         below = 2 * o * f_env < bws[i]
         if below.any():
