@@ -7,8 +7,7 @@ Steps and what each control redoes (the rest is kept):
    protection), with a progress bar fed chunk by chunk;
 3. order map, order spectrum, peaks and the identification of measured ridges with the
    machine's predicted lines (direct and folded) -- per (block length, window);
-4. order cuts -- per list of orders.
-
+4. order cuts -- per list of orders;
 5. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
    filter order): envelopes against rpm, a player for one order's waveform, WAV export.
 
