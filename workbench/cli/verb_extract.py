@@ -64,6 +64,9 @@ def cmd_extract(args) -> int:
             raise OutputExistsError(f"{clash[0]}: exists already; pass --force to replace the outputs "
                                     f"in {out}")
     run = read_run(args.run, rate_hz=opts.get("rate_hz"))
+    if out is not None and not float(run.rate_hz).is_integer():
+        raise InputError(f"--out {out}: the run's rate {run.rate_hz:g} Hz is not a whole number, so "
+                         "its order waveforms cannot be WAV files; leave --out away and use --json")
     index = _vibration_channel(run, opts.get("channel"))
     channel = run.channels[index]
     angle, speed_source = run_speed(run, **{k: opts[k] for k in SPEED_OPTIONS if k in opts})
