@@ -516,3 +516,44 @@ def test_angle_panel_names_what_it_can_export_and_draw(angle_panel, tmp_path):
     assert "choose &#x27;tables&#x27; or &#x27;figures&#x27;" in angle_panel.status.value
     with pytest.raises(InputError, match="choose one of tacho, map, cuts, spectrum"):
         angle_panel.figure("campbell")
+
+
+# -- AngleDomainPanel: order extraction tab (Vold-Kalman filter) ------------------------------
+def test_extraction_tab_matches_the_direct_extraction_plays_and_exports(angle_panel, direct, tmp_path):
+    from workbench.angle import extract_orders
+    from workbench.runs import read_wav
+
+    run = direct[0]
+    angle_panel.extract_orders.value = "1, 29"
+    angle_panel.extract_bandwidth.value = 2.0
+    assert angle_panel.tabs.get_title(4) == "order extraction"
+    angle_panel.tabs.selected_index = 4
+    assert angle_panel.extract_figure.value[:4] == b"\x89PNG"
+    # The same extraction by a direct call of the angle layer with the run's tacho angle.
+    angle = tacho_angle(detect_pulses(run.channel(run.tacho), run.rate_hz),
+                        pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+    ref = extract_orders(run.channel("vibration"), run.rate_hz, angle, (1.0, 29.0), bandwidth_hz=2.0)
+    ex = angle_panel.extraction()
+    np.testing.assert_allclose(ex.envelope, ref.envelope, rtol=0, atol=1e-12 * np.abs(ref.envelope).max())
+    assert "-3 dB bandwidth 2 Hz" in angle_panel.extract_info.value
+    # The player holds order 1's waveform as a WAV (RIFF) file; choosing order 29 replaces it.
+    first = bytes(angle_panel.extract_audio.value)
+    assert first[:4] == b"RIFF"
+    angle_panel.extract_play.value = 29.0
+    assert bytes(angle_panel.extract_audio.value) != first
+    # Export: float32 WAV at the run's rate and length, equal to the rebuilt waveform.
+    written = angle_panel.export_waveforms(tmp_path)
+    assert sorted(p.name for p in written) == ["order_1.csv", "order_1.wav", "order_29.csv", "order_29.wav"]
+    data, info = read_wav(tmp_path / "order_29.wav")
+    assert info.sample_format == "float32" and info.rate_hz == run.rate_hz and info.n_frames == run.n_samples
+    np.testing.assert_allclose(np.asarray(data).ravel(), ex.waveform(29.0).astype(np.float32), rtol=0, atol=0)
+    assert angle_panel.export_waveforms(tmp_path) == []
+    assert "exist(s) already; nothing written" in angle_panel.status.value
+    # Percentage bandwidth: 2 % of order 29 follows the speed (2 % x 29 x rpm / 60).
+    angle_panel.extract_unit.value = "pct"
+    ex = angle_panel.extraction()
+    np.testing.assert_allclose(ex.bandwidth_hz[1], 0.02 * 29 * ex.rpm / 60, rtol=1e-9)
+    angle_panel.extract_orders.value = "1, x"
+    assert "orders to extract" in angle_panel.status.value and angle_panel.error is not None
+    angle_panel.extract_unit.value = "hz"
+    angle_panel.extract_orders.value = "1, 29"

@@ -4,8 +4,8 @@ Figures are built with the object-oriented API on a ``matplotlib.figure.Figure``
 state), so they are safe in scripts, notebooks, threads and Dask workers.
 """
 
-from workbench.plots.angle import (plot_order_cuts, plot_order_map, plot_order_spectrum,
-                                   plot_rpm_frequency_map, plot_tacho_check)
+from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_order_map,
+                                   plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check)
 from workbench.plots.common import figure_bytes, new_figure, save_figure
 from workbench.plots.foldmap import draw_fold_map, plot_fold_map
 
@@ -16,6 +16,7 @@ __all__ = [
     "plot_order_spectrum",
     "plot_order_map",
     "plot_order_cuts",
+    "plot_order_envelopes",
     "plot_rpm_frequency_map",
     "save_figure",
     "new_figure",

@@ -21,6 +21,7 @@ __all__ = [
     "plot_order_cuts",
     "plot_rpm_frequency_map",
     "overlay_predicted_orders",
+    "plot_order_envelopes",
 ]
 
 
@@ -280,4 +281,40 @@ def plot_rpm_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db
     ax.set_xlabel("reference shaft speed (rpm)")
     ax.set_ylabel("frequency (Hz)")
     ax.set_title(title or "rpm-frequency map (Campbell diagram)", fontsize=10)
+    return fig
+
+
+def plot_order_envelopes(extraction, *, unit="", title=None, log=False):
+    """Envelopes of orders extracted by the Vold-Kalman filter: amplitude and phase against rpm.
+
+    Parameters
+    ----------
+    extraction : object with ``orders``, ``rpm``, ``amplitude`` (n_orders, m), ``phase_deg``
+        and ``bandwidth_hz`` (an :class:`~workbench.angle.vold_kalman.OrderExtraction`).
+    unit : str
+        Amplitude unit (peak, in the channel's unit).
+    log : bool
+        Logarithmic amplitude axis.
+    """
+    fig = new_figure(width_in=10.0, height_in=6.0)
+    ax, axp = fig.subplots(2, 1, sharex=True, height_ratios=(2, 1))
+    rpm = np.asarray(extraction.rpm, dtype=float)
+    step = max(1, len(rpm) // 4000)
+    for i, order in enumerate(extraction.orders):
+        bw = np.asarray(extraction.bandwidth_hz)[i]
+        label = (f"order {order:g} (-3 dB bandwidth {bw.min():.3g} Hz)" if np.ptp(bw) == 0 else
+                 f"order {order:g} (-3 dB bandwidth {bw.min():.3g}-{bw.max():.3g} Hz)")
+        ax.plot(rpm[::step], np.asarray(extraction.amplitude)[i, ::step], lw=1.0, label=label)
+        axp.plot(rpm[::step], np.asarray(extraction.phase_deg)[i, ::step], ".", ms=1.5)
+    if log:
+        ax.set_yscale("log")
+    ax.set_ylabel(f"amplitude, peak{(' (' + unit + ')') if unit else ''}")
+    ax.grid(True, lw=0.3, alpha=0.5, which="both")
+    ax.legend(fontsize=8)
+    axp.set_ylabel("phase (deg)")
+    axp.set_ylim(-180, 180)
+    axp.set_yticks([-180, -90, 0, 90, 180])
+    axp.set_xlabel("reference shaft speed (rpm)")
+    axp.grid(True, lw=0.3, alpha=0.5)
+    ax.set_title(title or "Order envelopes (Vold-Kalman filter)", fontsize=10)
     return fig

@@ -7,7 +7,9 @@ Steps and what each control redoes (the rest is kept):
    protection), with a progress bar fed chunk by chunk;
 3. order map, order spectrum, peaks and the identification of measured ridges with the
    machine's predicted lines (direct and folded) -- per (block length, window);
-4. order cuts -- per list of orders.
+4. order cuts -- per list of orders;
+5. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
+   filter order): envelopes against rpm, a player for one order's waveform, WAV export.
 
 Only the figure of the tab on show is drawn, and only when what it shows changed; the others
 are drawn when their tab is opened.
@@ -29,8 +31,8 @@ from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_orde
                              order_map, order_spectrum, tacho_angle)
 from workbench.angle.matching import identify_order_map
 from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
-from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_tacho_check,
-                             save_figure)
+from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_map, plot_order_spectrum,
+                             plot_tacho_check, save_figure)
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
@@ -91,6 +93,15 @@ class AngleDomainPanel:
         Strongest peaks of the order spectrum (class ``foldline-peaks``).
     status : ipywidgets.HTML
         Errors, warnings and what the last export wrote.
+    extract_orders, extract_bandwidth, extract_unit, extract_filter_order : ipywidgets
+        Order extraction tab: orders extracted together, -3 dB bandwidth (in Hz or in % of
+        each order's frequency) and order of the structural equation (Vold-Kalman filter).
+    extract_figure : ipywidgets.Image
+        Envelopes (amplitude and phase) against rpm.
+    extract_play, extract_audio : ipywidgets.Dropdown, ipywidgets.Audio
+        The order whose waveform the player holds (normalised to its peak).
+    export_waveform : ipywidgets.Button
+        Writes ``order_<k>.wav`` and ``order_<k>.csv`` for every extracted order.
     widget : ipywidgets.VBox
     """
 
@@ -113,6 +124,7 @@ class AngleDomainPanel:
         self._cuts = Cache(8)
         self._drawn = {}
         self._build(channel, spr, rpb)
+        self._build_extraction()
         self.folder.value = str(export_folder)
         self._controls = (self.channel, self.samples_per_rev, self.protect, self.revs_per_block,
                           self.window, self.cut_orders)
@@ -202,15 +214,7 @@ class AngleDomainPanel:
         return tuple(sorted(list(dict.fromkeys(orders))[:3]))
 
     def _orders(self) -> tuple:
-        text = self.cut_orders.value
-        try:
-            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
-        except ValueError:
-            values = ()
-        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
-            raise InputError(f"orders to cut {text!r}: give positive orders separated by commas, "
-                             "e.g. 1, 29, 58")
-        return values
+        return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
 
     # -- computation ----------------------------------------------------------------------
     def tacho(self):
@@ -378,6 +382,9 @@ class AngleDomainPanel:
         self._drawn[which] = self._figure_key(which)
 
     def _draw_shown(self):
+        if (self.tabs.selected_index or 0) >= len(self.FIGURES):
+            self._draw_extraction()
+            return
         which = self.FIGURES[self.tabs.selected_index or 0]
         if self._drawn.get(which) != self._figure_key(which):
             try:
@@ -452,6 +459,151 @@ class AngleDomainPanel:
             return ""
         items = "".join(f"<li>{html.escape(str(p))}</li>" for p in paths)
         return f'<div class="foldline-note">written:<ul class="foldline-written">{items}</ul></div>'
+
+    # -- order extraction (Vold-Kalman filter) ---------------------------------------------
+    #: Longest waveform handed to the player (samples); the WAV export holds the whole run.
+    MAX_PLAY_SAMPLES = 1 << 22
+
+    def _build_extraction(self):
+        """The extraction tab: orders, bandwidth (Hz or % of the order), filter order, player."""
+        style, wide = {"description_width": "110px"}, widgets.Layout(width="300px")
+        default = ", ".join(f"{o:g}" for o in self.default_cut_orders()[:2])
+        self.extract_orders = widgets.Text(value=default, description="orders", style=style, layout=wide,
+                                           continuous_update=False)
+        self.extract_bandwidth = widgets.BoundedFloatText(value=2.0, min=1e-3, max=1e6, step=0.5,
+                                                          description="-3 dB bandwidth", style=style,
+                                                          layout=wide)
+        self.extract_unit = widgets.ToggleButtons(options=(("Hz", "hz"), ("% of order", "pct")), value="hz",
+                                                  style={"button_width": "90px"})
+        self.extract_filter_order = widgets.Dropdown(options=(1, 2, 3), value=2, description="filter order",
+                                                     style=style, layout=wide)
+        self.extract_play = widgets.Dropdown(options=(), description="play order", style=style, layout=wide)
+        self.export_waveform = widgets.Button(description="export waveforms (WAV)", icon="music")
+        self.extract_audio = widgets.Audio(format="wav", autoplay=False, loop=False)
+        self.extract_figure = widgets.Image(format="png", layout=widgets.Layout(max_width="100%"))
+        self.extract_figure.add_class("foldline-figure")
+        self.extract_info = widgets.HTML()
+        self._extractions = Cache(4)
+        box = widgets.VBox([
+            widgets.HBox([widgets.VBox([self.extract_orders, self.extract_bandwidth, self.extract_unit]),
+                          widgets.VBox([self.extract_filter_order, self.extract_play, self.export_waveform])]),
+            self.extract_figure, self.extract_audio, self.extract_info])
+        self.tabs.children = tuple(self.tabs.children) + (box,)
+        self.tabs.set_title(len(self.tabs.children) - 1, "order extraction")
+        for control in (self.extract_orders, self.extract_bandwidth, self.extract_unit, self.extract_filter_order):
+            control.observe(lambda change: self._draw_shown(), names="value")
+        self.extract_play.observe(lambda change: self._update_player(), names="value")
+        self.export_waveform.on_click(lambda _b: self.export_waveforms())
+
+    def _extraction_key(self):
+        return (self.channel.value, self.extract_orders.value, float(self.extract_bandwidth.value),
+                self.extract_unit.value, int(self.extract_filter_order.value))
+
+    def extraction(self):
+        """The chosen orders of the chosen channel extracted together (Vold-Kalman filter, cached)."""
+        from workbench.angle import extract_orders
+
+        key = self._extraction_key()
+
+        def make():
+            orders = self._parse_orders(self.extract_orders.value, "orders to extract")
+            _, angle = self.tacho()
+            bw = {"hz": {"bandwidth_hz": key[2]}, "pct": {"bandwidth_pct": key[2]}}[key[3]]
+            return extract_orders(self.run.channel(key[0]), self.run.rate_hz, angle, orders,
+                                  filter_order=key[4], **bw)
+
+        return self._extractions.get(key, make)
+
+    @staticmethod
+    def _parse_orders(text, label, example="4, 4.1") -> tuple:
+        """Positive orders separated by commas (or semicolons) from a text box."""
+        try:
+            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
+        except ValueError:
+            values = ()
+        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
+            raise InputError(f"{label} {text!r}: give positive orders separated by commas, e.g. {example}")
+        return values
+
+    def _draw_extraction(self):
+        key = self._extraction_key()
+        if self._drawn.get("extraction") == key:
+            return
+        try:
+            with collect_warnings() as caught:
+                ex = self.extraction()
+            fig = plot_order_envelopes(ex, unit=self._unit())
+        except FoldlineError as exc:
+            self.status.value = STYLE + error_html(exc)
+            self.error = exc
+            return
+        self.error = None
+        self.extract_figure.value = figure_bytes(fig, dpi=_DPI)
+        self._drawn["extraction"] = key
+        labels = [(f"order {o:g}", o) for o in ex.orders]
+        if tuple(tuple(o) for o in self.extract_play.options) != tuple(labels):
+            self.extract_play.options = labels
+        if self.extract_play.value not in ex.orders:
+            self.extract_play.value = ex.orders[0]      # the player follows (observer)
+        else:
+            self._update_player()
+        bw = ex.bandwidth_hz
+        self.extract_info.value = STYLE + (
+            f'<div class="foldline-note">Vold-Kalman filter, orders extracted together; -3 dB bandwidth '
+            f"{bw.min():.3g}" + (f" to {bw.max():.3g}" if np.ptp(bw) else "") + f" Hz, filter order "
+            f"{ex.filter_order}; envelopes at {ex.envelope_rate_hz:g} Hz. {html.escape(self._player_note)}</div>"
+            + "".join(f'<div class="foldline-note">{html.escape(m)}</div>' for m in caught.messages))
+
+    _player_note = ""
+
+    def _update_player(self):
+        """Hand the chosen order's waveform (normalised, 16-bit) to the player."""
+        if self.extract_play.value is None or "extraction" not in self._drawn:
+            return
+        import io
+
+        from scipy.io import wavfile
+
+        ex = self.extraction()
+        wave = ex.waveform(self.extract_play.value)[: self.MAX_PLAY_SAMPLES]
+        peak = float(np.max(np.abs(wave))) or 1.0
+        rate = int(round(self.run.rate_hz))
+        speed = max(1, math.ceil(8000 / rate))   # browsers play WAV from 8 kHz up
+        buf = io.BytesIO()
+        wavfile.write(buf, rate * speed, np.round(wave / peak * 32000).astype(np.int16))
+        self.extract_audio.value = buf.getvalue()
+        notes = ["player: normalised to its peak"]
+        if speed > 1:
+            notes.append(f"played {speed} x faster (the run's rate {rate} Hz is below what browsers play)")
+        if len(wave) < ex.n_samples:
+            notes.append(f"first {len(wave) / self.run.rate_hz:.0f} s only (the WAV export holds the whole run)")
+        self._player_note = "; ".join(notes) + "."
+
+    def export_waveforms(self, folder=None) -> list:
+        """Write every extracted order's waveform (``order_<k>.wav``, float32, the run's rate and
+        length) and envelope (``order_<k>.csv``) to ``folder`` (default: the folder box)."""
+        from workbench.runs.extraction import order_files, write_order_envelope, write_order_waveform
+
+        folder = Path(self.folder.value if folder is None else folder).expanduser()
+        force = bool(self.overwrite.value)
+        written = []
+        try:
+            ex = self.extraction()
+            existing = [p.name for p in order_files(ex.orders, folder) if p.exists()]
+            if existing and not force:
+                raise OutputExistsError(f"{folder}: {', '.join(existing)} exist(s) already; nothing "
+                                        "written. Tick 'overwrite files' or choose another folder")
+            folder.mkdir(parents=True, exist_ok=True)
+            for o in ex.orders:
+                written.append(write_order_waveform(ex, o, folder, force=force))
+                written.append(write_order_envelope(ex, o, folder, force=force))
+        except (FoldlineError, OSError) as exc:
+            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.error = exc
+            return written
+        self.error = None
+        self.status.value = STYLE + self._written_html(written)
+        return written
 
     # -- display --------------------------------------------------------------------------
     def show(self):
