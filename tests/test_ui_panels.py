@@ -531,7 +531,8 @@ def test_extraction_tab_matches_the_direct_extraction_plays_and_exports(angle_pa
     assert angle_panel.extract_figure.value[:4] == b"\x89PNG"
     # The same extraction by a direct call of the angle layer with the run's tacho angle.
     angle = tacho_angle(detect_pulses(run.channel(run.tacho), run.rate_hz),
-                        pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses)
+                        pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
+                        sample_rate_hz=run.rate_hz)
     ref = extract_orders(run.channel("vibration"), run.rate_hz, angle, (1.0, 29.0), bandwidth_hz=2.0)
     ex = angle_panel.extraction()
     np.testing.assert_allclose(ex.envelope, ref.envelope, rtol=0, atol=1e-12 * np.abs(ref.envelope).max())
