@@ -2,7 +2,7 @@
 
 Scenario (issue "every bad input gets a clear error, nothing is lost, long recordings stay
 within memory"): a 2-channel float32 WAV of exactly 1 GiB of samples (134,217,728 frames at
-51.2 kHz, 2621 s), a linear run-up from 600 to 3000 rpm with a once-per-rev 0/5 V tacho (4-sample edges) on
+51.2 kHz, 2621 s), a linear run-up from 600 to 3000 rpm with a once-per-rev 0/5 V tacho (ideal steps) on
 channel 2 and orders 1, 10 and 33 on channel 1.  The file is written on the fly, chunk by
 chunk, with :class:`workbench.runs.WavWriter` (so this process never holds the record), then
 tracked by ``foldline track RUN --json`` in a subprocess whose resident memory is sampled from
@@ -53,10 +53,10 @@ def revs_at(t_s: np.ndarray) -> np.ndarray:
     return (RPM_START * t_s + 0.5 * slope * t_s**2) / 60.0
 
 
-#: Rise and fall time of the tacho edges: 4 samples, as a real tacho edge takes at this rate
-#: (an ideal step would time pulses only to the sample, which the tacho processing refuses
-#: where that leaves the speed uncertain beyond 0.1 %).
-TACHO_RISE_S = 4.0 / RATE
+#: Rise and fall time of the tacho edges: a fifth of a sample, i.e. ideal steps timed only to
+#: the sample, the hardest edge a bench records (the tacho stage bounds their timing error by
+#: half a sample and smooths accordingly).
+TACHO_RISE_S = 0.2 / RATE
 
 
 def tacho_volts(t_s: np.ndarray, revs: np.ndarray) -> np.ndarray:

@@ -1765,33 +1765,39 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
         How far (in pitches, 0 < tolerance < 0.5) an interval may be from a whole number of
         pitches before it is doubted.
     min_rpm : float, optional
-        Refuse intervals slower than this (rpm); default: no speed floor.
+        Treat intervals slower than this (rpm) as unknown speed; default: no speed floor.
+    speed_tolerance : float, optional
+        RMS relative speed uncertainty (a fraction: 1e-4 is 0.01 %) the smoothing aims at and
+        the warning refers to; default :data:`DEFAULT_SPEED_TOLERANCE`, the error budget of
+        :func:`speed_tolerance_for` at order 100 and 16 revolutions per block.
+    sample_rate_hz : float, optional
+        Sample rate of the tacho channel; with it the edge detector's bias (a function of where
+        an edge falls between samples) is recognised and removed.
 
     Returns
     -------
     ShaftAngle
-        Angle fit; ``doubted`` lists removed, inferred and doubted pulses with reasons;
-        ``timing`` (a :class:`PulseTiming`) gives the estimated pulse timing jitter, whether
-        the pulse times were smoothed and the speed uncertainty left.
+        Angle fit; ``doubted`` lists removed, inferred and doubted pulses and the spans where
+        the speed is unknown, with reasons; ``timing`` (a :class:`PulseTiming`) gives the
+        estimated pulse timing jitter, whether the pulse times were smoothed, the speed and
+        angle uncertainty left and where it exceeds the tolerance; ``gaps`` / ``stretches``
+        the spans where the speed is unknown and the usable stretches between them.
 
     Raises
     ------
     TachoError
-        Fewer than 3 pulses; the machine stopped, slowed abruptly or reversed (an interval
-        longer than ``missing_pulses + 2`` pitches, or slower than ``min_rpm``), naming the
-        unusable seconds; two or more pulses lost in a row (an interval of 3 to 6 whole pitches
-        between regular pulses), named as such with the unusable seconds; a missing-tooth gap
-        not found or not recurring once per revolution; pulse times so noisy that even
-        smoothed the speed is uncertain by more than 0.1 % (coverage factor 3), naming the
-        jitter, the uncertainty and the unusable seconds.
-        The whole record is refused rather than tracked in part: cut it to the usable span.
+        Fewer pulses than a shaft angle needs (3, or two revolutions of a missing-tooth
+        wheel); no stretch of the record usable; a missing-tooth gap not found or not recurring
+        once per revolution in a record of one stretch.
 
     Warns
     -----
     FoldlineWarning
-        When the pulse times were smoothed: the estimated timing jitter, the speed
-        uncertainty interpolating them would have left and the one left after smoothing, the
-        shortest speed change kept, and any pulses left out at the ends of the record.
+        Where the speed is unknown (a stop, an abrupt slow-down, a reversal: an interval longer
+        than ``missing_pulses + 2`` pitches or slower than ``min_rpm``; two or more pulses lost
+        in a row: an interval of 3 to 6 whole pitches between regular pulses), naming the
+        seconds and the usable stretches, which are fitted on their own; where the speed
+        uncertainty exceeds ``speed_tolerance``, with the figure and the seconds.
 
     Notes
     -----
@@ -1815,32 +1821,36 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
 
     **Timing jitter.**  Noise on the tacho moves each edge by a random amount; between pulses
     an interpolating fit turns that into a speed error of about 1.57 x jitter / pulse interval
-    (RMS; the exact gain of the not-a-knot spline): up to 2.7 % between pulses in a run-up at
-    30 pulses per rev and 20 dB SNR (``tests/test_hard_runs.py``).
-    The jitter is estimated from the data, per block of 256 pulses: the ``k``-th divided
-    differences of the pulse times against their pitch counts (k = 4, 6, 8), each scaled to
-    unit noise gain, have the jitter as their standard deviation whatever the speed curve of
-    degree below ``k`` (difference-based variance estimation, Gasser et al. 1986, Hall et al.
-    1990); its robust scale (1.4826 x MAD, Hampel 1974) ignores the odd outlier, and the
-    smallest of the three orders is kept, so a genuine speed variation (which shrinks with the
-    order, white jitter does not) is not taken for jitter.
+    (RMS; the exact gain of the not-a-knot spline).  The jitter is estimated from the data,
+    per block of 256 pulses: the ``k``-th divided differences of the pulse times against their
+    pitch counts (k = 4, 6, 8), each scaled to unit noise gain, have the jitter as their
+    standard deviation whatever the speed curve of degree below ``k`` (difference-based
+    variance estimation, Gasser et al. 1986, Hall et al. 1990); the scale is the larger of a
+    robust one (1.4826 x MAD, Hampel 1974) and the RMS without the largest 0.5 %, and the
+    smallest of the three orders is kept, so a genuine speed variation is not taken for
+    jitter.  Floors: half the record's median (near a whole number of samples per pitch,
+    neighbouring errors are alike and the differences miss them), a hundredth of a sample
+    when ``sample_rate_hz`` is given, and for edges timed only to the sample (pulse times on
+    the sample grid) the uniform quantisation's ``step / sqrt(12)``.
 
-    Where the jitter would leave an RMS speed error above 0.01 % (the clean-tacho target), the
-    pulse times are smoothed before the fit: a penalised least-squares fit of pulse time
-    against pitch count, penalising 4th differences (a Whittaker smoother, the discrete
-    analogue of a smoothing spline, Whittaker 1923, Reinsch 1967; pitch positions without a
-    pulse carry no data, Eilers 2003), so cubics in angle, and with them constant
-    acceleration, pass unchanged.  The penalty weight is set per pulse from the estimated
-    jitter, the least that brings the RMS speed error down to 0.005 %.  Angles stay whole
-    pitches and the fit stays monotone (the smoothed times increase).  Where the residuals are
-    well above those the same smoothing leaves on pure jitter (1.5 x, per block), it removed
-    part of the speed itself, and is reduced there.  The speed uncertainty left is found by
-    propagating simulated jitter of the estimated size through the same smoothing and fit
-    (16 replicates, fixed seed; Monte Carlo propagation, JCGM 101:2008).  Where it exceeds
-    0.1 % with coverage factor 3 (JCGM 100:2008), the record is refused naming those seconds,
-    except for a few pulses (at most 5 % of the record) at its very ends, where the smoothing
-    sees one side only: these are left out and listed in ``doubted``.  The uncertainty covers
-    the jitter; speed changes faster than ``timing.smoothing_s`` are rounded off as well.
+    Where the jitter would leave an RMS speed error above half the tolerance, the pulse times
+    are smoothed before the fit: a penalised least-squares fit of pulse time against pitch
+    count, penalising 4th differences (a Whittaker smoother, the discrete analogue of a
+    smoothing spline, Whittaker 1923, Reinsch 1967; pitch positions without a pulse carry no
+    data, Eilers 2003), so cubics in angle, and with them constant jerk, pass unchanged.  The
+    penalty weight is set per pulse from the jitter, the least that brings the speed noise to
+    a third of the tolerance, and capped where the log pitch changes fast (a shaft's inertia
+    bounds how fast its speed changes; the start of a run-up from rest, where time grows as
+    the square root of the count, sets the cap).  Smoothing is reduced where it removed part
+    of the speed itself: residuals averaged over a quarter of its span stand out from the
+    ratio the smoothing's response gives white noise (2 x); for edges timed only to the
+    sample, a smoothed time more than a sample from its pulse.  With ``sample_rate_hz`` the
+    residuals are regressed on three harmonics of the sub-sample phase, and a detector bias
+    that stands clear of the noise is removed.  A pulse far off the smoothed curve (8 x the
+    jitter) while its neighbours are not is given no weight and listed.  The speed and angle
+    uncertainty left come from the smoothing's noise response (Parseval) and, near the ends,
+    from simulated jitter propagated through the same smoothing and fit (Monte Carlo, JCGM
+    101:2008).  Knots of the angle fit are kept every eighth of the smoothing's span.
 
     References
     ----------
