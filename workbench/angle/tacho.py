@@ -1212,15 +1212,6 @@ def _speed_noise(counts: np.ndarray, z_noise: np.ndarray, pitch_s: np.ndarray
     return x, np.sqrt(np.mean(rel * rel, axis=1))
 
 
-def _running_rms(u: np.ndarray, width: int) -> np.ndarray:
-    """RMS of ``u`` over a centred window of ``width`` points (shorter at the ends)."""
-    c = np.concatenate(([0.0], np.cumsum(u * u)))
-    i = np.arange(len(u))
-    lo = np.maximum(i - width // 2, 0)
-    hi = np.minimum(i + width // 2 + 1, len(u))
-    return np.sqrt((c[hi] - c[lo]) / (hi - lo))
-
-
 @dataclass(frozen=True)
 class _TimingResult:
     """What :func:`_pulse_timing` found: the times to fit and the timing."""
