@@ -20,6 +20,8 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
 from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
                                    detect_pulses, tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
+from workbench.angle.vibration_speed import (SpeedEstimate, speed_from_channel,
+                                             speed_from_vibration)
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
@@ -27,4 +29,5 @@ __all__ = [
     "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
     "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks",
+    "SpeedEstimate", "speed_from_vibration", "speed_from_channel",
 ]
