@@ -214,14 +214,15 @@ class _Decimator:
             self.start = keep
 
     def finish(self, rate_hz: float) -> tuple[np.ndarray, float]:
-        """All outputs inside the record, and the time (s) of the first one."""
+        """The outputs whose taps lie inside the record, and the time (s) of the first one."""
         pad = int(math.ceil(self.delay)) + self.q
         self.buf = np.concatenate((self.buf, np.zeros(pad)))
         self._run(self.start + len(self.buf))
         y = np.concatenate(self.out) if self.out else np.empty(0)
         m = np.arange(len(y))
         t = (m * self.q - self.delay) / rate_hz
-        inside = (t >= 0) & (t <= (self.n_in - 1) / rate_hz + 1e-12)
+        half = self.delay / rate_hz
+        inside = (t >= half - 1e-12) & (t <= (self.n_in - 1) / rate_hz - half + 1e-12)
         i0 = int(np.argmax(inside)) if inside.any() else 0
         y = y[inside]
         return y, float((i0 * self.q - self.delay) / rate_hz)
@@ -749,9 +750,10 @@ def speed_from_channel(x, rate_hz: float, *, scale: float, offset: float = 0.0,
         Speed changes faster than this are smoothed away (Hz, default 10: a shaft's inertia
         keeps its speed from changing faster, and a drive's analogue output is usually updated
         and filtered more slowly).  The channel is decimated with a linear-phase FIR (Kaiser,
-        80 dB; pass band to ``bandwidth_hz``) to 2.5 x ``bandwidth_hz`` (at least) and
-        low-passed at ``bandwidth_hz`` forward and backward (4th-order Butterworth, no phase
-        shift).
+        80 dB) to about 20 x ``bandwidth_hz`` and low-passed at ``bandwidth_hz`` forward and
+        backward (4th-order Butterworth, no phase shift; each end padded by reflection about
+        a fitted line, so a ramp passes unchanged).  The first and last ``0.6 /
+        bandwidth_hz`` s or so (where the FIR's taps would leave the record) are left out.
     tolerance : float
         RMS relative uncertainty (a fraction, default 0.002) beyond which a warning says so.
     chunk : int
@@ -799,15 +801,17 @@ def speed_from_channel(x, rate_hz: float, *, scale: float, offset: float = 0.0,
         raise InputError(f"tolerance {tolerance!r} is not valid; allowed: a fraction > 0")
     if bwh >= 0.4 * rate:
         bwh = 0.4 * rate * 0.5
-    q = max(1, int(rate // (_OVERSAMPLE * 2 * bwh)))
+    # Decimated to 20 x bandwidth_hz: the FIR stays short (its taps reach about 0.6 /
+    # bandwidth_hz s; outputs whose taps leave the record are dropped).
+    q = max(1, int(rate // (20.0 * bwh)))
     xd, t0, n_in = _decimated(x, rate, q, int(chunk))
     fs = rate / q
     if len(xd) < 8:
         raise InputError(f"the speed channel holds {n_in} samples; allowed: at least "
                          f"{8 * q} at {rate:g} Hz")
     raw = off + s * xd
-    padlen = min(len(raw) - 1, 3 * int(fs / bwh) + 1)
-    rpm = signal.sosfiltfilt(_lowpass_sos(bwh, fs, order=4), raw, padlen=padlen)
+    rpm = _filtfilt_line_pad(_lowpass_sos(bwh, fs, order=4), raw, int(8 * fs / bwh),
+                             int(fs / bwh))
     t = t0 + np.arange(len(xd)) / fs
     resid = raw - rpm
     white = bwh / max(0.5 * fs - bwh, bwh)
