@@ -278,6 +278,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli import verbs_runs
 
     verbs_runs.add_verbs(verb)
+    from workbench.cli.verb_speed import add_speed_verb
+
+    add_speed_verb(verb)
     return parser
 
 
