@@ -74,7 +74,7 @@ def write_speed_table(path, time_s, rpm, *, force: bool = False) -> None:
 
     table = np.column_stack([np.asarray(time_s, dtype=float), np.asarray(rpm, dtype=float)])
     with atomic_output(path, force=force) as tmp:
-        np.savetxt(tmp, table, fmt="%.12g", delimiter=",", header="time_s,rpm", comments="")
+        np.savetxt(tmp, table, fmt="%.17g", delimiter=",", header="time_s,rpm", comments="")
 
 
 def cmd_speed(args) -> int:
