@@ -515,3 +515,29 @@ def test_angle_panel_names_what_it_can_export_and_draw(angle_panel, tmp_path):
     assert "choose &#x27;tables&#x27; or &#x27;figures&#x27;" in angle_panel.status.value
     with pytest.raises(InputError, match="choose one of tacho, map, cuts, spectrum"):
         angle_panel.figure("campbell")
+
+
+def test_angle_panel_offers_the_three_speed_sources():
+    # A run-up without a tacho, 1200 -> 2400 rpm in 10 s (truth: the closed-form profile):
+    # orders 1 and 2 in the vibration, and a drive's speed output at 600 rpm per volt.
+    from workbench.runs import Run
+
+    rate = 2048.0
+    t = np.arange(int(10 * rate)) / rate
+    revs = (1200.0 * t + 60.0 * t * t) / 60.0
+    vib = np.cos(2 * np.pi * revs) + 0.5 * np.cos(4 * np.pi * revs)
+    run = Run(np.vstack([vib, (1200.0 + 120.0 * t) / 600.0]), rate, ("vibration", "drive"))
+    panel = AngleDomainPanel(run, channel="vibration")
+    assert "no tacho channel" in panel.status.value          # the tacho is the default source
+    panel.speed_range.value = "1000, 2600"
+    panel.speed_source.value = "vibration"
+    assert panel.error is None and "speed from the vibration" in panel.tacho_info.value
+    _, angle = panel.tacho()
+    assert angle.rpm_at(5.0) == pytest.approx(1800.0, rel=2e-3)
+    panel.speed_channel.value = "drive"
+    panel.speed_scale.value = 600.0
+    panel.speed_source.value = "channel"
+    assert panel.error is None and "speed from the channel" in panel.tacho_info.value
+    _, angle = panel.tacho()
+    assert angle.rpm_at(5.0) == pytest.approx(1800.0, rel=1e-4)
+    assert panel.track().revolutions == pytest.approx(angle.revolutions, rel=0.05)
