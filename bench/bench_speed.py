@@ -76,19 +76,25 @@ def make_inputs(folder: Path, duration=DURATION) -> tuple[Path, Path]:
 _CHILD = r"""
 import json, sys, time, warnings
 import numpy as np
-which, path, rate = sys.argv[1], sys.argv[2], float(sys.argv[3])
 from workbench.angle import detect_pulses, speed_from_vibration, tacho_angle
+which, path, rate = sys.argv[1], sys.argv[2], float(sys.argv[3])
 x = np.load(path, mmap_mode="r")
 t0 = time.perf_counter()
-with warnings.catch_warnings(record=True) as caught:
-    warnings.simplefilter("always")
-    if which == "vibration":
-        est = speed_from_vibration(x, rate, order=1, rpm_range=(500.0, 6500.0))
-        angle, extra = est.angle, {"uncertainty_pct": 100 * est.speed_uncertainty}
-    else:
-        pulses = detect_pulses(x, rate)
-        angle = tacho_angle(pulses, pulses_per_rev=60, missing_pulses=2)
-        extra = {"pulses": int(len(pulses))}
+extra = {}
+try:
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        if which == "vibration":
+            est = speed_from_vibration(x, rate, order=1, rpm_range=(500.0, 6500.0))
+            angle, extra = est.angle, {"uncertainty_pct": 100 * est.speed_uncertainty}
+        else:
+            pulses = detect_pulses(x, rate)
+            extra = {"pulses": int(len(pulses)), "detect_s": time.perf_counter() - t0}
+            angle = tacho_angle(pulses, pulses_per_rev=60, missing_pulses=2)
+except Exception as exc:  # report the time it took to refuse, and why
+    print(json.dumps({"seconds": time.perf_counter() - t0, "error": f"{type(exc).__name__}: "
+                      f"{str(exc)[:300]}", **extra}))
+    sys.exit(0)
 seconds = time.perf_counter() - t0
 tt = np.linspace(angle.t_start_s, angle.t_end_s, 20001)
 print(json.dumps({"seconds": seconds, "t": tt.tolist(), "rpm": angle.rpm_at(tt).tolist(),
@@ -104,6 +110,8 @@ def _child(which: str, path: Path) -> dict:
     if out.returncode:
         return {"error": out.stderr.strip().splitlines()[-1] if out.stderr else "failed"}
     res = json.loads(out.stdout)
+    if "error" in res:
+        return res
     t = np.asarray(res.pop("t"))
     rpm = np.asarray(res.pop("rpm"))
     err = rpm / rpm_at(t) - 1.0
@@ -124,11 +132,16 @@ def main(duration=DURATION) -> dict:
             res = _child(which.split()[0], path)
             results[which] = res
             if "error" in res:
-                print(f"{which}: FAILED: {res['error']}")
+                took = f" after {res['seconds']:.2f} s" if "seconds" in res else ""
+                detect = (f" (pulse detection of {res['pulses']} pulses: {res['detect_s']:.2f} s)"
+                          if "detect_s" in res else "")
+                print(f"{which}: FAILED{took}{detect}: {res['error']}")
                 continue
             ok = "meets" if res["seconds"] < target * duration / DURATION else "MISSES"
             extra = (f", stated uncertainty {res['uncertainty_pct']:.3g} % RMS"
                      if "uncertainty_pct" in res else "")
+            if "detect_s" in res:
+                extra += f"; pulse detection {res['detect_s']:.2f} s of it"
             print(f"{which}: {res['seconds']:.2f} s ({ok} the target of {target:g} s); speed "
                   f"error against the truth {res['rms_pct']:.3g} % RMS, worst "
                   f"{res['worst_pct']:.3g} %{extra}; span {res['span_s'][0]:.2f}-"
