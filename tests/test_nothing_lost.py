@@ -102,6 +102,7 @@ VERBS = {
     "simulate": ["simulate", "m.toml", "p.toml", "--rate", "2560", "--duration", "1", "--out",
                  "OUT/sim.wav", "--json"],
     "track": ["track", "run.wav", "--out", "OUT/track", "--json"],
+    "speed": ["speed", "run.wav", "--out", "OUT/speed.csv", "--json"],
 }
 
 
