@@ -410,8 +410,8 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
     bandwidth_orders : float
         Width (orders of the reference shaft) of the band the demodulation keeps around the
         order (default 0.5, i.e. +-0.25 orders, half the spacing of integer orders).  Its
-        half-width in Hz at the lowest speed searched also sets how fast a speed change is
-        followed: speed changes faster than half of it (Hz) are smoothed away.
+        half-width ``B`` in Hz at the lowest speed searched (see Notes) also sets how fast a
+        speed change is followed: speed changes faster than about ``B / 2`` are smoothed away.
     window_revs : float
         Length of the short-time Fourier transform windows, in revolutions at the lowest
         speed searched (default 8); shortened for fast sweeps (see Notes).
@@ -463,15 +463,23 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
     a strong fixed line that held the other); otherwise the speed is taken as constant, where
     an order cannot be told from a fixed line by its motion, and fixed lines are kept.
 
-    **Demodulation.**  Each fixed line within reach of the band is measured away from the
-    times the ridge crosses it and subtracted.  The decimated channel is multiplied by
-    ``exp(-j phi_r(t))`` (``phi_r`` the ridge's phase), low-passed (6th-order Butterworth,
-    forward-backward, cut-off the band's half-width in Hz at the lowest speed) and decimated;
-    the order's phase is ``phi_r`` plus the unwrapped phase of that analytic component, and the
-    speed is its slope divided by ``2 pi order``.  This is the ridge-following band-pass and
-    phase demodulation of Urbanek, Barszcz & Antoni (2013) and Combet & Gelman (2007), done as
-    a heterodyne; Bonnardot et al. (2005) phase-demodulate a mesh harmonic the same way.  The
-    speed is then low-passed at half the band.
+    **Demodulation.**  The band's half-width ``B`` (Hz) is ``bandwidth_orders / 2`` orders at
+    the lowest speed searched, widened to the STFT's resolution (so the coarse ridge lies
+    inside it) but kept under 0.45 orders there.  Each fixed line within reach of the band (of
+    the order or of a harmonic) is measured away from the times the ridge crosses it and
+    subtracted.  The decimated channel is multiplied by ``exp(-j phi_r(t))`` (``phi_r`` the
+    ridge's phase), low-passed (6th-order Butterworth at ``B``, forward-backward, each end
+    padded by reflection about a fitted line) and decimated to about ``8 B``; the order's phase
+    is ``phi_r`` plus the unwrapped phase of that analytic component, and the speed is its
+    slope divided by ``2 pi order``.  This is the ridge-following band-pass and phase
+    demodulation of Urbanek, Barszcz & Antoni (2013) and Combet & Gelman (2007), done as a
+    heterodyne; Bonnardot et al. (2005) phase-demodulate a mesh harmonic the same way.  The
+    first pass follows the STFT ridge with the order alone; the second follows the first
+    pass's speed with the order and each harmonic scored, and combines their speeds point by
+    point with weights 1 / uncertainty^2 (several orders against one speed, as in Leclere et
+    al. 2016).  Each speed is smoothed by a cubic Savitzky-Golay filter of ``5 / B`` seconds
+    (cut-off about ``B / 2``; Schafer 2011), which fits the ends instead of padding them.  The
+    first and last ``1 / B`` seconds, where the filters see one side only, are left out.
 
     **Uncertainty.**  Additive noise makes the demodulated phase noisy over the band, so its
     slope has a noise spectrum rising with frequency squared up to the band edge ``B``.  The
@@ -479,9 +487,10 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
     demodulated speed and the smoothed one (content above ``B/2``) is noise, and the noise left
     below ``B/2`` is 1/7 of its variance (the integral of ``f^2`` over ``[0, B/2]`` against
     ``[B/2, B]``).  Per point: the local RMS of that residual (over 4 / B seconds) / sqrt(7),
-    relative to the speed; over the record, the RMS of those.  It covers noise and leftover
-    interference; a ridge captured by another line is not covered (check the ridge against the
-    order map).
+    relative to the speed; over the record, the RMS of those; combined over the harmonics as
+    ``1 / sqrt(sum(1 / u_h^2))``.  It covers noise and leftover interference; a ridge captured
+    by another line is not covered (check the ridge against the order map), and in the first
+    and last second of a fast sweep the error can reach about twice the figure.
 
     References
     ----------
@@ -504,6 +513,8 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
        decoding algorithm", IEEE Transactions on Information Theory 13(2):260-269, 1967.
     .. [7] R. A. Carmona, W. L. Hwang and B. Torresani, "Multiridge detection and time-frequency
        reconstruction", IEEE Transactions on Signal Processing 47(2):480-492, 1999.
+    .. [8] R. W. Schafer, "What is a Savitzky-Golay filter?", IEEE Signal Processing Magazine
+       28(4):111-117, 2011.
 
     Examples
     --------
