@@ -308,6 +308,55 @@ def _harmonic_score(c: np.ndarray, cand_bins: np.ndarray, harmonics: int) -> np.
     return score
 
 
+def _octave_check(c: np.ndarray, cand: np.ndarray, path: np.ndarray, k: float,
+                  n_harm: int) -> tuple[np.ndarray, float]:
+    """Check the path against half and twice its frequency on the comb of shaft harmonics.
+
+    If the path follows order ``k`` at ``f``, the shaft's harmonics lie at ``j f / k``
+    (j = 1, 2, ...).  Over one frequency span (up to ``2 x n_harm`` times the path's
+    frequency, as far as the spectrum reaches), the mean compressed power on the teeth of that
+    comb, less the power midway between teeth, is compared with the combs of ``f / 2`` and
+    ``2 f`` (a harmonic-sieve in the manner of Camacho & Harris's SWIPE, 2008): a comb twice
+    as dense as the machine's finds half its teeth empty, and one half as dense finds the
+    machine's odd orders between its teeth, so a strong half order (order 1 when order 2 is
+    tracked) that fits the harmonic score as well as the order does, or a strong 2nd harmonic,
+    does not hold the path.  The path moves only when another comb scores 20 % higher and lies
+    (for 80 % of the frames) inside the range searched; the ridge is then found again within
+    +-20 % of the moved path.  Where the wrong path sat at an end of the range (half the speed
+    left the range), the moved path is wrong there too: give a range that holds the speed but
+    not half of it when order ``k / 2`` is strong.
+    """
+    n_t, n_f = c.shape
+    f = cand[path].astype(np.float64)
+    top = np.minimum(2.0 * n_harm * f, n_f - 1.0)               # bins, per frame
+    wide = maximum_filter1d(c, size=3, axis=1)
+
+    def comb(ratio):
+        step = ratio * f / k                                   # shaft frequency, bins
+        n_teeth = int(min(96, np.max(top / np.maximum(step, 1e-9))))
+        j = np.arange(1, n_teeth + 1, dtype=np.float64)
+        b = j[None, :] * step[:, None]
+        ok = (b <= top[:, None]) & (b >= 1)
+        if not ok.any():
+            return -np.inf
+        bi = np.clip(np.rint(b).astype(np.int64), 0, n_f - 1)
+        mid = np.clip(np.rint(b - 0.5 * step[:, None]).astype(np.int64), 0, n_f - 1)
+        vals = np.take_along_axis(wide, bi, axis=1) - np.take_along_axis(c, mid, axis=1)
+        return float(np.sum(np.where(ok, vals, 0.0)) / ok.sum())
+
+    best, best_ratio = comb(1.0), 1.0
+    for ratio in (0.5, 2.0):
+        inside = np.mean((ratio * f >= cand[0]) & (ratio * f <= cand[-1]))
+        if inside >= 0.8:
+            sc = comb(ratio)
+            if sc > 1.2 * best:
+                best, best_ratio = sc, ratio
+    if best_ratio == 1.0:
+        return path, 1.0
+    moved = np.clip(np.searchsorted(cand, best_ratio * f), 0, len(cand) - 1)
+    return moved, best_ratio
+
+
 # --------------------------------------------------------------------------------------------
 # Fixed-line subtraction and demodulation
 # --------------------------------------------------------------------------------------------
@@ -605,6 +654,13 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
         c = np.clip(np.log(np.maximum(qq, 1e-300)), 0.0, _SCORE_CAP)
         score = _harmonic_score(c, cand.astype(np.float64), n_harm)
         p = _viterbi(score, max_jump, _JUMP_PENALTY)
+        moved, ratio = _octave_check(c, cand, p, k, n_harm)
+        if ratio != 1.0:
+            near = np.abs(cand[None, :] - cand[moved][:, None]) <= np.maximum(
+                0.2 * cand[moved][:, None], 3)
+            p = _viterbi(np.where(near, score, score - 100.0), max_jump, _JUMP_PENALTY)
+            log.append(f"ridge moved to {ratio:g} x its frequency: the shaft's harmonics fit "
+                       "there better")
         return p, float(np.median(score[np.arange(n_t), p]))
 
     moving = True
