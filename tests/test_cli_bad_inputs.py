@@ -391,10 +391,6 @@ CASES = [
     rcase("run-tacho-no-edges", good_run(**{"run.wav": wav_bytes(np.vstack([
         DATA[0], np.where(np.arange(N) < 600, 5.0, 0.0)]))}),
           r"^run\.wav: tacho channel 'tacho': no rising edges crossed the trigger band"),
-    rcase("run-machine-stalls", good_run(**{"run.wav": wav_bytes(stalled_signals())}),
-          r"^run\.wav: tacho channel 'tacho': the shaft stopped, slowed abruptly or reversed "
-          r".*: unusable seconds 1\.\d+-1\.\d+ s, 1\.\d+-2\.\d+ s; cut the record to the "
-          r"usable part"),
     rcase("run-channel-unknown", good_run(), r"^run\.wav: --channel: channel 'vibraton' not "
           r"found; available: 1='vibration', 2='tacho'", args=("--channel", "vibraton")),
     rcase("run-samples-per-rev-huge", good_run(), r"^--samples-per-rev 100000000: must be a "
@@ -533,3 +529,22 @@ def test_adjusted_value_warns_in_one_line_and_json_stays_clean(tmp_path):
     lines = out.stderr.splitlines()
     assert lines and all(line.startswith("foldline: warning: ") for line in lines), lines
     assert any(re.search(r"cutoff 0\.6 x rate lies above Nyquist", line) for line in lines)
+
+
+def test_machine_that_stalls_is_tracked_either_side_with_one_warning_line(tmp_path):
+    # A standstill cannot be tracked (the speed is unknown there), but it is no reason to
+    # refuse the run: one warning line names the seconds and the stretches, each tracked.
+    case = Case("stalls", good_run(**{"run.wav": wav_bytes(stalled_signals())}),
+                ["track", "run.wav", "--json"], "")
+    out = _run(case, tmp_path / "stalls")
+    assert out.returncode == 0, out.stderr
+    result = json.loads(out.stdout)
+    # 1200 rpm either side of the stop (analytic profile of stalled_signals); within 1 %: a
+    # once-per-rev tacho timed only to the sample at 2 kHz, in a re-acceleration of 2400 rpm/s,
+    # leaves the first pulses of the second stretch that uncertain.
+    assert result["rpm_max"] == pytest.approx(1200.0, rel=1e-2)
+    lines = out.stderr.splitlines()
+    assert lines and all(line.startswith("foldline: warning: ") for line in lines), lines
+    assert any(re.search(r"the speed is unknown in 1\.\d+-[12]\.\d+ s.*stopped, slowed abruptly "
+                         r"or reversed.*usable stretches 0\.\d+-1\.\d+ s, 2\.\d+-3\.\d+ s are "
+                         r"tracked on their own", line) for line in lines), lines

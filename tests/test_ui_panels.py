@@ -558,3 +558,27 @@ def test_extraction_tab_matches_the_direct_extraction_plays_and_exports(angle_pa
     assert "orders to extract" in angle_panel.status.value and angle_panel.error is not None
     angle_panel.extract_unit.value = "hz"
     angle_panel.extract_orders.value = "1, 29"
+def test_angle_panel_offers_the_three_speed_sources():
+    # A run-up without a tacho, 1200 -> 2400 rpm in 10 s (truth: the closed-form profile):
+    # orders 1 and 2 in the vibration, and a drive's speed output at 600 rpm per volt.
+    from workbench.runs import Run
+
+    rate = 2048.0
+    t = np.arange(int(10 * rate)) / rate
+    revs = (1200.0 * t + 60.0 * t * t) / 60.0
+    vib = np.cos(2 * np.pi * revs) + 0.5 * np.cos(4 * np.pi * revs)
+    run = Run(np.vstack([vib, (1200.0 + 120.0 * t) / 600.0]), rate, ("vibration", "drive"))
+    panel = AngleDomainPanel(run, channel="vibration")
+    assert "no tacho channel" in panel.status.value          # the tacho is the default source
+    panel.speed_range.value = "1000, 2600"
+    panel.speed_source.value = "vibration"
+    assert panel.error is None and "speed from the vibration" in panel.tacho_info.value
+    _, angle = panel.tacho()
+    assert angle.rpm_at(5.0) == pytest.approx(1800.0, rel=2e-3)
+    panel.speed_channel.value = "drive"
+    panel.speed_scale.value = 600.0
+    panel.speed_source.value = "channel"
+    assert panel.error is None and "speed from the channel" in panel.tacho_info.value
+    _, angle = panel.tacho()
+    assert angle.rpm_at(5.0) == pytest.approx(1800.0, rel=1e-4)
+    assert panel.track().revolutions == pytest.approx(angle.revolutions, rel=0.05)

@@ -22,6 +22,8 @@ from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, Sh
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
 from workbench.angle.vold_kalman import (OrderExtraction, extract_orders, vk_bandwidth_hz,
                                          vk_response, vk_weighting)
+from workbench.angle.vibration_speed import (SpeedEstimate, speed_from_channel,
+                                             speed_from_vibration)
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
@@ -30,4 +32,5 @@ __all__ = [
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
     "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks",
     "OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",
+    "SpeedEstimate", "speed_from_vibration", "speed_from_channel",
 ]

@@ -860,6 +860,8 @@ _MC_SEED = 1729
 _STRUCTURE_RATIO_MAX = 2.0
 _LAMBDA_STEP = 30.0
 _SMOOTH_PASSES = 4
+# A running mean of the residuals this many times what jitter alone gives marks a kink.
+_KINK_SIGMAS = 8.0
 # Edges timed only to the sample: a smoothed pulse time may be at most this times half a
 # sample from its pulse.  Each time is within half a sample of its edge, but where the pitch is
 # close to a whole number of samples the errors form a slow sawtooth whose jumps of one sample
@@ -1484,7 +1486,7 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
     y = (t - trend)[:, None]
     grid = np.arange(int(c0[-1]) + 1, dtype=np.float64)
     mid = (edges[:-1] + edges[1:]) // 2
-    factor = np.ones(len(sig_b))
+    factor = np.ones(n)
     lam_now = np.maximum(lam, _LAMBDA_MIN)
     z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
     if rate_hz is not None and not math.isfinite(step_s):
@@ -1493,42 +1495,56 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
             t = t - bias
             y = y - bias[:, None]
             z = _smooth_times(c0, y, np.interp(grid, cf, lam_now))
-    for attempt in range(_SMOOTH_PASSES + 1):
-        if attempt:
-            changed = factor[block] != previous[block]
-            lam_now = np.maximum(lam * factor[block], _LAMBDA_MIN)
-            z = _smooth_local(c0, y, lam_now, z, changed)
-        if attempt == _SMOOTH_PASSES:
-            break
-        previous = factor.copy()
-        resid = (y - z)[:, 0]
-        if math.isfinite(step_s):
-            # Edges timed only to the sample: each time is within half a sample of the edge, so
-            # a smoothed time further than that from its pulse has left the true speed.
-            worst = np.maximum.reduceat(np.abs(resid), edges[:-1])
-            too_big = worst > _QUANTISED_SLACK * 0.5 * step_s
-        else:
-            # Residuals averaged over a quarter of the smoothing's span: pure jitter averages
-            # away (to the ratio the smoothing's response gives white noise), speed the
-            # smoothing removed does not.  Relative to the residuals' own scale, so a
-            # misjudged jitter does not matter.
-            avg = _running_mean(resid, _structure_width(lam_now))
-            own = _block_rms(avg, edges) / np.maximum(_block_rms(resid, edges), 1e-300)
-            too_big = own > _STRUCTURE_RATIO_MAX * _table_at(lam_now[mid], 3)
-        too_big &= factor * lam[edges[:-1]] > _LAMBDA_MIN
-        if not too_big.any():
-            break
-        factor = np.where(too_big, factor / _LAMBDA_STEP, factor)
     # A pulse timed far off the smoothed curve (many times the jitter: an edge the detector
-    # misjudged) is given almost no weight, so it does not bend the speed around it.
+    # misjudged) while its neighbours are not is given almost no weight, so it does not bend
+    # the speed around it.
+    weights = np.ones(n)
     resid = (y - z)[:, 0]
     mag = np.abs(resid)
     side = np.maximum(np.concatenate(([0.0], mag[:-1])), np.concatenate((mag[1:], [0.0])))
     far = (mag > _OUTLIER_SIGMAS * sig) & (side < 0.5 * mag)      # isolated, not a bend
     outliers = np.empty(0)
     if far.any() and far.sum() <= 0.01 * n:
-        z = _smooth_local(c0, y, lam_now, z, far, np.where(far, 1e-6, 1.0))
+        weights[far] = 1e-6
+        z = _smooth_local(c0, y, lam_now, z, far, weights)
         outliers = t[far]
+    else:
+        far[:] = False
+    for attempt in range(_SMOOTH_PASSES + 1):
+        if attempt:
+            changed = factor != previous
+            lam_now = np.maximum(lam * factor, _LAMBDA_MIN)
+            z = _smooth_local(c0, y, lam_now, z, changed, weights)
+        if attempt == _SMOOTH_PASSES:
+            break
+        previous = factor.copy()
+        resid = np.where(far, 0.0, (y - z)[:, 0])
+        if math.isfinite(step_s):
+            # Edges timed only to the sample: each time is within half a sample of the edge, so
+            # a smoothed time further than that from its pulse has left the true speed.
+            bad = np.abs(resid) > _QUANTISED_SLACK * 0.5 * step_s
+        else:
+            # Residuals averaged over a quarter of the smoothing's span: pure jitter averages
+            # away (to the ratio the smoothing's response gives white noise), speed the
+            # smoothing removed does not: per block, relative to the residuals' own scale (a
+            # misjudged jitter does not matter), and per pulse, where the average stands far
+            # out of the jitter (a kink: the speed starts to change abruptly).
+            ratio = _table_at(lam_now, 3)
+            avg = _running_mean(resid, _structure_width(lam_now))
+            own = _block_rms(avg, edges) / np.maximum(_block_rms(resid, edges), 1e-300)
+            bad = (own > _STRUCTURE_RATIO_MAX * ratio[mid])[block]
+            bad |= np.abs(avg) > _KINK_SIGMAS * ratio * sig
+        bad &= lam * factor > _LAMBDA_MIN
+        if not bad.any():
+            break
+        # Smooth less around each pulse that showed it, over half the smoothing's span.
+        reach = np.maximum(4, np.rint(0.5 * _half_power_period(lam_now))).astype(np.int64)
+        idx = np.flatnonzero(bad)
+        mark = np.zeros(n + 1)
+        np.add.at(mark, np.maximum(idx - reach[idx], 0), 1.0)
+        np.add.at(mark, np.minimum(idx + reach[idx] + 1, n), -1.0)
+        near = np.cumsum(mark)[:n] > 0
+        factor = np.where(near, factor / _LAMBDA_STEP, factor)
     smooth_t = z[:, 0] + trend
     # Speed and angle noise the smoothing leaves: its interior response (Parseval); near the
     # ends, where it sees one side only, by propagating simulated jitter through the same

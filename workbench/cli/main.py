@@ -281,6 +281,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli.verb_extract import add_extract_verb
 
     add_extract_verb(verb)
+    from workbench.cli.verb_speed import add_speed_verb
+
+    add_speed_verb(verb)
     return parser
 
 

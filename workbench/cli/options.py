@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from workbench.errors import InputError
 
-__all__ = ["add_track_options", "track_options_from_args", "parse_orders"]
+__all__ = ["add_track_options", "track_options_from_args", "parse_orders", "add_speed_options",
+           "speed_options_from_args"]
 
 
 def parse_orders(text: str, name: str) -> tuple:
@@ -43,6 +44,7 @@ def add_track_options(p) -> None:
     g.add_argument("--speed-tolerance", type=float, metavar="PCT",
                    help="RMS speed uncertainty (percent) the tacho stage aims at and warns "
                         "beyond; default from the order resolution and highest order")
+    add_speed_options(g, speed)
     g.add_argument("--rate", type=float, metavar="HZ", help="sample rate where the file has none")
     g.add_argument("--samples-per-rev", type=int, metavar="N", help="angle-domain samples per rev")
     g.add_argument("--revs-per-block", type=float, metavar="N", help="revolutions per FFT block")
@@ -61,6 +63,7 @@ def track_options_from_args(args) -> dict:
         "rpm": args.rpm,
         "speed_table": args.speed_table,
         "speed_tolerance": _percent(args.speed_tolerance, "--speed-tolerance"),
+        **speed_options_from_args(args),
         "rate_hz": args.rate,
         "samples_per_rev": args.samples_per_rev,
         "revs_per_block": args.revs_per_block,
@@ -78,6 +81,42 @@ def _percent(value, name: str):
     if not 0 < value < 100:
         raise InputError(f"{name} {value:g}: give a percentage between 0 and 100, e.g. 0.05")
     return value / 100.0
+def add_speed_options(group, exclusive) -> None:
+    """Speed without a tacho: ``--speed-order K --speed-range LO,HI`` (from the vibration) and
+    ``--speed-channel CH --speed-scale RPM_PER_UNIT`` (an analogue speed channel).
+
+    ``--speed-order`` and ``--speed-channel`` go in ``exclusive`` (with the other stand-ins for a
+    tacho), their companions in ``group``.
+    """
+    exclusive.add_argument("--speed-order", type=float, metavar="K",
+                           help="speed from the vibration: the order whose ridge gives it")
+    group.add_argument("--speed-range", metavar="LO,HI",
+                       help="rpm range searched for --speed-order, e.g. 600,3600")
+    exclusive.add_argument("--speed-channel", metavar="CH",
+                           help="speed from an analogue speed channel (a drive's rpm output)")
+    group.add_argument("--speed-scale", type=float, metavar="RPM_PER_UNIT",
+                       help="rpm per unit of --speed-channel, e.g. 600 (rpm per volt)")
+
+
+def speed_options_from_args(args) -> dict:
+    """``speed_order``, ``speed_range``, ``speed_channel``, ``speed_scale`` as given (or None)."""
+    return {
+        "speed_order": args.speed_order,
+        "speed_range": None if args.speed_range is None else _rpm_range(args.speed_range),
+        "speed_channel": _channel(args.speed_channel),
+        "speed_scale": args.speed_scale,
+    }
+
+
+def _rpm_range(text: str) -> tuple:
+    try:
+        lo, hi = (float(v) for v in str(text).split(","))
+    except ValueError:
+        raise InputError(f"--speed-range {text!r}: give the rpm range to search as LO,HI, e.g. "
+                         "600,3600") from None
+    if not (0 < lo < hi < float("inf")):
+        raise InputError(f"--speed-range {text!r}: need 0 < LO < HI (rpm)")
+    return lo, hi
 
 
 def _channel(text):

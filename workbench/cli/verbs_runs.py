@@ -258,9 +258,11 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
     table(a.doubted, "doubted_pulses.csv")
     sa = a.shaft_angle
     t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
-    figure(plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=getattr(sa, "pulse_times_s", None),
-                            doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
-                            title=f"Tacho check: {Path(a.source).name} ({a.speed_source})"), "tacho_check.png")
+    from workbench.plots import speed_check_options
+
+    band = speed_check_options(sa, t, estimate=getattr(a, "speed_estimate", None), source=a.speed_source)
+    figure(plot_tacho_check(t, sa.rpm_at(t), doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
+                            title=f"Tacho check: {Path(a.source).name} ({a.speed_source})", **band), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
     top = a.samples_per_rev / 2.56
     figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,

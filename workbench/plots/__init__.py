@@ -5,7 +5,8 @@ state), so they are safe in scripts, notebooks, threads and Dask workers.
 """
 
 from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_order_map,
-                                   plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check)
+                                   plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check,
+                                   speed_check_options)
 from workbench.plots.common import figure_bytes, new_figure, save_figure
 from workbench.plots.foldmap import draw_fold_map, plot_fold_map
 
@@ -13,6 +14,7 @@ __all__ = [
     "plot_fold_map",
     "draw_fold_map",
     "plot_tacho_check",
+    "speed_check_options",
     "plot_order_spectrum",
     "plot_order_map",
     "plot_order_cuts",

@@ -32,7 +32,8 @@ def _db(amplitude, ref=None):
         return 20.0 * np.log10(np.maximum(a, 1e-300) / max(ref, 1e-300))
 
 
-def plot_tacho_check(time_s, rpm, *, pulse_times_s=None, doubted_times_s=(), doubted_reasons=(), title=None):
+def plot_tacho_check(time_s, rpm, *, pulse_times_s=None, doubted_times_s=(), doubted_reasons=(), title=None,
+                     uncertainty=None, source="tacho"):
     """Speed against time from the tacho, with the pulses and the doubted pulses marked.
 
     Parameters
@@ -43,10 +44,22 @@ def plot_tacho_check(time_s, rpm, *, pulse_times_s=None, doubted_times_s=(), dou
         Accepted pulse times, s (drawn as ticks along the bottom).
     doubted_times_s, doubted_reasons : sequence, optional
         Pulses the tacho processing doubted, and why.
+    uncertainty : float or array_like, optional
+        RMS relative uncertainty of the speed (a fraction), one value or one per point of
+        ``time_s``; drawn as a band of +-2 x it around the speed (about 95 % for a normal
+        error).  NaN or None: no band.
+    source : str
+        Where the speed came from ("tacho", "vibration", "channel", ...), for the legend.
     """
     fig = new_figure(width_in=10.0, height_in=4.2)
     ax = fig.add_subplot()
-    ax.plot(time_s, rpm, color="#0072B2", lw=1.2, label="speed from tacho")
+    ax.plot(time_s, rpm, color="#0072B2", lw=1.2, label=f"speed from {source}")
+    if uncertainty is not None:
+        u = np.broadcast_to(np.asarray(uncertainty, dtype=float), np.shape(rpm))
+        if np.isfinite(u).any():
+            r = np.asarray(rpm, dtype=float)
+            ax.fill_between(time_s, r * (1 - 2 * u), r * (1 + 2 * u), color="#56B4E9", alpha=0.35,
+                            lw=0, label=f"+-2 x RMS uncertainty (up to {200 * np.nanmax(u):.2g} %)")
     if pulse_times_s is not None and len(pulse_times_s):
         pt = np.asarray(pulse_times_s)
         step = max(1, len(pt) // 2000)
@@ -64,6 +77,21 @@ def plot_tacho_check(time_s, rpm, *, pulse_times_s=None, doubted_times_s=(), dou
     ax.legend(fontsize=8, loc="best")
     ax.set_title(title or "Tacho check", fontsize=10)
     return fig
+
+
+def speed_check_options(angle, t, *, estimate=None, source="tacho") -> dict:
+    """Keyword options of :func:`plot_tacho_check` for a shaft angle evaluated at times ``t``.
+
+    The pulses are drawn for a tacho only; the uncertainty is the estimate's per point (speed
+    from the vibration or a speed channel) or the tacho timing's RMS figure.
+    """
+    unc = None
+    if estimate is not None:
+        unc = np.interp(t, estimate.time_s, estimate.uncertainty)
+    elif getattr(angle, "timing", None) is not None:
+        unc = float(getattr(angle.timing, "speed_uncertainty", np.nan))
+    pulses = getattr(angle, "pulse_times_s", None) if source == "tacho" else None
+    return {"pulse_times_s": pulses, "uncertainty": unc, "source": source}
 
 
 def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=None, title=None, log=True):

@@ -569,7 +569,7 @@ _TOP_LEVEL = {"summary", "machine", "plan", "recommendation", "collisions", "fol
 def _run_sections(analysis, lines, track_settings, sections):
     """The run part of the report; returns (html, alias names or None)."""
     from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum,
-                                 plot_rpm_frequency_map, plot_tacho_check)
+                                 plot_rpm_frequency_map, plot_tacho_check, speed_check_options)
 
     sa = analysis.shaft_angle
     unit = analysis.unit or ""
@@ -598,11 +598,13 @@ def _run_sections(analysis, lines, track_settings, sections):
     t0, t1 = float(sa.pulse_times_s[0]), float(sa.pulse_times_s[-1])
     t = np.linspace(t0, t1, 2000)
     doubted = sa.doubted
-    fig = plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=sa.pulse_times_s,
-                           doubted_times_s=doubted.time_s, doubted_reasons=doubted.reason)
     source = getattr(analysis, "speed_source", "tacho")
-    tacho_html = figure_svg(fig, key="tacho", caption=f"Reference shaft speed (from the {source}), "
-                            "with the pulses and any pulse the tacho processing doubted.",
+    fig = plot_tacho_check(t, sa.rpm_at(t), doubted_times_s=doubted.time_s, doubted_reasons=doubted.reason,
+                           **speed_check_options(sa, t, estimate=getattr(analysis, "speed_estimate", None),
+                                                 source=source))
+    tacho_html = figure_svg(fig, key="tacho", caption=f"Reference shaft speed (from the {source}) with its "
+                            "uncertainty band (+-2 x RMS), the pulses and any pulse the tacho "
+                            "processing doubted.",
                             alt=f"speed against time from the {source}")
     _close(fig)
     tacho_html += table_html(doubted.to_frame(), _DOUBT_COLUMNS, css_class="doubted",

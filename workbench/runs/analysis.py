@@ -22,14 +22,15 @@ import pandas as pd
 
 from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_order_spectrum,
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
-                             tacho_angle)
+                             speed_from_channel, speed_from_vibration, tacho_angle)
 from workbench.angle.matching import identify_order_map
 from workbench.angle.tacho import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
-__all__ = ["RunAnalysis", "track_run", "run_speed", "SPEED_OPTIONS", "CHUNK_S"]
+__all__ = ["RunAnalysis", "track_run", "run_speed", "run_speed_estimate", "SPEED_OPTIONS",
+           "CHUNK_S"]
 
 #: Seconds of the record read per chunk while streaming.
 CHUNK_S = 8.0
@@ -74,7 +75,7 @@ class RunAnalysis:
     shaft_angle : ShaftAngle
         Speed and angle of the reference shaft against time.
     speed_source : str
-        ``"tacho"``, ``"rpm"`` or ``"speed table"``.
+        ``"tacho"``, ``"rpm"``, ``"speed table"``, ``"vibration"`` or ``"channel"``.
     samples_per_rev, revs_per_block : int, float
     duration_s : float
     spectrum : OrderSpectrum
@@ -93,6 +94,9 @@ class RunAnalysis:
     doubted : pandas.DataFrame
         Tacho pulses the processing doubted (time_s, reason).
     log : tuple of str
+    speed_estimate : SpeedEstimate or None
+        For the speed sources ``"vibration"`` and ``"channel"``: the speed on its time grid with
+        its uncertainty per point.
     """
 
     source: str
@@ -117,6 +121,7 @@ class RunAnalysis:
     lines: tuple = ()
     protect: bool = True
     log: tuple = field(default_factory=tuple)
+    speed_estimate: object = None
 
     @property
     def rpm_min(self) -> float:
@@ -189,12 +194,13 @@ def _channel_index(run: Run, ch, option: str) -> int:
         raise InputError(f"{run.source or '<memory>'}: {option}: {exc}") from None
 
 
-def _vibration_channel(run: Run, channel):
+def _vibration_channel(run: Run, channel, speed_channel=None):
     if channel is not None:
         return _channel_index(run, channel, "--channel")
     tacho = run.tacho_index
+    skip = None if speed_channel is None else _channel_index(run, speed_channel, "--speed-channel")
     for i in range(run.n_channels):
-        if i != tacho:
+        if i != tacho and i != skip:
             return i
     raise RunFileError(
         f"{run.source}: the run has only the tacho channel; there is no vibration channel to track"
@@ -203,11 +209,91 @@ def _vibration_channel(run: Run, channel):
 
 #: Keyword options of :func:`run_speed` (and of every function that finds a run's speed).
 SPEED_OPTIONS = ("tacho", "pulses_per_rev", "missing_pulses", "rpm", "speed_table",
-                 "speed_tolerance")
+                 "speed_tolerance", "speed_order", "speed_range", "speed_channel", "speed_scale")
+
+
+def run_speed_estimate(run: Run, *, speed_order=None, speed_range=None, speed_channel=None,
+                       speed_scale=None, channel=None, tacho=None, pulses_per_rev=None,
+                       missing_pulses=None, rpm=None, speed_table=None, chunk=None):
+    """The speed of a run found without a tacho: from an order's ridge, or a speed channel.
+
+    Parameters
+    ----------
+    run : Run
+    speed_order : float, optional
+        The order (of the reference shaft) whose ridge in the vibration gives the speed; needs
+        ``speed_range``.
+    speed_range : (float, float), optional
+        rpm range searched for that order.
+    speed_channel : int or str, optional
+        An analogue speed channel (a drive's rpm output; 1-based index or name); needs
+        ``speed_scale``.
+    speed_scale : float, optional
+        rpm per unit of the speed channel.
+    channel : int or str, optional
+        The vibration channel the order is followed in; default the first channel that is not
+        the tacho.
+    tacho, pulses_per_rev, missing_pulses, rpm, speed_table : optional
+        The other speed sources, only to refuse a second source given with these.
+    chunk : int, optional
+        Samples read per chunk.
+
+    Returns
+    -------
+    SpeedEstimate or None
+        None when neither ``speed_order`` nor ``speed_channel`` is given (the speed then comes
+        from the tacho or a known speed, see :func:`run_speed`).
+
+    Raises
+    ------
+    InputError
+        Two speed sources at once; ``speed_order`` without ``speed_range`` (or the reverse);
+        ``speed_channel`` without ``speed_scale`` (or the reverse); bad values.
+    """
+    if chunk is None:
+        chunk = max(4096, int(CHUNK_S * run.rate_hz))
+    given = {"--speed-order": speed_order, "--speed-channel": speed_channel, "--rpm": rpm,
+             "--speed-table": speed_table, "--tacho": tacho,
+             "--pulses-per-rev": pulses_per_rev, "--missing-pulses": missing_pulses}
+    if speed_order is None and speed_range is not None:
+        raise InputError("--speed-range needs --speed-order (the order whose ridge gives the "
+                         "speed)")
+    if speed_channel is None and speed_scale is not None:
+        raise InputError("--speed-scale needs --speed-channel (the channel it scales)")
+    if speed_order is None and speed_channel is None:
+        return None
+    mine = "--speed-order" if speed_order is not None else "--speed-channel"
+    others = [k for k, v in given.items() if v is not None and k != mine]
+    if others:
+        raise InputError(f"{mine} and {others[0]} give the speed twice; allowed: one speed "
+                         "source (tacho options, --speed-order, --speed-channel, --rpm or "
+                         "--speed-table)")
+    source = run.source or "<memory>"
+    if speed_order is not None:
+        if speed_range is None:
+            raise InputError(f"--speed-order {speed_order:g} needs --speed-range LO,HI (the rpm "
+                             "range to search)")
+        vib = run.channels[_vibration_channel(run, channel)].name
+        try:
+            return speed_from_vibration(lambda: run.iter_chunks(vib, chunk), run.rate_hz,
+                                        order=float(speed_order), rpm_range=speed_range)
+        except InputError as exc:
+            raise InputError(f"{source}: channel '{vib}': --speed-order: {exc}") from None
+    if speed_scale is None:
+        raise InputError(f"--speed-channel {speed_channel} needs --speed-scale RPM_PER_UNIT "
+                         "(rpm per unit of the channel)")
+    name = run.channels[_channel_index(run, speed_channel, "--speed-channel")].name
+    try:
+        return speed_from_channel(lambda: run.iter_chunks(name, chunk), run.rate_hz,
+                                  scale=float(speed_scale))
+    except InputError as exc:
+        raise InputError(f"{source}: speed channel '{name}': {exc}") from None
 
 
 def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None, rpm=None,
-              speed_table=None, speed_tolerance=None, chunk=None) -> tuple[ShaftAngle, str]:
+              speed_table=None, chunk=None, speed_order=None, speed_range=None,
+              speed_channel=None, speed_scale=None, channel=None,
+              speed_tolerance=None) -> tuple[ShaftAngle, str]:
     """The reference shaft's angle against time for a run, and where the speed came from.
 
     Parameters
@@ -226,22 +312,34 @@ def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
         default :data:`~workbench.angle.tacho.DEFAULT_SPEED_TOLERANCE`.
     chunk : int, optional
         Samples read per chunk while streaming the tacho.
+    speed_order, speed_range, speed_channel, speed_scale, channel : optional
+        Speed from the vibration or from a speed channel, see :func:`run_speed_estimate`.
 
     Returns
     -------
     (ShaftAngle, str)
-        The angle, and the speed source: ``"tacho"``, ``"rpm"`` or ``"speed table"``.
+        The angle, and the speed source: ``"tacho"``, ``"rpm"``, ``"speed table"``,
+        ``"vibration"`` or ``"channel"``.
     """
     if chunk is None:
         chunk = max(4096, int(CHUNK_S * run.rate_hz))
     return _speed(run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
-                  rpm=rpm, speed_table=speed_table, speed_tolerance=speed_tolerance,
-                  chunk=chunk)
+                  rpm=rpm, speed_table=speed_table, chunk=chunk, speed_order=speed_order,
+                  speed_range=speed_range, speed_channel=speed_channel, speed_scale=speed_scale,
+                  channel=channel, speed_tolerance=speed_tolerance)
 
 
 def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table, chunk,
-           speed_tolerance=None):
+           speed_order=None, speed_range=None, speed_channel=None, speed_scale=None,
+           channel=None, speed_tolerance=None):
     """ShaftAngle from the tacho (streamed) or from a known speed; and where it came from."""
+    est = run_speed_estimate(run, speed_order=speed_order, speed_range=speed_range,
+                             speed_channel=speed_channel, speed_scale=speed_scale,
+                             channel=channel, tacho=tacho, pulses_per_rev=pulses_per_rev,
+                             missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table,
+                             chunk=chunk)
+    if est is not None:
+        return est.angle, est.source
     if rpm is not None and speed_table is not None:
         raise InputError("give either --rpm or --speed-table, not both")
     if rpm is not None:
@@ -258,7 +356,8 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
     if tacho_ch is None:
         raise RunFileError(
             f"{run.source}: no tacho channel: name one with --tacho (or tacho_channel in the "
-            "sidecar), or give the speed with --rpm or --speed-table"
+            "sidecar), or give the speed with --rpm, --speed-table, --speed-order K "
+            "--speed-range LO,HI (from the vibration) or --speed-channel CH --speed-scale S"
         )
     name = run.channels[_channel_index(run, tacho_ch, "--tacho")].name
     ppr = run.pulses_per_rev if pulses_per_rev is None else int(pulses_per_rev)
@@ -300,6 +399,10 @@ def track_run(
     rpm=None,
     speed_table=None,
     speed_tolerance=None,
+    speed_order=None,
+    speed_range=None,
+    speed_channel=None,
+    speed_scale=None,
     rate_hz=None,
     samples_per_rev=256,
     revs_per_block=None,
@@ -336,6 +439,13 @@ def track_run(
         RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
         default from the error budget of the settings,
         :func:`~workbench.angle.tacho.speed_tolerance_for` (``max_order``, revs per block).
+    speed_order : float, optional
+        Speed from the vibration: the order whose ridge gives it (with ``speed_range``, rpm
+        range searched); followed in ``channel``.  See :func:`run_speed_estimate`.
+    speed_range : (float, float), optional
+    speed_channel : int or str, optional
+        Speed from an analogue speed channel (with ``speed_scale``, rpm per unit).
+    speed_scale : float, optional
     rate_hz : float, optional
         Sample rate, where the file does not give it (CSV without time column, MAT).
     samples_per_rev : int
@@ -387,15 +497,22 @@ def track_run(
             )
         envelope_hz = (lo, hi)
     chunk = max(4096, int(CHUNK_S * run.rate_hz))
-    vib_index = _vibration_channel(run, channel)
+    vib_index = _vibration_channel(run, channel, speed_channel)
     vib = run.channels[vib_index].name  # Run methods take names or 1-based indices
     unit = run.channels[vib_index].unit
     if speed_tolerance is None:
         speed_tolerance = speed_tolerance_for(top, rpb)
-    angle, speed_source = _speed(
-        run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
-        rpm=rpm, speed_table=speed_table, chunk=chunk, speed_tolerance=speed_tolerance,
-    )
+    estimate = run_speed_estimate(
+        run, speed_order=speed_order, speed_range=speed_range, speed_channel=speed_channel,
+        speed_scale=speed_scale, channel=vib, tacho=tacho, pulses_per_rev=pulses_per_rev,
+        missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table, chunk=chunk)
+    if estimate is not None:
+        angle, speed_source = estimate.angle, estimate.source
+    else:
+        angle, speed_source = _speed(
+            run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
+            rpm=rpm, speed_table=speed_table, chunk=chunk, speed_tolerance=speed_tolerance,
+        )
     if not angle.rpm_max / 60.0 < run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
         given = {"rpm": f"--rpm {rpm}", "speed table": f"--speed-table {speed_table}"}.get(
             speed_source, f"{source}: {speed_source}")
@@ -412,6 +529,9 @@ def track_run(
     if len(angle.stretches) > 1:
         log.append("speed unknown between the stretches " + ", ".join(
             f"{a:.3f}-{b:.3f} s" for a, b in angle.stretches) + "; each tracked on its own")
+    if estimate is not None:
+        log.append(f"speed: {estimate.method}; uncertainty {100 * estimate.speed_uncertainty:.3g} "
+                   "% RMS")
     n_total = run.n_samples
 
     def chunks():
@@ -487,4 +607,5 @@ def track_run(
         doubted=doubted,
         protect=bool(protect),
         log=tuple(log),
+        speed_estimate=estimate,
     )

@@ -2,7 +2,8 @@
 
 Steps and what each control redoes (the rest is kept):
 
-1. tacho pulses and shaft angle -- once per run (the tacho check figure);
+1. the speed and shaft angle -- once per speed source and its settings (tacho pulses, an
+   order's ridge in the vibration, or an analogue speed channel; the tacho check figure);
 2. computed order tracking of the chosen channel -- per (channel, samples per rev, alias
    protection), with a progress bar fed chunk by chunk;
 3. order map, order spectrum, peaks and the identification of measured ridges with the
@@ -32,17 +33,20 @@ from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_orde
 from workbench.angle.matching import identify_order_map
 from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
 from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_map, plot_order_spectrum,
-                             plot_tacho_check, save_figure)
+                             plot_tacho_check, save_figure, speed_check_options)
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
 from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
 
-__all__ = ["AngleDomainPanel", "WINDOWS"]
+__all__ = ["AngleDomainPanel", "WINDOWS", "SPEED_SOURCES"]
 
 #: Windows offered for the order spectra: (label, scipy.signal.get_window name).
 WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "hamming"),
            ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
+#: Speed sources offered: (label, source).
+SPEED_SOURCES = (("tacho", "tacho"), ("vibration (order ridge)", "vibration"),
+                 ("speed channel", "channel"))
 _CHUNK = 65536
 _DPI = 80
 
@@ -76,6 +80,13 @@ class AngleDomainPanel:
         Alias protection of the tracker (speed-tracking low-pass).
     cut_orders : ipywidgets.Text
         Orders to cut against speed, comma separated.
+    speed_source : ipywidgets.Dropdown
+        Where the speed comes from: "tacho", "vibration" (the ridge of ``speed_order`` searched
+        over ``speed_range``, rpm "LO, HI", in the vibration channel) or "channel" (the analogue
+        ``speed_channel`` times ``speed_scale`` rpm per unit).
+    speed_order, speed_scale : ipywidgets.FloatText
+    speed_range : ipywidgets.Text
+    speed_channel : ipywidgets.Dropdown
     folder : ipywidgets.Text
         Folder the export buttons write to (created if missing).
     overwrite : ipywidgets.Checkbox
@@ -127,7 +138,8 @@ class AngleDomainPanel:
         self._build_extraction()
         self.folder.value = str(export_folder)
         self._controls = (self.channel, self.samples_per_rev, self.protect, self.revs_per_block,
-                          self.window, self.cut_orders)
+                          self.window, self.cut_orders, self.speed_source, self.speed_order,
+                          self.speed_range, self.speed_channel, self.speed_scale)
         self._defaults = {c: c.value for c in self._controls}
         self._quiet = False
         self.refresh()
@@ -156,6 +168,14 @@ class AngleDomainPanel:
         self.cut_orders = widgets.Text(value=", ".join(f"{o:.4g}" for o in self.default_cut_orders(spr)),
                                        description="orders to cut", style=style, layout=wide,
                                        continuous_update=False)
+        self.speed_source = widgets.Dropdown(options=SPEED_SOURCES, value="tacho", description="speed from",
+                                             style=style, layout=wide)
+        self.speed_order = widgets.FloatText(value=1.0, description="speed order", style=style, layout=wide)
+        self.speed_range = widgets.Text(value="", placeholder="LO, HI", description="speed range (rpm)",
+                                        style=style, layout=wide, continuous_update=False)
+        self.speed_channel = widgets.Dropdown(options=list(run.channel_names), description="speed channel",
+                                              style=style, layout=wide)
+        self.speed_scale = widgets.FloatText(value=1.0, description="rpm per unit", style=style, layout=wide)
         self.folder = widgets.Text(value="foldline_export", description="export folder", style=style,
                                    layout=wide)
         self.overwrite = widgets.Checkbox(value=False, description="overwrite files", indent=False)
@@ -184,7 +204,8 @@ class AngleDomainPanel:
         self.tabs.selected_index = 1
         controls = widgets.VBox([
             self.channel, self.samples_per_rev, self.revs_per_block, self.window, self.protect,
-            self.cut_orders, self.progress, widgets.HTML("<hr>"), self.folder, self.overwrite,
+            self.cut_orders, self.speed_source, self.speed_order, self.speed_range, self.speed_channel,
+            self.speed_scale, self.progress, widgets.HTML("<hr>"), self.folder, self.overwrite,
             widgets.HBox([self.export_tables, self.export_figures]), self.status,
         ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
         self.header = widgets.HTML()
@@ -217,18 +238,47 @@ class AngleDomainPanel:
         return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
 
     # -- computation ----------------------------------------------------------------------
+    def _speed_key(self):
+        source = self.speed_source.value
+        if source == "vibration":
+            return (source, float(self.speed_order.value), self.speed_range.value, self.channel.value)
+        if source == "channel":
+            return (source, self.speed_channel.value, float(self.speed_scale.value))
+        return (source,)
+
     def tacho(self):
-        """Pulse times (s) and the shaft angle fitted through them (computed once)."""
-        if not hasattr(self, "_tacho"):
-            run = self.run
+        """Pulse times (s) and the shaft angle fitted through them (computed once per speed
+        source); for the vibration or a speed channel, the estimate's time grid and its angle."""
+        key = self._speed_key()
+        if getattr(self, "_tacho_key", None) != key:
+            self._tacho, self._estimate = self._speed(key)
+            if hasattr(self, "_tacho_key"):  # the angle changed: everything after it is redone
+                self._tracks, self._analyses, self._cuts, self._drawn = Cache(4), Cache(8), Cache(8), {}
+            self._tacho_key = key
+        return self._tacho
+
+    def _speed(self, key):
+        run = self.run
+        if key[0] == "tacho":
             if run.tacho is None:
                 raise InputError(f"{run.source or 'run'}: no tacho channel; name one in the run's sidecar "
-                                 "(tacho_channel)")
+                                 "(tacho_channel), or choose the speed from the vibration or a speed channel")
             pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
             angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
                                 sample_rate_hz=run.rate_hz)
-            self._tacho = (pulses, angle)
-        return self._tacho
+            return (pulses, angle), None
+        from workbench.runs.analysis import run_speed_estimate
+
+        if key[0] == "vibration":
+            try:
+                lo, hi = (float(v) for v in key[2].replace(";", ",").split(","))
+            except ValueError:
+                raise InputError(f"speed range {key[2]!r}: give the rpm range to search as LO, HI, "
+                                 "e.g. 600, 3600") from None
+            est = run_speed_estimate(run, speed_order=key[1], speed_range=(lo, hi), channel=key[3])
+        else:
+            est = run_speed_estimate(run, speed_channel=key[1], speed_scale=key[2])
+        return (est.time_s, est.angle), est
 
     def _track_key(self):
         return (self.channel.value, int(self.samples_per_rev.value), bool(self.protect.value))
@@ -305,8 +355,11 @@ class AngleDomainPanel:
             f"{self.run.rate_hz:g} Hz, {self.run.duration_s:.1f} s; {sig.revolutions:.0f} revolutions "
             f"tracked at {sig.samples_per_rev} samples per rev, order resolution "
             f"{omap.order_resolution:g}" + (f", channel unit {html.escape(unit)}" if unit else ""))
+        est = self._estimate
+        what = (f"{len(pulses)} pulses, {len(angle.doubted)} doubted" if est is None else
+                f"speed from the {est.source}, uncertainty {100 * est.speed_uncertainty:.3g} % RMS")
         self.tacho_info.value = STYLE + (
-            f'<div class="foldline-note">{len(pulses)} pulses, {len(angle.doubted)} doubted; speed '
+            f'<div class="foldline-note">{html.escape(what)}; speed '
             f"{angle.rpm_min:.0f} to {angle.rpm_max:.0f} rpm</div>" + html_table(
                 angle.doubted.to_frame().head(20).to_dict("records"),
                 (("time_s", "time (s)"), ("reason", "why doubted")), css_class="foldline-doubted",
@@ -351,9 +404,14 @@ class AngleDomainPanel:
         if which == "tacho":
             pulses, angle = self.tacho()
             t = np.linspace(angle.t_start_s, angle.t_end_s, 1500)
-            return plot_tacho_check(t, angle.rpm_at(t), pulse_times_s=pulses,
-                                    doubted_times_s=angle.doubted.time_s, doubted_reasons=angle.doubted.reason,
-                                    title=f"Tacho check: {len(pulses)} pulses, {self.run.pulses_per_rev} per rev")
+            est = self._estimate
+            band = speed_check_options(angle, t, estimate=est, source="tacho" if est is None else est.source)
+            if est is None:
+                band["pulse_times_s"] = pulses
+            title = (f"Tacho check: {len(pulses)} pulses, {self.run.pulses_per_rev} per rev" if est is None
+                     else f"Speed check: {est.method}")
+            return plot_tacho_check(t, angle.rpm_at(t), doubted_times_s=angle.doubted.time_s,
+                                    doubted_reasons=angle.doubted.reason, title=title, **band)
         omap, spec, peaks, ident = self.analysis()
         top = self.usable_max_order
         if which == "map":
@@ -371,7 +429,7 @@ class AngleDomainPanel:
     def _figure_key(self, which):
         """What a figure depends on: it is redrawn only when this changes."""
         if which == "tacho":
-            return ()
+            return self._speed_key()
         if which == "cuts":
             return self._analysis_key() + (self.cut_orders.value,)
         return self._analysis_key()
