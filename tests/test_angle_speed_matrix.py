@@ -175,8 +175,9 @@ MATRIX = [
 @pytest.mark.parametrize("n_pos, n_miss, edge, rate, profile", MATRIX,
                          ids=[f"{n}-{m} {e} {r / 1000:g}k" for n, m, e, r, _ in MATRIX])
 def test_wheel_edge_rate_speed_matrix(n_pos, n_miss, edge, rate, profile):
-    # Measured worst over the matrix: RMS 0.020 % (2 ppr at 2.56 kHz), worst 0.37 % at the
-    # first pulse of that record (one-sided smoothing, inside a span the warning names).
+    # Measured worst over the matrix: RMS 0.016 % (1 ppr at 2.56 kHz), worst 0.17 % at the
+    # first pulse of the 2 ppr record at 2.56 kHz (one-sided smoothing, inside a span the
+    # warning names).
     angle, caught = run_case(profile, rate, n_pos, n_miss, edge)
     rms, worst = speed_errors(angle, profile)
     assert rms < SPEED_RMS, (rms, worst)

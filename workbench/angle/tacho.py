@@ -1480,6 +1480,11 @@ def _pulse_timing(t: np.ndarray, counts: np.ndarray, *, pulses_per_rev: int,
                   _LAMBDA_MIN, _LAMBDA_MAX)
     lam = np.where(u_raw <= target, _LAMBDA_MIN, lam)
     lam = np.minimum(lam, _inertia_cap(cf, pitch, sig, tolerance))
+    # At the ends the smoothing sees one side only and rounds a changing speed off more: its
+    # weight is eased over the last span at each end (to 1/16 at the very end).
+    to_end = np.minimum(cf, cf[-1] - cf)
+    ease = np.clip(to_end / _half_power_period(lam), 0.5, 1.0) ** (_SMOOTH_ORDER)
+    lam = np.maximum(lam * ease, _LAMBDA_MIN)
     c0 = counts - counts[0]
     # Remove a quadratic in the count (no change to the result: the penalty ignores it).
     trend = _quadratic_trend(cf, t)
