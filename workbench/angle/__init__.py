@@ -20,6 +20,8 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
 from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
                                    detect_pulses, tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
+from workbench.angle.order_tracks import (CriticalSearch, CriticalSpeed, OrderTrack, RejectedPeak,
+                                          find_criticals, find_track_criticals, order_tracks)
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",

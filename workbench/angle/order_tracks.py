@@ -63,7 +63,7 @@ from workbench.angle.tracking import AngleSignal
 from workbench.errors import InputError
 
 __all__ = ["OrderTrack", "CriticalSpeed", "RejectedPeak", "CriticalSearch", "order_tracks",
-           "find_criticals", "separation_margin_pct", "required_margin_pct", "sdof_unbalance",
+           "find_criticals", "find_track_criticals", "separation_margin_pct", "required_margin_pct", "sdof_unbalance",
            "DEFAULT_TRACK_ORDERS", "DEFAULT_TRACK_REVS_PER_BLOCK"]
 
 #: Orders tracked when none are chosen.
@@ -513,8 +513,9 @@ def _crossing(x: np.ndarray, y: np.ndarray, i0: int, level: float, step: int) ->
 
 
 def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_deg: float = 45.0,
-                   max_phase_change_deg: float = 150.0, max_shape_misfit: float = 0.2,
-                   min_points: int = 3, min_prominence: float = 0.25) -> CriticalSearch:
+                   max_phase_change_deg: float = 135.0, max_shape_misfit: float = 0.12,
+                   min_points: int = 3, min_prominence: float = 0.25,
+                   min_width_blocks: float = 2.0, shape_band: float = 1.5) -> CriticalSearch:
     """Critical speeds of one order track (resonance peaks that behave like a single mode).
 
     Parameters
@@ -530,8 +531,14 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
         Largest RMS difference (fraction of the peak) between the measured peak and the
         single-degree-of-freedom curve with the same critical and damping ratio.
     min_points : int
-        Track points needed between the half-power speeds (fewer: the peak is narrower than
-        the track resolves; use fewer revolutions per block).
+        Track points needed between the half-power speeds.
+    min_width_blocks : float
+        The half-power width must be at least this many times the speed change over one
+        block (a narrower peak is not resolved: noise, or use fewer revolutions per block).
+    shape_band : float
+        The shape is compared over ``Nc +- shape_band x (N2 - N1)``: wide enough (1.5) to
+        reach the tails, where a single mode still stands at a third of its peak while a line
+        passing through the order has left the window's main lobe.
     min_prominence : float
         Least prominence of a candidate peak, as a fraction of its height (0.25: the
         amplitude must fall by a quarter on both sides before rising again).
@@ -547,7 +554,8 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
     half-power speeds are where the amplitude first falls below peak / sqrt 2 on each side;
     ``AF = Nc / (N2 - N1)``; the unwrapped lag at N1 and N2 gives the phase change; the
     single-degree-of-freedom unbalance curve (:func:`sdof_unbalance`, scaled to the peak) with
-    ``zeta = 1 / (2 AF)`` is compared with the measured points inside ``Nc +- 0.75 (N2 - N1)``.
+    ``zeta = 1 / (2 AF)`` is compared with the measured points inside
+    ``Nc +- shape_band x (N2 - N1)``.
     A peak is a critical when the phase rises by ``min..max_phase_change_deg`` and the shape
     fits within ``max_shape_misfit``.
 
@@ -567,6 +575,11 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
     found, rejected = [], []
     if len(rpm) < 5:
         return CriticalSearch((), ())
+    # speed change over one block, around each point (rpm): |d rpm / d rev| x revs_per_block
+    order_t = np.argsort(track.revs, kind="stable")
+    slope = np.abs(np.gradient(track.rpm[order_t], track.revs[order_t]))
+    block_span = (slope * track.revs_per_block)[np.argsort(order_t)]
+    block_span = block_span[np.argsort(track.rpm, kind="stable")]
     height = float(np.nanmax(amp))
     if not height > 0:
         return CriticalSearch((), ())
@@ -588,17 +601,20 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
                                          "peak, or a peak at the edge of the run)"))
             continue
         inside = int(np.count_nonzero((rpm >= n1) & (rpm <= n2)))
-        if inside < min_points:
+        span = float(np.interp(nc, rpm, block_span))
+        if inside < min_points or n2 - n1 < min_width_blocks * span:
             rejected.append(RejectedPeak(track.order, nc, ap,
-                                         f"only {inside} track point(s) between the half-power "
-                                         "speeds: narrower than the track resolves (noise, or "
-                                         "use fewer revolutions per block)"))
+                                         f"{n2 - n1:.3g} rpm between the half-power speeds, "
+                                         f"less than {min_width_blocks:g} x the {span:.3g} rpm "
+                                         "one block spans: narrower than the track resolves "
+                                         "(noise; or a real peak: use fewer revolutions per "
+                                         "block, or sweep slower)"))
             continue
         af = nc / (n2 - n1)
         zeta = 1.0 / (2.0 * af)
         dphi = float(np.interp(n2, rpm, lag) - np.interp(n1, rpm, lag))
         phase_peak = float(np.mod(np.interp(nc, rpm, lag), 360.0))
-        sel = np.abs(rpm - nc) <= 0.75 * (n2 - n1)
+        sel = np.abs(rpm - nc) <= shape_band * (n2 - n1)
         model, _ = sdof_unbalance(rpm[sel], nc * math.sqrt(1 - 2 * zeta * zeta)
                                   if zeta < 0.7 else nc, zeta)
         model = model / model.max() if model.size else model
@@ -623,7 +639,54 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
         found.append(CriticalSpeed(track.order, nc, ap, af, (n1, n2), dphi, phase_peak, zeta,
                                    misfit, sep, req, track.absolute_phase))
     found.sort(key=lambda c: c.rpm)
+    rejected = [p for p in rejected if p.amplitude >= 0.25 * height]
     return CriticalSearch(tuple(found), tuple(rejected))
+
+
+def find_track_criticals(tracks, *, operating_rpm=None, leakage_db: float = 40.0,
+                         **options) -> CriticalSearch:
+    """Critical speeds of several order tracks of one channel (see :func:`find_criticals`).
+
+    A peak found in one order's track at the speed of a critical of another order that is
+    more than `leakage_db` stronger is that order's window leakage (the Hann window's sidelobes
+    let a strong order into its neighbours' tracks, shaped like its own resonance) and is
+    moved to the rejected peaks.
+
+    Parameters
+    ----------
+    tracks : sequence of OrderTrack
+        Tracks of the same channel.
+    operating_rpm : (float, float), optional
+    leakage_db : float
+        Level difference beyond which a same-speed peak counts as leakage (default 40 dB).
+    **options
+        Passed to :func:`find_criticals`.
+
+    Returns
+    -------
+    CriticalSearch
+        Criticals sorted by order then speed.
+    """
+    found, rejected = [], []
+    for tr in tracks:
+        res = find_criticals(tr, operating_rpm=operating_rpm, **options)
+        found.extend(res.criticals)
+        rejected.extend(res.rejected)
+    ratio = 10.0 ** (leakage_db / 20.0)
+    kept = []
+    for c in found:
+        stronger = [o for o in found if o.order != c.order
+                    and o.half_power_rpm[0] <= c.rpm <= o.half_power_rpm[1]
+                    and o.amplitude > ratio * c.amplitude]
+        if stronger:
+            rejected.append(RejectedPeak(c.order, c.rpm, c.amplitude,
+                                         f"at the speed of order {stronger[0].order:g}'s "
+                                         f"critical, {leakage_db:g} dB weaker or more: that "
+                                         "order's leakage into this track"))
+        else:
+            kept.append(c)
+    kept.sort(key=lambda c: (c.order, c.rpm))
+    return CriticalSearch(tuple(kept), tuple(rejected))
 
 
 def _parabola(x: np.ndarray, y: np.ndarray, i: int) -> tuple[float, float]:
