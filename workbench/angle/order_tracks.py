@@ -573,8 +573,8 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
     min_points = positive_int(min_points, "min_points")
     rpm, amp, lag = track.sorted_by_rpm()
     found, rejected = [], []
-    if len(rpm) < 5:
-        return CriticalSearch((), ())
+    if len(rpm) < 5 or not rpm[-1] - rpm[0] > 1e-6 * abs(rpm[-1]):
+        return CriticalSearch((), ())      # too short, or a constant speed: no resonance curve
     # speed change over one block, around each point (rpm): |d rpm / d rev| x revs_per_block
     order_t = np.argsort(track.revs, kind="stable")
     slope = np.abs(np.gradient(track.rpm[order_t], track.revs[order_t]))
@@ -602,7 +602,7 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
             continue
         inside = int(np.count_nonzero((rpm >= n1) & (rpm <= n2)))
         span = float(np.interp(nc, rpm, block_span))
-        if inside < min_points or n2 - n1 < min_width_blocks * span:
+        if inside < min_points or not n2 - n1 > 0 or n2 - n1 < min_width_blocks * span:
             rejected.append(RejectedPeak(track.order, nc, ap,
                                          f"{n2 - n1:.3g} rpm between the half-power speeds, "
                                          f"less than {min_width_blocks:g} x the {span:.3g} rpm "

@@ -278,6 +278,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli import verbs_runs
 
     verbs_runs.add_verbs(verb)
+    from workbench.cli.verb_criticals import add_criticals_verb
+
+    add_criticals_verb(verb)
     return parser
 
 
