@@ -57,7 +57,7 @@ def _check_out(out: Path, force: bool) -> None:
 def write_criticals_outputs(result, out: Path, *, force: bool = False) -> list:
     """Write the tracks and criticals (CSV) and the Bode, polar and Campbell figures (PNG)."""
     from workbench.cli.verbs_runs import _write_csv
-    from workbench.plots import save_figure
+    from workbench.plots import run_up_figures, save_figure
 
     out.mkdir(parents=True, exist_ok=True)
     files = []
@@ -68,36 +68,10 @@ def write_criticals_outputs(result, out: Path, *, force: bool = False) -> list:
         lambda v: f"{v[0]:.1f}-{v[1]:.1f}" if isinstance(v, (list, tuple)) else v)
     _write_csv(table, out / "criticals.csv", force=force)
     files.append(out / "criticals.csv")
-    for path, fig in _figures(result).items():
+    for path, fig in run_up_figures(result).items():
         save_figure(fig, out / path, force=force)
         files.append(out / path)
     return files
-
-
-def _figures(result) -> dict:
-    """The three views of a :class:`~workbench.runs.criticals.RunCriticals`, by file name."""
-    from workbench.plots import plot_bode, plot_campbell, plot_polar
-
-    first = result.channels[0]
-    tracks = result.tracks_of(first)
-    crits = result.criticals_of(first)
-    unit = result.units.get(first, "")
-    name = Path(result.source).name
-    m = result.machine
-    figs = {
-        "bode.png": plot_bode(tracks, crits, unit=unit, operating_rpm=result.operating_rpm,
-                              title=f"Bode plot: {name}, channel {first}"
-                              + ("" if result.phase_reference == "absolute"
-                                 else " (phase relative)")),
-        "polar.png": plot_polar(tracks[0], crits, unit=unit),
-    }
-    figs["campbell.png"] = plot_campbell(
-        result.rf_map, orders=[tr.order for tr in tracks],
-        lines=None if m is None else m.lines(),
-        resonances=() if m is None else m.resonances, criticals=() if m is None else m.criticals,
-        rpm_range=(result.shaft_angle.rpm_min, result.shaft_angle.rpm_max), unit=unit,
-        title=f"Campbell diagram: {name}, channel {first}")
-    return figs
 
 
 def cmd_criticals(args) -> int:

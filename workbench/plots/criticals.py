@@ -18,11 +18,7 @@ from matplotlib.colors import LogNorm
 
 from workbench.plots.common import new_figure
 
-__all__ = ["plot_bode", "plot_polar", "plot_campbell", "SAFETY_CAPTION"]
-
-#: A short caution printed under the run-up views.
-SAFETY_CAPTION = ("Running through a critical speed is hazardous: follow the machine maker's "
-                  "limits, site procedures and stop criteria set by qualified people.")
+__all__ = ["plot_bode", "plot_polar", "plot_campbell", "run_up_figures"]
 
 _ORDER_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
 
@@ -223,3 +219,41 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
                  "marked", fontsize=10)
     ax.grid(True, alpha=0.25)
     return fig
+
+
+def run_up_figures(result, *, channel=None) -> dict:
+    """Bode, polar and Campbell figures of a run's order tracks and criticals.
+
+    Parameters
+    ----------
+    result : RunCriticals
+        From :func:`workbench.runs.criticals.run_criticals`.
+    channel : str, optional
+        The channel shown (default the first).
+
+    Returns
+    -------
+    dict
+        ``{"bode.png": Figure, "polar.png": Figure, "campbell.png": Figure}``.
+    """
+    from pathlib import Path
+
+    ch = result.channels[0] if channel is None else channel
+    tracks = result.tracks_of(ch)
+    crits = result.criticals_of(ch)
+    unit = result.units.get(ch, "")
+    name = Path(result.source).name
+    m = result.machine
+    rel = "" if result.phase_reference == "absolute" else " (phase relative)"
+    return {
+        "bode.png": plot_bode(tracks, crits, unit=unit, operating_rpm=result.operating_rpm,
+                              title=f"Bode plot: {name}, channel {ch}{rel}"),
+        "polar.png": plot_polar(tracks[0], crits, unit=unit),
+        "campbell.png": plot_campbell(
+            result.rf_map, orders=[tr.order for tr in tracks],
+            lines=None if m is None else m.lines(),
+            resonances=() if m is None else m.resonances,
+            criticals=() if m is None else m.criticals,
+            rpm_range=(result.shaft_angle.rpm_min, result.shaft_angle.rpm_max), unit=unit,
+            title=f"Campbell diagram: {name}, channel {ch}"),
+    }
