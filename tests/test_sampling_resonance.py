@@ -41,12 +41,14 @@ def _integrated_loss_db(zeta, kappa):
     return -20.0 * math.log10(np.abs(x).max() / steady_peak)
 
 
-@pytest.mark.parametrize("zeta, kappa", [(0.02, 1.11), (0.05, 0.5), (0.05, 3.0)])
+@pytest.mark.parametrize("zeta, kappa", [(0.02, 1.11), (0.05, 0.5), (0.05, 3.0), (0.01, 10.0),
+                                         (0.01, 100.0)])
 def test_peak_loss_formula_against_integration(zeta, kappa):
     formula = -20.0 * math.log10(passage_peak_ratio(kappa))
     integrated = _integrated_loss_db(zeta, kappa)
-    # the envelope solution holds for light damping; measured agreement 0.03-0.15 dB
-    assert formula == pytest.approx(integrated, abs=0.2)
+    # the envelope solution holds for light damping; measured agreement 0.06-0.19 dB from
+    # 0.4 to 12 dB of loss
+    assert formula == pytest.approx(integrated, abs=0.25)
 
 
 def test_one_db_sweep_limit():
