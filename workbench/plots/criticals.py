@@ -162,6 +162,14 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
         rpm = np.asarray(rf_map.rpm, dtype=float)
         hz = np.asarray(rf_map.hz, dtype=float)
         amp = np.asarray(rf_map.amplitude, dtype=float)
+        lo, hi = (float(rpm.min()), float(rpm.max())) if rpm_range is None else rpm_range
+        top = float(hz[-1]) if max_hz is None else float(max_hz)
+        modes_hz = [f for _, f, _, _ in _modes(resonances, criticals)]
+        if max_hz is None and modes_hz:
+            # zoom on the modes and the tracked orders: the crossings are what the view is for
+            top = min(top, max(3.0 * max(modes_hz), 1.1 * max(orders, default=1.0) * hi / 60.0))
+        keep = hz <= top * 1.02
+        hz, amp = hz[keep], amp[:, keep]
         vmax = float(np.nanmax(amp)) if amp.size else 1.0
         vmin = vmax * 10 ** (-dynamic_range_db / 20.0)
         k = np.argsort(rpm)
@@ -169,8 +177,6 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
                              norm=LogNorm(vmin=vmin, vmax=vmax), cmap="Greys", rasterized=True)
         cb = fig.colorbar(mesh, ax=ax, pad=0.01)
         cb.set_label(f"measured amplitude, peak{(' (' + unit + ')') if unit else ''}")
-        lo, hi = (float(rpm.min()), float(rpm.max())) if rpm_range is None else rpm_range
-        top = float(hz[-1]) if max_hz is None else float(max_hz)
     else:
         if rpm_range is None:
             raise ValueError("plot_campbell needs rf_map or rpm_range")
@@ -189,15 +195,17 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
             if any(lo <= 60.0 * f / ln.order <= hi for _, f, _, _ in modes):
                 drawn.append((ln.name, float(ln.order)))
                 have.add(ln.order)
+    drawn = [(name, o) for name, o in drawn if o * lo / 60.0 <= top]
+    n_machine = len(drawn) - len(orders)
     for i, (name, o) in enumerate(drawn):
         f = o * grid / 60.0
-        if f[0] > top:
-            continue
         colour = _colour(i) if i < len(orders) else "#7F7F7F"
-        ax.plot(grid, f, color=colour, lw=1.3 if i < len(orders) else 0.7)
-        j = np.flatnonzero(f <= top)[-1]
-        ax.annotate(name, (grid[j], f[j]), xytext=(-4, 3), textcoords="offset points",
-                    fontsize=7, color=colour, ha="right")
+        ax.plot(grid, f, color=colour, lw=1.4 if i < len(orders) else 0.6,
+                ls="-" if i < len(orders) else (0, (3, 2)))
+        if i < len(orders) or n_machine <= 6:      # label every line only when few
+            j = np.flatnonzero(f <= top)[-1]
+            ax.annotate(name, (grid[j], f[j]), xytext=(-4, 3), textcoords="offset points",
+                        fontsize=7, color=colour, ha="right")
     n_cross = 0
     for name, fn, zeta, kind in modes:
         colour = "#D55E00" if kind == "resonance" else "#CC79A7"
@@ -208,15 +216,16 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
                     color=colour)
         for _, o in drawn:
             r = 60.0 * fn / o
-            if lo <= r <= hi:
+            if lo <= r <= hi and fn <= top:
                 ax.plot([r], [fn], "o", ms=6, mfc="none", mec=colour, mew=1.4)
                 n_cross += 1
     ax.set_xlim(lo, hi)
     ax.set_ylim(0, top)
     ax.set_xlabel("reference shaft speed (rpm)")
     ax.set_ylabel("frequency (Hz)")
-    ax.set_title(title or f"Campbell diagram: order lines, resonances, {n_cross} crossing(s) "
-                 "marked", fontsize=10)
+    ax.set_title((title or "Campbell diagram") + f": {n_cross} crossing(s) circled"
+                 + (f"; dashed: {n_machine} machine lines that cross a mode" if n_machine > 0
+                    else ""), fontsize=10)
     ax.grid(True, alpha=0.25)
     return fig
 
