@@ -52,6 +52,7 @@ References
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -60,7 +61,9 @@ from scipy.signal import find_peaks, get_window
 from workbench.angle._common import finite_real, positive_int
 from workbench.angle.spectra import DEFAULT_REVS_PER_BLOCK, _check_options, _pieces
 from workbench.angle.tracking import AngleSignal
-from workbench.errors import InputError
+from workbench.errors import FoldlineWarning, InputError
+from workbench.sampling.resonance import (PEAK_LOSS_LIMIT_DB, fastest_sweep_rpm_per_s,
+                                          passage_loss_db)
 
 __all__ = ["OrderTrack", "CriticalSpeed", "RejectedPeak", "CriticalSearch", "order_tracks",
            "find_criticals", "find_track_criticals", "separation_margin_pct", "required_margin_pct", "sdof_unbalance",
@@ -444,6 +447,12 @@ class CriticalSpeed:
         What API 617 / 684 would ask for at this AF (see :func:`required_margin_pct`).
     absolute_phase : bool
         Whether the track's phase is measured from a once-per-rev reference.
+    sweep_rpm_per_s : float or None
+        How fast the run swept through the peak (rpm/s, magnitude); None when unknown.
+    sweep_loss_db : float or None
+        How far that sweep kept the peak below its steady-state value (dB, passage through
+        resonance at the measured damping; :mod:`workbench.sampling.resonance`).  Above 1 dB
+        the peak reads low, late and broad: the speed and AF are biased (a warning says so).
     """
 
     order: float
@@ -458,6 +467,8 @@ class CriticalSpeed:
     separation_margin_pct: float | None = None
     required_margin_pct: float | None = None
     absolute_phase: bool = True
+    sweep_rpm_per_s: float | None = None
+    sweep_loss_db: float | None = None
 
     @property
     def margin_ok(self) -> bool | None:
@@ -479,6 +490,8 @@ class CriticalSpeed:
             "damping_ratio": self.damping_ratio,
             "separation_margin_pct": self.separation_margin_pct,
             "required_margin_pct": self.required_margin_pct,
+            "sweep_rpm_per_s": self.sweep_rpm_per_s,
+            "sweep_loss_db": self.sweep_loss_db,
         }
 
 
@@ -626,18 +639,33 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
                 f"(a single mode turns it by about 90): a passing line or noise, not a "
                 "resonance"))
             continue
+        sweep, loss = _sweep_at(track, nc, zeta)
+        swept = loss is not None and loss > PEAK_LOSS_LIMIT_DB
         if misfit > max_shape_misfit:
+            hint = ""
+            if loss is not None and loss > 0.3:
+                # measured on the broadened peak, so the true loss is larger still
+                hint = (f"; it was swept at {sweep:.3g} rpm/s, fast for its width (peak loss "
+                        f"{loss:.1f} dB or more): a resonance passed this fast is low, late and "
+                        "skewed, sweep slower to measure it")
             rejected.append(RejectedPeak(
                 track.order, nc, ap,
                 f"the peak's shape differs from a single mode's by {misfit:.2f} (RMS, fraction "
-                "of the peak)"))
+                f"of the peak){hint}"))
             continue
         sep = req = None
         if operating_rpm is not None:
             sep = separation_margin_pct(nc, operating_rpm)
             req = required_margin_pct(af, nc, operating_rpm)
+        if swept:
+            fastest = float(fastest_sweep_rpm_per_s(track.order * nc / 60.0, zeta, track.order))
+            warnings.warn(f"order {track.order:g} critical at {nc:.0f} rpm was swept at "
+                          f"{sweep:.3g} rpm/s: its peak reads about {loss:.1f} dB low and late, "
+                          "so its speed and AF are biased; to measure it, sweep at most "
+                          f"{fastest:.3g} rpm/s there (within the machine maker's limits)",
+                          FoldlineWarning, stacklevel=2)
         found.append(CriticalSpeed(track.order, nc, ap, af, (n1, n2), dphi, phase_peak, zeta,
-                                   misfit, sep, req, track.absolute_phase))
+                                   misfit, sep, req, track.absolute_phase, sweep, loss))
     found.sort(key=lambda c: c.rpm)
     rejected = [p for p in rejected if p.amplitude >= 0.25 * height]
     return CriticalSearch(tuple(found), tuple(rejected))
@@ -687,6 +715,24 @@ def find_track_criticals(tracks, *, operating_rpm=None, leakage_db: float = 40.0
             kept.append(c)
     kept.sort(key=lambda c: (c.order, c.rpm))
     return CriticalSearch(tuple(kept), tuple(rejected))
+
+
+def _sweep_at(track: OrderTrack, rpm: float, zeta: float):
+    """(sweep rate in rpm/s, peak loss in dB) where the track passes `rpm`; (None, None) if
+    the track cannot tell (fewer than 2 points)."""
+    k = np.argsort(track.revs, kind="stable")
+    revs, speed = track.revs[k], track.rpm[k]
+    if len(revs) < 2:
+        return None, None
+    i = int(np.argmin(np.abs(speed - rpm)))
+    j0, j1 = max(i - 2, 0), min(i + 2, len(revs) - 1)
+    if revs[j1] == revs[j0]:
+        return None, None
+    slope = (speed[j1] - speed[j0]) / (revs[j1] - revs[j0])      # rpm per rev
+    sweep = abs(float(slope)) * rpm / 60.0                        # rpm per s
+    fn = track.order * rpm / 60.0
+    loss = float(passage_loss_db(fn, zeta, track.order * sweep / 60.0))
+    return sweep, loss
 
 
 def _parabola(x: np.ndarray, y: np.ndarray, i: int) -> tuple[float, float]:
