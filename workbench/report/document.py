@@ -413,6 +413,14 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         summary_items.append(
             f'<span class="bad">{r:g} S/s: {coll_count[r]} collision(s)</span> '
             "of folded lines with the protected bands.")
+    crossings = getattr(advice, "crossings", None)
+    if crossings is not None:
+        fast = int((~crossings["sweep_ok"]).sum()) if len(crossings) else 0
+        summary_items.append(
+            f"{len(crossings)} crossing(s) of lines with {len(machine.resonances)} resonance(s) and "
+            f"{len(machine.criticals)} critical(s); "
+            + (f'<span class="bad">{fast} swept too fast to measure the peak within 1 dB</span>.'
+               if fast else "every one swept slowly enough to measure its peak within 1 dB."))
     summary_items.append(
         f"Angle domain: {rs.samples_per_rev} samples/rev, {rs.revs_per_block} revs/block "
         f"(order resolution {rs.order_resolution:g}), highest order {rs.max_order:g}.")
@@ -425,6 +433,10 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
             f"{analysis.shaft_angle.rpm_min:.0f} to {analysis.shaft_angle.rpm_max:.0f} rpm"
             + ("" if n_alias is None else f"; {n_alias} folded line(s) identified in the order map")
             + ".")
+    if criticals is not None:
+        found = ", ".join(f"order {c.order:g} at {c.rpm:.0f} rpm (AF {c.amplification_factor:.1f})"
+                          for _, c in criticals.criticals) or "none"
+        summary_items.append(f"Critical speeds in the run: {esc(found)}.")
     parts.append(_section("summary", "<ul>" + "".join(f"<li>{s}</li>" for s in summary_items)
                           + "</ul>", sections))
 
@@ -444,6 +456,22 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
                      + table_html(_line_records(lines), _LINE_COLUMNS, css_class="lines",
                                   caption="Lines (order lines by order, then fixed lines)")
                      + "</details>")
+    from workbench.machine import DEFAULT_DAMPING_RATIO
+
+    modes = [{"name": m.name, "kind": "resonance", "hz": m.hz, "rpm": None,
+              "zeta": m.damping_ratio} for m in machine.resonances]
+    modes += [{"name": m.name, "kind": "critical", "hz": m.hz, "rpm": m.rpm,
+               "zeta": m.damping_ratio} for m in machine.criticals]
+    if modes:
+        machine_html += table_html(
+            modes, (Column("name", "name"), Column("kind", "kind"),
+                    Column("hz", "natural frequency (Hz)", general(4), numeric=True),
+                    Column("rpm", "critical speed (rpm)",
+                           lambda v: "" if v is None else f"{v:.0f}", numeric=True),
+                    Column("zeta", "damping ratio",
+                           lambda v: f"{DEFAULT_DAMPING_RATIO:g} (default)" if v is None
+                           else f"{v:g}", numeric=True)),
+            css_class="modes", caption="Resonances and criticals of the machine file")
     parts.append(_section("machine", machine_html, sections))
 
     # ---- plan --------------------------------------------------------------------------
