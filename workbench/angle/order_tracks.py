@@ -59,7 +59,7 @@ import numpy as np
 from scipy.signal import find_peaks, get_window
 
 from workbench.angle._common import finite_real, positive_int
-from workbench.angle.spectra import DEFAULT_REVS_PER_BLOCK, _check_options, _pieces
+from workbench.angle.spectra import _check_options, _frozen, _pieces
 from workbench.angle.tracking import AngleSignal
 from workbench.errors import FoldlineWarning, InputError
 from workbench.sampling.resonance import (PEAK_LOSS_LIMIT_DB, fastest_sweep_rpm_per_s,
@@ -75,12 +75,6 @@ DEFAULT_TRACK_ORDERS = (1.0, 2.0)
 #: spans revs_per_block / (rpm / 60) seconds); 8 revolutions still separate orders 1 and 2 by
 #: 8 bins of the Hann window.
 DEFAULT_TRACK_REVS_PER_BLOCK = 8.0
-
-
-def _frozen(a, dtype=np.float64) -> np.ndarray:
-    a = np.array(a, dtype=dtype, copy=True)
-    a.setflags(write=False)
-    return a
 
 
 @dataclass(frozen=True, eq=False)
