@@ -532,7 +532,7 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
         Operating speed range (rpm) for the separation margin.
     min_phase_change_deg, max_phase_change_deg : float
         The lag must rise across the half-power speeds by an amount in this range (a single
-        mode gives about 90 degrees; 45 and 150 leave room for a neighbouring mode and for
+        mode gives about 90 degrees; 45 and 135 leave room for a neighbouring mode and for
         the sweep).
     max_shape_misfit : float
         Largest RMS difference (fraction of the peak) between the measured peak and the

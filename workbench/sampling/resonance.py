@@ -125,7 +125,7 @@ def passage_peak_ratio(kappa):
     --------
     >>> round(float(passage_peak_ratio(0.0)), 6)
     1.0
-    >>> 0.85 < float(passage_peak_ratio(1.0)) < 0.9
+    >>> 0.89 < float(passage_peak_ratio(1.0)) < 0.92
     True
     """
     k = np.asarray(kappa, dtype=np.float64)
@@ -194,7 +194,7 @@ def fastest_sweep_rpm_per_s(natural_hz, damping_ratio, order, *,
     Examples
     --------
     >>> v = fastest_sweep_rpm_per_s(20.0, 0.02, 1.0)       # 20 Hz mode, zeta 0.02, order 1
-    >>> 100 < float(v) < 130
+    >>> 60 < float(v) < 75
     True
     """
     kappa = max_sweep_kappa(loss_db)
