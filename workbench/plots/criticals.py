@@ -1,7 +1,7 @@
 """Run-up views: Bode plot, polar plot and Campbell diagram.
 
 * **Bode plot**: each order's amplitude (top) and phase lag (bottom, 0-360 degrees, lag growing
-  downward) against speed; each critical marked with its speed and amplification factor, the
+  downward; drawn where the order is above 2 % of its largest amplitude) against speed; each critical marked with its speed and amplification factor, the
   half-power band shaded, the operating range drawn.
 * **Polar plot**: the complex order track (amplitude at angle -lag) with the speed written
   along it; criticals marked.
@@ -55,7 +55,9 @@ def plot_bode(tracks, criticals=(), *, unit="", operating_rpm=None, title=None, 
         k = np.argsort(tr.rpm, kind="stable")
         ch = None if channels is None else channels[i]
         ax_a.plot(tr.rpm[k], tr.amplitude[k], color=_colour(i), lw=1.2, label=_label(tr, ch))
-        ax_p.plot(tr.rpm[k], tr.phase_deg[k], ".", ms=2.0, color=_colour(i))
+        # phase only where the order stands clear of the noise (2 % of its largest amplitude)
+        strong = tr.amplitude[k] >= 0.02 * float(np.max(tr.amplitude)) if len(k) else k
+        ax_p.plot(tr.rpm[k][strong], tr.phase_deg[k][strong], ".", ms=2.0, color=_colour(i))
         relative |= not tr.absolute_phase
     orders = [tr.order for tr in tracks]
     for c in criticals:
@@ -75,7 +77,8 @@ def plot_bode(tracks, criticals=(), *, unit="", operating_rpm=None, title=None, 
         ax_a.text(np.mean(operating_rpm), 0.98, "operating range", transform=ax_a.get_xaxis_transform(),
                   ha="center", va="top", fontsize=8, color="#555555")
     ax_a.set_ylabel(f"amplitude, peak{(' (' + unit + ')') if unit else ''}")
-    ax_a.set_ylim(bottom=0)
+    top = max((float(np.max(tr.amplitude)) for tr in tracks if len(tr.amplitude)), default=1.0)
+    ax_a.set_ylim(0, 1.2 * top if top > 0 else 1.0)     # room for the critical's label
     ax_a.grid(True, alpha=0.3)
     ax_a.legend(fontsize=8, loc="upper left")
     ax_p.set_ylim(360, 0)
