@@ -11,7 +11,7 @@ sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parent))
 
 BENCHMARKS = ["bench_foldmap", "bench_tracking", "bench_ui", "bench_memory", "bench_batch",
-              "bench_vold_kalman", "bench_speed"]
+              "bench_vold_kalman", "bench_speed", "bench_criticals"]
 
 
 def main(argv=None) -> int:

@@ -24,6 +24,8 @@ from workbench.angle.vold_kalman import (OrderExtraction, extract_orders, vk_ban
                                          vk_response, vk_weighting)
 from workbench.angle.vibration_speed import (SpeedEstimate, speed_from_channel,
                                              speed_from_vibration)
+from workbench.angle.order_tracks import (CriticalSearch, CriticalSpeed, OrderTrack, RejectedPeak,
+                                          find_criticals, find_track_criticals, order_tracks)
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",

@@ -228,6 +228,14 @@ def _print_advice(machine, plan, advice):
     )
     for note in advice.notes:
         print(f"  - {note}")
+    crossings = getattr(advice, "crossings", None)
+    if crossings is not None and len(crossings):
+        cols = ["line", "resonance", "rpm", "time_s", "sweep_rpm_per_s", "peak_loss_db", "sweep_ok",
+                "slowest_sweep_rpm_per_s"]
+        print(f"\ncrossings of lines with resonances and criticals: {len(crossings)}")
+        fmt = {"rpm": "{:.0f}".format, "time_s": "{:.1f}".format, "sweep_rpm_per_s": "{:.3g}".format,
+               "peak_loss_db": "{:.2f}".format, "slowest_sweep_rpm_per_s": "{:.3g}".format}
+        print(crossings[cols].to_string(index=False, formatters=fmt))
 
 
 # --------------------------------------------------------------------------------------------
@@ -284,6 +292,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli.verb_speed import add_speed_verb
 
     add_speed_verb(verb)
+    from workbench.cli.verb_criticals import add_criticals_verb
+
+    add_criticals_verb(verb)
     return parser
 
 

@@ -17,12 +17,15 @@ from workbench.machine.machinefile import (
     write_machine,
 )
 from workbench.machine.model import (
+    DEFAULT_DAMPING_RATIO,
     FIXED,
     LINE_KINDS,
+    MODE_TYPES,
     ROTATING_RACES,
     SOURCE_TYPES,
     Bearing,
     BearingFrequencies,
+    Critical,
     FixedLine,
     GearStage,
     Line,
@@ -30,6 +33,7 @@ from workbench.machine.model import (
     OrderSource,
     PlanetaryFrequencies,
     PlanetaryStage,
+    Resonance,
     Rotor,
     Shaft,
     Source,
@@ -38,6 +42,10 @@ from workbench.machine.model import (
 )
 
 __all__ = [
+    "Critical",
+    "DEFAULT_DAMPING_RATIO",
+    "MODE_TYPES",
+    "Resonance",
     "FIXED",
     "LINE_KINDS",
     "ROTATING_RACES",

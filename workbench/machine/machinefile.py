@@ -14,6 +14,8 @@ Layout (see DESIGN.md, "Machine file (TOML)")::
     [[rotor]]                 name, shaft, count, harmonics = 1
     [[order]]                 name, shaft, order, harmonics = 1
     [[line]]                  name, hz, harmonics = 1
+    [[resonance]]             name, hz, damping_ratio (optional): structural natural frequency
+    [[critical]]              name, rpm, damping_ratio (optional): rotor critical speed
 
 Every source also takes ``level_db`` (default 0).  Unknown tables and keys are errors (they are
 usually typos); every message names the file, the entry, the key, the bad value and what is
@@ -38,7 +40,7 @@ from collections.abc import Mapping
 from dataclasses import MISSING, fields
 
 from workbench.errors import FoldlineWarning, MachineFileError, where
-from workbench.machine.model import SOURCE_TYPES, Machine, Shaft
+from workbench.machine.model import MODE_TYPES, SOURCE_TYPES, Machine, Shaft
 
 __all__ = [
     "machine_from_dict",
@@ -48,7 +50,8 @@ __all__ = [
     "write_machine",
 ]
 
-_ENTRY_TYPES = {cls.table: cls for cls in (Shaft, *SOURCE_TYPES)}
+_ENTRY_TYPES = {cls.table: cls for cls in (Shaft, *SOURCE_TYPES, *MODE_TYPES)}
+_MODE_TABLES = tuple(cls.table for cls in MODE_TYPES)
 _MACHINE_KEYS = ("name", "reference")
 _TABLES = ("machine", *_ENTRY_TYPES)
 
@@ -173,9 +176,11 @@ def machine_from_dict(d: Mapping, source: str = "<dict>") -> Machine:
                 built[table].append(cls(**entry))
         if not built["shaft"]:
             raise MachineFileError("no [[shaft]]; give at least one shaft (the reference shaft)")
-        order = [t for t in d if t in _ENTRY_TYPES and t != "shaft"]
+        order = [t for t in d if t in _ENTRY_TYPES and t != "shaft" and t not in _MODE_TABLES]
         sources = tuple(src for t in order for src in built[t])
-        machine = Machine(head["name"], head["reference"], tuple(built["shaft"]), sources)
+        machine = Machine(head["name"], head["reference"], tuple(built["shaft"]), sources,
+                          resonances=tuple(built["resonance"]),
+                          criticals=tuple(built["critical"]))
         machine.lines()  # runs shaft_orders(): train and line-name errors show at load time
     return machine
 
@@ -232,8 +237,9 @@ def machine_to_dict(m: Machine) -> dict:
     dict
         ``{"machine": {"name", "reference"}, "shaft": [...], <table>: [...], ...}`` with source
         tables in the order each kind first appears in ``m.sources``; tables without entries
-        are left out.  :func:`machine_from_dict` turns it back into an equal machine when the
-        sources are grouped by kind.
+        are left out; then ``"resonance"`` and ``"critical"`` (a damping ratio that is None,
+        i.e. not given, is left out).  :func:`machine_from_dict` turns it back into an equal
+        machine when the sources are grouped by kind.
     """
     out: dict = {
         "machine": {"name": m.name, "reference": m.reference},
@@ -241,6 +247,10 @@ def machine_to_dict(m: Machine) -> dict:
     }
     for src in m.sources:
         out.setdefault(src.table, []).append({f.name: getattr(src, f.name) for f in fields(src)})
+    for mode in m.resonances + m.criticals:
+        out.setdefault(mode.table, []).append(
+            {f.name: getattr(mode, f.name) for f in fields(mode) if getattr(mode, f.name) is not None}
+        )
     return out
 
 

@@ -34,10 +34,13 @@ from workbench.errors import FoldlineWarning, InputError, MachineFileError, Trai
 __all__ = [
     "FIXED",
     "LINE_KINDS",
+    "MODE_TYPES",
     "ROTATING_RACES",
     "SOURCE_TYPES",
     "Bearing",
     "BearingFrequencies",
+    "Critical",
+    "DEFAULT_DAMPING_RATIO",
     "FixedLine",
     "GearStage",
     "Line",
@@ -45,6 +48,7 @@ __all__ = [
     "OrderSource",
     "PlanetaryFrequencies",
     "PlanetaryStage",
+    "Resonance",
     "Rotor",
     "Shaft",
     "Source",
@@ -978,6 +982,112 @@ Source = Union[GearStage, PlanetaryStage, Bearing, Rotor, OrderSource, FixedLine
 
 
 # --------------------------------------------------------------------------------------------
+# Resonances and critical speeds (not line sources: they shape lines, they emit none)
+# --------------------------------------------------------------------------------------------
+
+#: Damping ratio assumed where a ``[[resonance]]`` or ``[[critical]]`` entry gives none: 0.05,
+#: a lightly damped structure or rotor mode (half-power amplification factor 1 / (2 x 0.05) =
+#: 10, inside the range API 684 calls sensitive; common practice, no source).
+DEFAULT_DAMPING_RATIO = 0.05
+
+
+def _check_damping(label: str, value) -> float | None:
+    if value is None:
+        return None
+    zeta = _check_real(label, "damping_ratio", value, positive=True)
+    if zeta >= 1 / math.sqrt(2):
+        raise _error(label, "damping_ratio", value,
+                     "must be > 0 and < 0.707 (an underdamped mode with a resonance peak; "
+                     "typical values 0.01 to 0.2)")
+    return zeta
+
+
+class _Mode(_Entry):
+    """Shared behaviour of resonances and criticals."""
+
+    @property
+    def zeta(self) -> float:
+        """The damping ratio, or :data:`DEFAULT_DAMPING_RATIO` where none was given."""
+        return DEFAULT_DAMPING_RATIO if self.damping_ratio is None else self.damping_ratio
+
+    @property
+    def amplification_factor(self) -> float:
+        """Half-power amplification factor of the mode, ``1 / (2 zeta)`` (the Q factor)."""
+        return 1.0 / (2.0 * self.zeta)
+
+
+@dataclass(frozen=True)
+class Resonance(_Mode):
+    """A structural natural frequency (written ``[[resonance]]`` in a machine file).
+
+    Parameters
+    ----------
+    name : str
+        Entry name, e.g. ``"housing bending"``.
+    hz : float
+        Natural frequency in Hz (> 0).
+    damping_ratio : float, optional
+        Viscous damping ratio zeta, 0 < zeta < 0.707; None (the default) means unknown, and
+        :data:`DEFAULT_DAMPING_RATIO` is used where a number is needed.
+
+    Notes
+    -----
+    A resonance is fixed in Hz: every line whose true frequency passes ``hz`` during a run
+    crosses it (see :mod:`workbench.sampling.resonance`).
+    """
+
+    name: str
+    hz: float
+    damping_ratio: float | None = None
+    table: ClassVar[str] = "resonance"
+
+    def __post_init__(self) -> None:
+        label = self._check_common()
+        _set(self, "hz", _check_real(label, "hz", self.hz, positive=True))
+        _set(self, "damping_ratio", _check_damping(label, self.damping_ratio))
+
+
+@dataclass(frozen=True)
+class Critical(_Mode):
+    """A predicted rotor critical speed of the reference shaft (``[[critical]]``).
+
+    Parameters
+    ----------
+    name : str
+        Entry name, e.g. ``"first bending"``.
+    rpm : float
+        Critical speed of the reference shaft in rev/min (> 0).
+    damping_ratio : float, optional
+        Viscous damping ratio of the rotor mode, 0 < zeta < 0.707; None means unknown
+        (:data:`DEFAULT_DAMPING_RATIO` is used where a number is needed).
+
+    Notes
+    -----
+    A critical is excited once per revolution (unbalance): order 1 crosses its natural
+    frequency ``rpm / 60`` Hz exactly at ``rpm``.
+    """
+
+    name: str
+    rpm: float
+    damping_ratio: float | None = None
+    table: ClassVar[str] = "critical"
+
+    def __post_init__(self) -> None:
+        label = self._check_common()
+        _set(self, "rpm", _check_real(label, "rpm", self.rpm, positive=True))
+        _set(self, "damping_ratio", _check_damping(label, self.damping_ratio))
+
+    @property
+    def hz(self) -> float:
+        """The mode's natural frequency, ``rpm / 60`` Hz."""
+        return self.rpm / 60.0
+
+
+#: Mode classes (not sources) in machine-file order, each with its TOML table name.
+MODE_TYPES = (Resonance, Critical)
+
+
+# --------------------------------------------------------------------------------------------
 # Machine
 # --------------------------------------------------------------------------------------------
 
@@ -1001,6 +1111,12 @@ class Machine:
     sources : tuple of Source
         Gear stages, planetary stages, bearings, rotors, orders and fixed lines.  Entry names
         must be unique across shafts and sources; every shaft a source names must exist.
+    resonances : tuple of Resonance
+        Structural natural frequencies (Hz).  Not sources: they give no line, so
+        :meth:`lines` ignores them.
+    criticals : tuple of Critical
+        Predicted rotor critical speeds of the reference shaft (rpm).  Names of resonances and
+        criticals must be unique among themselves.
 
     Notes
     -----
@@ -1012,6 +1128,8 @@ class Machine:
     reference: str
     shafts: tuple[Shaft, ...]
     sources: tuple[Source, ...] = ()
+    resonances: tuple[Resonance, ...] = ()
+    criticals: tuple[Critical, ...] = ()
 
     def __post_init__(self) -> None:
         label = "[machine]"
@@ -1032,6 +1150,24 @@ class Machine:
                     f"{label} '{self.name}': sources must be "
                     f"{', '.join(c.__name__ for c in SOURCE_TYPES)} objects, got {item!r}"
                 )
+        _set(self, "resonances", tuple(self.resonances))
+        _set(self, "criticals", tuple(self.criticals))
+        for attr, cls in (("resonances", Resonance), ("criticals", Critical)):
+            for item in getattr(self, attr):
+                if not isinstance(item, cls):
+                    raise MachineFileError(
+                        f"{label} '{self.name}': {attr} must be {cls.__name__} objects, "
+                        f"got {item!r}"
+                    )
+        modes: dict[str, _Entry] = {}
+        for item in self.resonances + self.criticals:
+            if item.name in modes:
+                raise _error(
+                    item.label, "name", item.name,
+                    f"also used by {modes[item.name].label}; names of resonances and criticals "
+                    "must be unique",
+                )
+            modes[item.name] = item
         seen: dict[str, _Entry] = {}
         for item in self.shafts + self.sources:
             if item.name in seen:

@@ -7,6 +7,7 @@ state), so they are safe in scripts, notebooks, threads and Dask workers.
 from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_order_map,
                                    plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check,
                                    speed_check_options)
+from workbench.plots.criticals import plot_bode, plot_campbell, plot_polar, run_up_figures
 from workbench.plots.common import figure_bytes, new_figure, save_figure
 from workbench.plots.foldmap import draw_fold_map, plot_fold_map
 
@@ -20,6 +21,10 @@ __all__ = [
     "plot_order_cuts",
     "plot_order_envelopes",
     "plot_rpm_frequency_map",
+    "plot_bode",
+    "plot_polar",
+    "plot_campbell",
+    "run_up_figures",
     "save_figure",
     "new_figure",
     "figure_bytes",

@@ -7,9 +7,11 @@ reads the files, tracks the run, builds the report and writes it through a tempo
 The report holds: a job summary; the machine and its line table; the plan (speed profile,
 candidate rates, filter, threshold, bands); the recommended rate and the advisor's reasons;
 the collision table of every candidate rate; fold maps (Hz and order views) of the worst
-candidate and of the recommended rate; the angle-domain settings; with a run, its tacho check,
-order spectrum and peaks, order map and order cuts with the predicted lines, and the
-identification of measured lines (aliases first); the safety caution; and the provenance
+candidate and of the recommended rate; the angle-domain settings; for a machine with
+resonances or criticals, the plan's Campbell diagram and the crossings table (with the sweep
+check); with a run, its tacho check, order spectrum and peaks, order map and order cuts with
+the predicted lines, the identification of measured lines (aliases first), and the run-up views
+(Bode, polar, Campbell) with the critical speeds; the safety caution; and the provenance
 (foldline version, every input file with its SHA-256, the date and time in UTC).
 """
 
@@ -50,6 +52,7 @@ SECTION_TITLES = {
     "collisions": "Collisions by candidate rate",
     "fold-maps": "Fold maps",
     "angle-settings": "Angle-domain settings",
+    "crossings": "Resonance crossings",
     "run": "Recorded run",
     "tacho": "Tacho check",
     "order-spectrum": "Order spectrum",
@@ -57,6 +60,7 @@ SECTION_TITLES = {
     "order-cuts": "Order cuts",
     "rpm-frequency-map": "rpm-frequency map",
     "identification": "Identified lines and aliases",
+    "criticals": "Critical speeds: Bode, polar and Campbell",
     "safety": "Safety",
     "provenance": "Provenance",
 }
@@ -330,7 +334,7 @@ def _sub(sid, inner, sections):
 
 
 def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None,
-                 created_utc=None, title=None, progress=None) -> Report:
+                 created_utc=None, title=None, progress=None, criticals=None) -> Report:
     """Render the report of a machine under a plan, and of a tracked run when given.
 
     Parameters
@@ -350,6 +354,10 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         Page title (default from the machine's name).
     progress : callable, optional
         Called with a short text as each part is built.
+    criticals : RunCriticals, optional
+        Order tracks and critical speeds of the run
+        (:func:`workbench.runs.criticals.run_criticals`): adds the Bode, polar and Campbell
+        views and the criticals table to the run's part.
 
     Returns
     -------
@@ -405,6 +413,14 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         summary_items.append(
             f'<span class="bad">{r:g} S/s: {coll_count[r]} collision(s)</span> '
             "of folded lines with the protected bands.")
+    crossings = getattr(advice, "crossings", None)
+    if crossings is not None:
+        fast = int((~crossings["sweep_ok"]).sum()) if len(crossings) else 0
+        summary_items.append(
+            f"{len(crossings)} crossing(s) of lines with {len(machine.resonances)} resonance(s) and "
+            f"{len(machine.criticals)} critical(s); "
+            + (f'<span class="bad">{fast} swept too fast to measure the peak within 1 dB</span>.'
+               if fast else "every one swept slowly enough to measure its peak within 1 dB."))
     summary_items.append(
         f"Angle domain: {rs.samples_per_rev} samples/rev, {rs.revs_per_block} revs/block "
         f"(order resolution {rs.order_resolution:g}), highest order {rs.max_order:g}.")
@@ -417,6 +433,10 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
             f"{analysis.shaft_angle.rpm_min:.0f} to {analysis.shaft_angle.rpm_max:.0f} rpm"
             + ("" if n_alias is None else f"; {n_alias} folded line(s) identified in the order map")
             + ".")
+    if criticals is not None:
+        found = ", ".join(f"order {c.order:g} at {c.rpm:.0f} rpm (AF {c.amplification_factor:.1f})"
+                          for _, c in criticals.criticals) or "none"
+        summary_items.append(f"Critical speeds in the run: {esc(found)}.")
     parts.append(_section("summary", "<ul>" + "".join(f"<li>{s}</li>" for s in summary_items)
                           + "</ul>", sections))
 
@@ -436,6 +456,22 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
                      + table_html(_line_records(lines), _LINE_COLUMNS, css_class="lines",
                                   caption="Lines (order lines by order, then fixed lines)")
                      + "</details>")
+    from workbench.machine import DEFAULT_DAMPING_RATIO
+
+    modes = [{"name": m.name, "kind": "resonance", "hz": m.hz, "rpm": None,
+              "zeta": m.damping_ratio} for m in machine.resonances]
+    modes += [{"name": m.name, "kind": "critical", "hz": m.hz, "rpm": m.rpm,
+               "zeta": m.damping_ratio} for m in machine.criticals]
+    if modes:
+        machine_html += table_html(
+            modes, (Column("name", "name"), Column("kind", "kind"),
+                    Column("hz", "natural frequency (Hz)", general(4), numeric=True),
+                    Column("rpm", "critical speed (rpm)",
+                           lambda v: "" if v is None else f"{v:.0f}", numeric=True),
+                    Column("zeta", "damping ratio",
+                           lambda v: f"{DEFAULT_DAMPING_RATIO:g} (default)" if v is None
+                           else f"{v:g}", numeric=True)),
+            css_class="modes", caption="Resonances and criticals of the machine file")
     parts.append(_section("machine", machine_html, sections))
 
     # ---- plan --------------------------------------------------------------------------
@@ -522,11 +558,17 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
     parts.append(_section("angle-settings", key_value_html(angle_pairs, css_class="angle-settings"),
                           sections))
 
+    # ---- crossings of lines with resonances and criticals ------------------------------
+    if getattr(advice, "crossings", None) is not None:
+        say("resonance crossings")
+        parts.append(_crossings_section(machine, plan, advice.crossings, sections))
+
     # ---- run ---------------------------------------------------------------------------
     aliases = None
     if analysis is not None:
         say("run figures")
-        run_html, aliases = _run_sections(analysis, lines, track_settings, sections)
+        run_html, aliases = _run_sections(analysis, lines, track_settings, sections,
+                                          criticals=criticals)
         parts.append(run_html)
 
     # ---- safety and provenance ----------------------------------------------------------
@@ -566,7 +608,97 @@ _TOP_LEVEL = {"summary", "machine", "plan", "recommendation", "collisions", "fol
               "angle-settings", "run", "safety", "provenance"}
 
 
-def _run_sections(analysis, lines, track_settings, sections):
+_CROSSING_COLUMNS = (
+    Column("line", "line"),
+    Column("resonance", "resonance / critical"),
+    Column("kind", "kind"),
+    Column("rpm", "rpm", fixed(0), numeric=True),
+    Column("time_s", "time (s)", fixed(1), numeric=True),
+    Column("hz", "natural frequency (Hz)", general(4), numeric=True),
+    Column("damping_ratio", "damping ratio", general(3), numeric=True),
+    Column("sweep_rpm_per_s", "planned sweep (rpm/s)", general(3), numeric=True),
+    Column("peak_loss_db", "peak loss (dB)", fixed(2), numeric=True),
+    Column("sweep_ok", "sweep ok", yes_no),
+    Column("slowest_sweep_rpm_per_s", "fastest sweep for 1 dB (rpm/s)", general(3), numeric=True),
+)
+
+_CRITICAL_COLUMNS = (
+    Column("channel", "channel"),
+    Column("order", "order", _order_text, numeric=True),
+    Column("rpm", "critical (rpm)", fixed(0), numeric=True),
+    Column("amplitude", "peak amplitude", general(4), numeric=True),
+    Column("amplification_factor", "AF (half-power)", fixed(1), numeric=True),
+    Column("half_power", "half-power speeds (rpm)"),
+    Column("phase_change_deg", "phase change (deg)", fixed(0), numeric=True),
+    Column("separation_margin_pct", "separation margin (%)",
+           lambda v: "" if v is None else f"{v:.1f}", numeric=True),
+    Column("required_margin_pct", "API margin asked (%)",
+           lambda v: "" if v is None else f"{v:.1f}", numeric=True),
+)
+
+def _crossings_section(machine, plan, table, sections):
+    """Plan-side Campbell diagram and the crossings table (with the sweep check)."""
+    from workbench.plots import plot_campbell
+    from workbench.runs.criticals import SAFETY_NOTE
+
+    sp = plan.speed
+    fig = plot_campbell(None, orders=(1.0, 2.0), lines=machine.lines(),
+                        resonances=machine.resonances, criticals=machine.criticals,
+                        rpm_range=(sp.rpm_min, sp.rpm_max),
+                        title="Campbell diagram of the plan: lines that cross a resonance")
+    fast = int((~table["sweep_ok"]).sum()) if len(table) else 0
+    intro = (f"<p>{len(table)} crossing(s) of machine lines with the machine's resonances and "
+             f"criticals inside the speed profile; <b>{fast}</b> swept too fast for the "
+             "resonance peak to build up within 1 dB (passage through resonance, F. M. Lewis, "
+             "Trans. ASME 54, 1932). Where a sweep is too fast, sweep that part more slowly (at "
+             "most the rate given) or dwell, within the machine maker's limits.</p>")
+    html = figure_svg(fig, key="campbell-plan", caption="Order lines against speed with the "
+                      "resonances (solid) and criticals (dashed) and their half-power bands; "
+                      "circles mark crossings.", alt="Campbell diagram of the plan")
+    _close(fig)
+    html = intro + html + table_html(table, _CROSSING_COLUMNS, css_class="crossings",
+                                     caption="Crossings (by time in the run)",
+                                     empty="no line crosses a resonance inside the profile")
+    html += f'<p class="safety">{esc(SAFETY_NOTE)}</p>'
+    return _section("crossings", html, sections)
+
+
+def _criticals_section(crit, sections):
+    """The run-up views (Bode, polar, Campbell) and the criticals table of a RunCriticals."""
+    from workbench.plots import run_up_figures
+    from workbench.runs.criticals import SAFETY_NOTE
+
+    figs = run_up_figures(crit)
+    captions = {
+        "bode.png": ("bode", "Bode plot: amplitude and phase lag of the tracked orders against "
+                     "speed; criticals marked with their amplification factor (AF, half-power "
+                     "method), half-power bands shaded."),
+        "polar.png": ("polar", "Polar plot of the first order tracked: amplitude at the phase lag, "
+                      "speeds written along the curve."),
+        "campbell.png": ("campbell-run", "Campbell diagram: the measured rpm-frequency map with "
+                         "the order lines, the machine's resonances and criticals; circles mark "
+                         "crossings."),
+    }
+    html = [f"<p>Speed from {esc(crit.speed_source)}; phase <b>{esc(crit.phase_reference)}</b>"
+            + ("" if crit.phase_reference == "absolute" else
+               " (no once-per-rev reference: phases compare within this run only)")
+            + f"; {len(crit.criticals)} critical speed(s) found, {len(crit.rejected)} peak(s) not "
+            "taken (a step, a line passing through the order, leakage or noise).</p>"]
+    for name, fig in figs.items():
+        key, caption = captions[name]
+        html.append(figure_svg(fig, key=key, caption=caption, alt=key))
+        _close(fig)
+    table = crit.criticals_table()
+    if len(table):
+        table["half_power"] = [f"{a:.0f} - {b:.0f}" for a, b in table["half_power_rpm"]]
+    html.append(table_html(table, _CRITICAL_COLUMNS, css_class="criticals",
+                           caption="Critical speeds (API 684 half-power amplification factor)",
+                           empty="no critical speed found in the tracked orders"))
+    html.append(f'<p class="safety">{esc(SAFETY_NOTE)}</p>')
+    return _sub("criticals", "\n".join(html), sections)
+
+
+def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
     """The run part of the report; returns (html, alias names or None)."""
     from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum,
                                  plot_rpm_frequency_map, plot_tacho_check, speed_check_options)
@@ -667,6 +799,9 @@ def _run_sections(analysis, lines, track_settings, sections):
             "apparent frequency of each identified line.", alt="rpm-frequency map"), sections))
         _close(fig)
 
+    if criticals is not None:
+        run_sections.append(_criticals_section(criticals, sections))
+
     aliases = None
     if ident is not None:
         aliases = tuple(dict.fromkeys(str(n) for n in ident.aliases["line"]))
@@ -735,6 +870,15 @@ def _utc_text(value) -> str:
 # files
 
 
+def _run_criticals(run_path, machine, settings):
+    """Order tracks (orders 1 and 2) and criticals of the run, with the run's speed options."""
+    from workbench.runs.analysis import SPEED_OPTIONS
+    from workbench.runs.criticals import run_criticals
+
+    keep = {k: v for k, v in settings.items() if k in SPEED_OPTIONS or k in ("channel", "rate_hz")}
+    return run_criticals(run_path, machine=machine, **keep)
+
+
 def write_report(machine_path, plan_path, run_path=None, *, out, force=False, track_options=None,
                  analysis=None, progress=None) -> Report:
     """Read the inputs, track the run (when given), build the report and write it to ``out``.
@@ -781,6 +925,7 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
     plan.check_against(machine.lines())
     inputs = [InputFile.of("machine", machine_path), InputFile.of("plan", plan_path)]
     settings = None
+    crit = None
     if analysis is not None and run_path is None:
         raise InputError("an analysis was given without the run file it was made from")
     if run_path is not None:
@@ -805,8 +950,11 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
             if progress:
                 progress(f"tracking {run_path}")
             analysis = track_run(run_path, machine=machine, **settings)
+        if progress:
+            progress("order tracks with phase and critical speeds")
+        crit = _run_criticals(run_path, machine, settings)
     report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
-                          progress=progress)
+                          progress=progress, criticals=crit)
     with atomic_output(out, force=force) as tmp:
         Path(tmp).write_text(report.html, encoding="utf-8")
     return report

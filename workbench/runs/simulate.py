@@ -8,7 +8,15 @@ The model follows the hardware chain, line by line:
    (:meth:`SpeedProfile.shaft_angle_rev`); a fixed line's is ``2 pi hz t + phi``.  The start
    phases ``phi`` are drawn uniformly from the seed.
 2. **Structure.**  The amplitude is multiplied by :func:`resonance_gain` at the line's *true*
-   frequency (one structural resonance on top of a flat transmission path).
+   frequency (one structural resonance on top of a flat transmission path).  A machine with
+   ``[[resonance]]`` entries is shaped by them instead of the default resonance (an explicit
+   ``resonance_hz`` still applies): each line is multiplied by the complex gain
+   :func:`mode_gain` at its true frequency, ``G = 1 + sum_i (Q_i - 1) 2 zeta_i r_i H(r_i)``,
+   a flat path plus each single-degree-of-freedom mode (magnitude and phase lag
+   ``atan2(2 zeta r, 1 - r^2)``), with ``Q = 1 / (2 zeta)`` and the machine file's default
+   damping ratio 0.05 where an entry gives none.  ``[[critical]]`` entries shape every order-1
+   line by the unbalance response of the rotor, :func:`unbalance_gain`, so a simulated run-up
+   shows the critical (amplitude and phase).
 3. **Anti-alias filter.**  The amplitude is multiplied by ``10**(-A/20)`` with ``A =
    plan.filter.attenuation_db(f_true, rate_hz)``, again at the *true* frequency.  Amplitudes
    follow the speed: they are evaluated every millisecond of the run and interpolated
@@ -50,8 +58,8 @@ from workbench.runs.run import Channel, Run
 from workbench.runs.sidecar import Sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter
 
-__all__ = ["resonance_gain", "simulate_run", "simulate_to_wav", "VIBRATION_UNIT",
-           "TACHO_HIGH_V"]
+__all__ = ["resonance_gain", "mode_gain", "unbalance_gain", "simulate_run", "simulate_to_wav",
+           "VIBRATION_UNIT", "TACHO_HIGH_V"]
 
 #: Unit of the simulated vibration channel (levels are dB re 1 m/s^2 peak).
 VIBRATION_UNIT = "m/s^2"
@@ -104,6 +112,59 @@ def resonance_gain(f_hz, resonance_hz: float, q: float, gain_db: float) -> np.nd
         b = 1.0 / np.sqrt(1.0 + (q * (r - 1.0 / r)) ** 2)
     b = np.where(r > 0, b, 0.0)
     return 1.0 + (g - 1.0) * b
+
+
+def mode_gain(f_hz, resonances) -> np.ndarray:
+    """Complex gain of a flat path plus single-degree-of-freedom modes at true frequencies.
+
+    ``G(f) = 1 + sum_i (Q_i - 1) 2 zeta_i r_i H(r_i)``, ``r_i = f / fn_i``,
+    ``H(r) = 1 / (1 - r^2 + 2 i zeta r)``, ``Q_i = 1 / (2 zeta_i)``.  Each mode term has
+    magnitude ``2 zeta r |H|`` (the mobility of :func:`resonance_gain`, 1 at ``fn``) and the
+    single-degree-of-freedom phase lag ``atan2(2 zeta r, 1 - r^2)`` (0 well below ``fn``, 90
+    degrees at it, 180 well above); so ``|G(fn)| = sqrt(1 + (Q - 1)^2)``, about Q, and G is 1
+    (0 dB, no phase) far from every mode.  A line ``a cos(v)`` becomes ``Re(a G exp(i v))``.
+
+    Parameters
+    ----------
+    f_hz : array_like
+        True frequencies, Hz.
+    resonances : sequence of Resonance
+        ``hz`` and ``zeta`` (the damping ratio, or the machine file's default) of each mode.
+
+    References
+    ----------
+    .. [1] S. S. Rao, "Mechanical Vibrations", 5th ed., Prentice Hall, 2011, section 3.4
+       (harmonically excited damped single-degree-of-freedom system).
+    """
+    f = np.asarray(f_hz, dtype=np.float64)
+    g = np.ones(f.shape, dtype=np.complex128)
+    for m in resonances:
+        z = float(m.zeta)
+        r = f / float(m.hz)
+        g += (1.0 / (2 * z) - 1.0) * 2 * z * r / (1 - r * r + 2j * z * r)
+    return g
+
+
+def unbalance_gain(rpm, criticals) -> np.ndarray:
+    """Complex unbalance response of a rotor with critical speeds, 1 well above all of them.
+
+    ``U = (1 / n) sum_i r_i^2 H(r_i)``, ``r_i = rpm / rpm_i``, ``H(r) = 1 / (1 - r^2 + 2 i zeta
+    r)``: the response of each mode to a rotating unbalance (amplitude ``r^2 |H|``, phase lag
+    ``atan2(2 zeta r, 1 - r^2)``), equal participation, so an order-1 line keeps its machine-file
+    level far above the criticals and falls as ``r^2`` below them.
+
+    References
+    ----------
+    .. [1] S. S. Rao, "Mechanical Vibrations", 5th ed., Prentice Hall, 2011, section 3.7
+       (rotating unbalance).
+    """
+    n = np.asarray(rpm, dtype=np.float64)
+    u = np.zeros(n.shape, dtype=np.complex128)
+    for c in criticals:
+        z = float(c.zeta)
+        r = n / float(c.rpm)
+        u += r * r / (1 - r * r + 2j * z * r)
+    return u / max(1, len(criticals))
 
 
 @dataclass(frozen=True)
@@ -195,6 +256,10 @@ class _Lines:
                               dtype=np.float64)
         self.amplitude = 10.0 ** (np.array([ln.level_db for ln in lines], dtype=np.float64)
                                   / 20.0)
+        self.resonances = tuple(getattr(machine, "resonances", ()))
+        self.criticals = tuple(getattr(machine, "criticals", ()))
+        self.is_one = np.array([ln.order is not None and abs(ln.order - 1.0) < 1e-9
+                                for ln in lines], dtype=bool)
         phase_seed, noise_seed = np.random.SeedSequence(seed).spawn(2)
         self.phase = np.random.default_rng(phase_seed).uniform(0.0, 2 * np.pi, len(lines))
         self.noise_seed = noise_seed
@@ -209,7 +274,12 @@ def _envelopes(lines: _Lines, plan: Any, s: _Settings, rpm: np.ndarray) -> np.nd
                       lines.value[:, None])
     att = np.asarray(plan.filter.attenuation_db(f_true, s.rate_hz), dtype=np.float64)
     gain = resonance_gain(f_true, s.resonance_hz, s.resonance_q, s.resonance_gain_db)
-    return lines.amplitude[:, None] * gain * 10.0 ** (-att / 20.0)
+    env = lines.amplitude[:, None] * gain * 10.0 ** (-att / 20.0)
+    if lines.resonances or lines.criticals:
+        env = env * mode_gain(f_true, lines.resonances)
+        if lines.criticals and lines.is_one.any():
+            env[lines.is_one] *= unbalance_gain(rpm, lines.criticals)[None, :]
+    return env
 
 
 def _tacho(theta_rev: np.ndarray, rpm: np.ndarray, s: _Settings) -> np.ndarray:
@@ -267,6 +337,12 @@ def _generate(machine: Any, plan: Any, s: _Settings) -> Iterator[np.ndarray]:
             v -= floor  # cycles mod 1: keeps the phase exact however long the run
             v *= 2.0 * np.pi
             v += lines.phase[k]
+            if np.iscomplexobj(amp_k):
+                # Re(E exp(i (v - pi/2))) = E_re sin v + E_im cos v, E interpolated linearly
+                lo = amp_k[j]
+                e = lo + (amp_k[j1] - lo) * w
+                x += e.real * np.sin(v) + e.imag * np.cos(v)
+                continue
             np.sin(v, out=v)
             if amp_k.min() == amp_k.max():
                 v *= amp_k[0]
@@ -282,6 +358,27 @@ def _generate(machine: Any, plan: Any, s: _Settings) -> Iterator[np.ndarray]:
             yield np.vstack([x, _tacho(theta, rpm, s)])
         else:
             yield x.reshape(1, -1)
+
+
+def _machine_modes(machine: Any, s: _Settings, resonance_hz) -> _Settings:
+    """Without an explicit ``resonance_hz``, a machine's [[resonance]] entries replace the
+    default structural resonance (0.3 x rate)."""
+    if resonance_hz is None and tuple(getattr(machine, "resonances", ())):
+        from dataclasses import replace
+
+        return replace(s, resonance_gain_db=0.0)
+    return s
+
+
+def _peak_gain(machine: Any, s: _Settings) -> float:
+    """Upper bound of the structural gain of any line (for the integer formats' full scale)."""
+    gain = max(1.0, 10.0 ** (s.resonance_gain_db / 20.0))
+    res = tuple(getattr(machine, "resonances", ()))
+    gain *= 1.0 + sum(1.0 / (2 * m.zeta) for m in res)
+    crit = tuple(getattr(machine, "criticals", ()))
+    if crit:
+        gain *= max(1.0, max(1.0 / (2 * c.zeta * math.sqrt(1 - c.zeta ** 2)) for c in crit))
+    return gain
 
 
 def _check_tacho_resolution(plan: Any, s: _Settings) -> None:
@@ -351,7 +448,8 @@ def simulate_run(machine: Any, plan: Any, rate_hz: float, *, seed: int = 0,
         Broadband noise RMS in dB re 1 m/s^2; ``-inf`` for none.  Default -60.
     resonance_hz : float, optional
         Structural resonance in Hz; default ``0.3 * rate_hz`` (inside the usable band, so its
-        effect shows; give a fixed value when comparing rates).
+        effect shows; give a fixed value when comparing rates).  For a machine with
+        ``[[resonance]]`` entries the default is none: its own resonances shape the lines.
     resonance_q : float, optional
         Quality factor of the resonance (bandwidth ``resonance_hz / Q``).  Default 8.
     resonance_gain_db : float, optional
@@ -389,6 +487,7 @@ def simulate_run(machine: Any, plan: Any, rate_hz: float, *, seed: int = 0,
     s = _settings(plan, rate_hz, seed, duration_s, noise_db, resonance_hz, resonance_q,
                   resonance_gain_db, pulses_per_rev, missing_pulses, tacho_channel, chunk_s,
                   tacho_rise_s)
+    s = _machine_modes(machine, s, resonance_hz)
     _check_tacho_resolution(plan, s)
     data = np.empty((2 if s.tacho else 1, s.n_samples), dtype=np.float64)
     pos = 0
@@ -448,6 +547,7 @@ def simulate_to_wav(machine: Any, plan: Any, rate_hz: float, path: str | os.Path
     s = _settings(plan, rate_hz, seed, duration_s, noise_db, resonance_hz, resonance_q,
                   resonance_gain_db, pulses_per_rev, missing_pulses, tacho_channel, chunk_s,
                   tacho_rise_s)
+    s = _machine_modes(machine, s, resonance_hz)
     side = sidecar_path(path)
     check_writable(path, force=force)
     check_writable(side, force=force)
@@ -455,7 +555,7 @@ def simulate_to_wav(machine: Any, plan: Any, rate_hz: float, path: str | os.Path
     if sample_format == "float32":
         vib_sens, tacho_sens = 1.0, 1.0
     else:
-        peak_gain = max(1.0, 10.0 ** (s.resonance_gain_db / 20.0)) * math.sqrt(2.0)
+        peak_gain = _peak_gain(machine, s) * math.sqrt(2.0)
         amplitudes = _Lines(machine, s.seed).amplitude
         bound = float(np.sum(amplitudes)) * peak_gain + 8.0 * s.noise_rms
         vib_sens = 1.0 / bound if bound > 0 else 1.0

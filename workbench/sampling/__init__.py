@@ -11,6 +11,9 @@ from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from
                                      plan_to_dict, read_plan, write_plan)
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
 from workbench.sampling.foldmap import COLLISION_COLUMNS, FoldMap, find_collisions, fold_map
+from workbench.sampling.resonance import (CROSSING_COLUMNS, PEAK_LOSS_LIMIT_DB, Crossing,
+                                          fastest_sweep_rpm_per_s, find_crossings,
+                                          passage_loss_db, passage_peak_ratio)
 from workbench.sampling.advisor import (STANDARD_RATES_HZ, Advice, AngleSettings, advise,
                                         angle_settings, min_rate_for)
 
@@ -44,4 +47,11 @@ __all__ = [
     "advise",
     "angle_settings",
     "min_rate_for",
+    "CROSSING_COLUMNS",
+    "PEAK_LOSS_LIMIT_DB",
+    "Crossing",
+    "fastest_sweep_rpm_per_s",
+    "find_crossings",
+    "passage_loss_db",
+    "passage_peak_ratio",
 ]

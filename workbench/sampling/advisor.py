@@ -111,6 +111,10 @@ class Advice:
         Plain-language remarks (why a rate was chosen or rejected).
     collisions : dict
         Collision table of each candidate rate (rate -> DataFrame).
+    crossings : pandas.DataFrame or None
+        Crossings of the machine's lines with its resonances and criticals inside the speed
+        profile (:func:`workbench.sampling.resonance.find_crossings`); None when the
+        machine has neither (or only lines were given).
     """
 
     candidates: pd.DataFrame
@@ -118,6 +122,7 @@ class Advice:
     resampling: AngleSettings
     notes: tuple
     collisions: dict
+    crossings: pd.DataFrame | None = None
 
     def to_dict(self) -> dict:
         """The JSON contract of ``foldline plan``."""
@@ -133,12 +138,19 @@ class Advice:
                     "captures_max_order": bool(row.captures_max_order),
                 }
             )
-        return {
+        out = {
             "candidates": cands,
             "recommended_rate_hz": self.recommended_rate_hz,
             "resampling": self.resampling.to_dict(),
             "notes": list(self.notes),
+            "crossings": [],
         }
+        if self.crossings is not None:
+            from workbench.sampling.resonance import Crossing
+
+            out["crossings"] = [Crossing(**row).to_dict()
+                                for row in self.crossings.to_dict("records")]
+        return out
 
 
 def _next_pow2(x: float) -> int:
@@ -348,13 +360,41 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
                 break
         else:
             notes.append("no candidate or standard rate is clean: change the filter, the bands or the threshold")
+    crossings = _crossings(machine, lines, plan, notes)
     return Advice(
         candidates=cand,
         recommended_rate_hz=recommended,
         resampling=settings,
         notes=tuple(notes),
         collisions=tables,
+        crossings=crossings,
     )
+
+
+def _crossings(machine, lines, plan, notes: list):
+    """Crossings of lines with the machine's resonances and criticals; warn on fast sweeps."""
+    resonances = tuple(getattr(machine, "resonances", ()))
+    criticals = tuple(getattr(machine, "criticals", ()))
+    if not (resonances or criticals):
+        return None
+    from workbench.sampling.resonance import PEAK_LOSS_LIMIT_DB, find_crossings
+
+    table = find_crossings(lines, plan.speed, resonances=resonances, criticals=criticals)
+    notes.append(f"{len(table)} crossing(s) of machine lines with {len(resonances)} "
+                 f"resonance(s) and {len(criticals)} critical(s) inside the speed profile")
+    fast = table[~table["sweep_ok"]]
+    if len(fast):
+        worst = fast.sort_values("peak_loss_db", ascending=False).iloc[0]
+        text = (f"{len(fast)} crossing(s) are swept too fast for the resonance peak to build "
+                f"up within {PEAK_LOSS_LIMIT_DB:g} dB (passage through resonance, Lewis 1932); "
+                f"worst: '{worst['line']}' through '{worst['resonance']}' at "
+                f"{worst['rpm']:.0f} rpm loses {worst['peak_loss_db']:.1f} dB at "
+                f"{worst['sweep_rpm_per_s']:.3g} rpm/s; sweep at most "
+                f"{worst['slowest_sweep_rpm_per_s']:.3g} rpm/s there (or dwell), within the "
+                "machine maker's limits")
+        notes.append(text)
+        warnings.warn(text, FoldlineWarning, stacklevel=3)
+    return table
 
 
 def _worst_folded_residual(lines, plan, fmap) -> float:

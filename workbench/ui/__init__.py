@@ -9,10 +9,13 @@ and whose ``widget`` is shown with ``panel.show()`` or by leaving the panel last
   lines, collisions and the recommended rate before and after.
 - :class:`AngleDomainPanel` -- a recorded run from tacho to order map, order cuts and order
   spectrum, with the predicted (direct and folded) lines overlaid and aliases identified.
+- :class:`CriticalsPanel` -- Bode and polar plots of chosen orders of a run and the critical
+  speeds they show (amplification factor, phase change, separation margin).
 """
 
 from workbench.ui.angle_panel import AngleDomainPanel
+from workbench.ui.criticals_panel import CriticalsPanel
 from workbench.ui.foldmap_panel import FoldMapPanel
 from workbench.ui.source_editor import SourceEditorPanel
 
-__all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel"]
+__all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel", "CriticalsPanel"]
