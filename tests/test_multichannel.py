@@ -241,20 +241,6 @@ def test_cli_one_channel_keeps_the_single_channel_json(run_file, capsys):
     assert "channels" not in d and d["channel"] == "acc 2" and "order_spectrum" in d
 
 
-def test_cli_out_writes_one_folder_per_channel(run_file, tmp_path, capsys):
-    out = tmp_path / "tracked"
-    assert main(["track", str(run_file), "--channel", "1,2", "--samples-per-rev", "32",
-                 "--revs-per-block", "8", "--out", str(out), "--json"]) == 0
-    d = json.loads(capsys.readouterr().out)
-    for name in ("acc_1", "acc_2"):
-        assert (out / name / "order_spectrum.csv").is_file()
-        assert (out / name / "rpm_frequency_map.png").is_file()   # written, so computed
-    assert all(str(out) in f for f in d["files"])
-    # Again without --force: refused before any work, one line.
-    assert main(["track", str(run_file), "--channel", "1,2", "--out", str(out), "--json"]) == 2
-    assert "exists" in capsys.readouterr().err
-
-
 def test_batch_has_one_row_per_run_and_channel(run_file, tmp_path):
     from workbench.batch import BatchSettings, run_batch
 
@@ -270,29 +256,3 @@ def test_batch_has_one_row_per_run_and_channel(run_file, tmp_path):
     # Resume: the same batch again skips the run (both channel rows kept once).
     again = run_batch([run_file], tmp_path / "b", settings=settings, workers=0)
     assert again.skipped == (str(run_file),) and len(again.summary) == 2
-
-
-def test_report_shows_each_channel(run_file, tmp_path):
-    from workbench.machine import machine_from_dict
-    from workbench.report import write_report
-    from workbench.sampling import plan_from_dict
-
-    m = tmp_path / "m.toml"
-    p = tmp_path / "p.toml"
-    from workbench.machine import write_machine
-    from workbench.sampling import write_plan
-
-    write_machine(machine_from_dict({"machine": {"name": "rig", "reference": "in"},
-                                     "shaft": [{"name": "in"}],
-                                     "order": [{"name": "two", "shaft": "in", "order": 2.0}]}), m)
-    write_plan(plan_from_dict({"speed": {"profile": "linear", "start_rpm": RPM0, "end_rpm": RPM1,
-                                         "duration_s": DURATION},
-                               "acquisition": {"rates_hz": [RATE], "filter": "none"}}), p)
-    rep = write_report(m, p, run_file, out=tmp_path / "r.html",
-                       track_options={"channels": (2, 5), "samples_per_rev": 32,
-                                      "revs_per_block": 8, "rf_map": False})
-    html = (tmp_path / "r.html").read_text()
-    assert 'id="channel-1"' in html and 'id="channel-2"' in html
-    assert "Channel acc 2 (m/s^2)" in html and "Channel acc 5 (m/s^2)" in html
-    assert html.count('data-figure="order-spectrum-ch') == 2
-    assert "order-spectrum" in rep.sections and "tacho" in rep.sections
