@@ -336,6 +336,20 @@ def _check_options(window, overlap, scaling):
     return overlap
 
 
+def _add_rows(power: np.ndarray, count: np.ndarray, idx: np.ndarray, amp: np.ndarray) -> None:
+    """power[idx[k]] += amp[k]**2 and count[idx[k]] += 1 for every row k (repeats summed):
+    ``np.add.at`` by sorted runs of equal bins (consecutive blocks mostly share a bin)."""
+    if len(idx) == 0:
+        return
+    order = np.argsort(idx, kind="stable")
+    idx = idx[order]
+    starts = np.flatnonzero(np.r_[True, idx[1:] != idx[:-1]])
+    sq = amp[order]
+    sq *= sq
+    power[idx[starts]] += np.add.reduceat(sq, starts, axis=0)
+    count[idx[starts]] += np.diff(np.r_[starts, len(idx)])
+
+
 class _Blocks:
     """Windowed, amplitude-corrected FFT of consecutive (overlapping) blocks of a stream."""
 
@@ -403,8 +417,7 @@ class _Blocks:
                 if bins is not None:
                     idx = bins[b0:b0 + _FRAMES_PER_BATCH]
                     ok = (idx >= 0) & (idx < len(self.bin_count))
-                    np.add.at(self.bin_power, idx[ok], amp[ok] ** 2)
-                    np.add.at(self.bin_count, idx[ok], 1)
+                    _add_rows(self.bin_power, self.bin_count, idx[ok], amp[ok])
                 elif self.keep_rows:
                     self.rows.append(amp)
             self.centres.append(centres)
