@@ -977,30 +977,37 @@ def _prominent_peaks(x: np.ndarray, min_prominence: float) -> tuple[np.ndarray, 
     if len(peaks) == 0:
         return peaks, np.empty(0)
     n = len(x)
-    # Nearest strictly higher sample on each side of every peak: a monotonic stack.
-    prev_higher = np.full(n, -1, dtype=np.intp)
-    next_higher = np.full(n, n, dtype=np.intp)
-    stack: list[int] = []
-    xl = x.tolist()
-    for i, v in enumerate(xl):
-        while stack and xl[stack[-1]] <= v:
-            stack.pop()
-        if stack:
-            prev_higher[i] = stack[-1]
-        stack.append(i)
-    stack = []
-    for i in range(n - 1, -1, -1):
-        v = xl[i]
-        while stack and xl[stack[-1]] <= v:
-            stack.pop()
-        if stack:
-            next_higher[i] = stack[-1]
-        stack.append(i)
-    prom = np.empty(len(peaks))
-    for j, p in enumerate(peaks.tolist()):
-        left_min = x[prev_higher[p] + 1:p + 1].min()
-        right_min = x[p:next_higher[p]].min()
-        prom[j] = xl[p] - max(left_min, right_min)
+    # Range maxima and minima by sparse tables (level j: over 2**j samples), so the nearest
+    # strictly higher sample on each side of every peak is found by a binary descent done for
+    # all peaks at once, and the lowest sample in between by one range-minimum lookup.
+    mx, mn = [x], [x]
+    while (1 << len(mx)) <= n:
+        h = 1 << (len(mx) - 1)
+        mx.append(np.maximum(mx[-1][:-h], mx[-1][h:]))
+        mn.append(np.minimum(mn[-1][:-h], mn[-1][h:]))
+    height = x[peaks]
+    left = peaks.copy()            # samples [left, peak) hold nothing above the peak
+    right = peaks + 1              # samples (peak, right) hold nothing above the peak
+    for j in range(len(mx) - 1, -1, -1):
+        h = 1 << j
+        ok = left - h >= 0
+        ok[ok] = mx[j][left[ok] - h] <= height[ok]
+        left[ok] -= h
+        ok = right + h <= n
+        ok[ok] = mx[j][right[ok]] <= height[ok]
+        right[ok] += h
+
+    def range_min(lo, hi):         # min of x[lo:hi], hi > lo
+        k = np.floor(np.log2(hi - lo)).astype(np.intp)
+        out = np.empty(len(lo))
+        for j in np.unique(k):
+            sel = k == j
+            out[sel] = np.minimum(mn[j][lo[sel]], mn[j][hi[sel] - (1 << j)])
+        return out
+
+    left_min = range_min(left, peaks + 1)
+    right_min = range_min(peaks, right)
+    prom = height - np.maximum(left_min, right_min)
     keep = prom >= min_prominence
     return peaks[keep], prom[keep]
 

@@ -574,14 +574,29 @@ def track_channels(
     accs = [OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True,
                           rpm_bins=_map_bins(angle, 2.0 * angle.revolutions / rpb))
             for _ in names]
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        for pieces in iter_order_track_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
-                                                protect=protect, threads=threads):
-            for acc, piece in zip(accs, pieces):
-                acc.feed(piece)
-        spectra = [acc.spectrum() for acc in accs]
-        omaps = [acc.order_map() for acc in accs]
+    # Several channels on several threads: each channel's spectra are fed on the pool (in
+    # order, one task per channel and piece), while the tracker's own pool works ahead.
+    pool = None
+    if threads > 1 and len(accs) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="foldline-spectra")
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", FoldlineWarning)
+            for pieces in iter_order_track_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
+                                                    protect=protect, threads=threads):
+                if pool is None:
+                    for acc, piece in zip(accs, pieces):
+                        acc.feed(piece)
+                else:
+                    for f in [pool.submit(acc.feed, piece) for acc, piece in zip(accs, pieces)]:
+                        f.result()
+            spectra = [acc.spectrum() for acc in accs]
+            omaps = [acc.order_map() for acc in accs]
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=True)
     track_warnings = [f"warning: {w.message}" for w in caught]
     mach = _machine_for(run, machine)
     lines = () if mach is None else tuple(mach.lines())
