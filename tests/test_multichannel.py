@@ -113,8 +113,11 @@ def test_tracker_on_a_2d_chunk_stream_equals_one_channel_at_a_time():
         alone = order_track(x[r], RATE, angle, samples_per_rev=32)
         joined = np.concatenate([p[r].data for p in pieces])
         assert np.array_equal(joined, alone.data)
-    # Check against the analytic angle-domain signal (order 3, amplitude 1) away from the ends.
+    # One channel on a thread pool: the serial result exactly.
     sig = order_track(x[0], RATE, angle, samples_per_rev=32)
+    assert np.array_equal(order_track(x[0], RATE, angle, samples_per_rev=32, threads=3).data,
+                          sig.data)
+    # Check against the analytic angle-domain signal (order 3, amplitude 1) away from the ends.
     inner = slice(200, -200)
     assert np.max(np.abs(sig.data[inner] - np.cos(2 * np.pi * 3 * sig.revs[inner]))) < 1e-4
 

@@ -676,9 +676,14 @@ class OrderTracker:
             callable returning one
             The channel (or channels: pieces are then tuples, one signal per channel).
         """
-        for chunk in _chunks_any(x):
-            yield from self.feed(chunk)
-        yield from self.finish()
+        try:
+            for chunk in _chunks_any(x):
+                yield from self.feed(chunk)
+            yield from self.finish()
+        finally:    # also when the consumer stops early: no thread left waiting
+            if self._pool is not None:
+                self._pool.shutdown(wait=False, cancel_futures=True)
+                self._pool = None
         if self._n_out == 0:
             raise InputError(
                 f"the record (0 to {self._n_in / self.rate_hz:g} s) and the shaft angle "
