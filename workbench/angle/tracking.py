@@ -233,7 +233,7 @@ def kaiser_lowpass(n_taps: int, cutoff_hz: float, rate_hz: float, beta: float) -
     return h / h.sum()
 
 
-#: Coefficients of the closed-form quintic B-spline weights (Thevenaz, Blu and Unser 2000).
+# The quintic B-spline weights in closed form (Thevenaz, Blu and Unser 2000), single pass.
 def _quintic_weights(u: np.ndarray) -> tuple[np.ndarray, ...]:
     """Weights of samples i-2 .. i+3 for the quintic B-spline at ``i + u``, 0 <= u < 1."""
     w = u.copy()
