@@ -17,6 +17,10 @@ be shared, so the best run is the one least disturbed by others):
     Target: at least 600 x real time.  Peak memory (tracemalloc, a separate process) at most
     4 x the channel's float64 size per channel tracked at once (here one, then eight).
 
+(d) Start-up: ``foldline --help`` and ``foldline alias`` timed as whole commands (best and
+    median of 15, like hyperfine), beside ``python -c "import numpy"`` as the floor.
+    Targets: under 0.3 s and under 0.5 s.
+
 A profile (cProfile, top entries by own time) of (c) and of the command in (a) says what is
 left.  Run: ``python bench/bench_channels.py`` (or from ``bench/run_all.py``).
 """
@@ -270,9 +274,26 @@ def _command_profile(path: Path) -> str:
         return s.getvalue()
 
 
+def bench_startup(n: int = 15) -> dict:
+    """(d): repeated whole-command timing of the light verbs (best and median of n)."""
+    import statistics
+
+    env = _env()
+    cmds = {"help": [sys.executable, "-m", "workbench", "--help"],
+            "alias": [sys.executable, "-m", "workbench", "alias", "5000", "9000", "14000",
+                      "--rate", "12800", "--json"],
+            "python -c 'import numpy'": [sys.executable, "-c", "import numpy"]}
+    out = {}
+    for name, cmd in cmds.items():
+        ts = [_timed(cmd, env)[0] for _ in range(n)]
+        out[name] = {"best_s": min(ts), "median_s": statistics.median(ts)}
+    return out
+
+
 def main() -> dict:
     cores = os.cpu_count() or 1
     res: dict = {"cores": cores}
+    res["d"] = bench_startup()
     with tempfile.TemporaryDirectory(prefix="foldline-bench-") as tmp:
         long_path = Path(tmp) / "runup_10min.wav"
         multi_path = Path(tmp) / "bench_8ch.wav"
@@ -306,6 +327,8 @@ def main() -> dict:
         "(c) >= 600 x real time": res["c"]["realtime"] >= 600.0,
         "(c) peak memory <= 4 x channel": res["c"]["peak_ratio"] <= 4.0,
         "(b) peak memory <= 4 x channel, per channel": res["b"]["peak_ratio_per_channel"] <= 4.0,
+        "(d) --help < 0.3 s": res["d"]["help"]["best_s"] < 0.3,
+        "(d) alias < 0.5 s": res["d"]["alias"]["best_s"] < 0.5,
     }
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"machine: {cores} cores, load average {load:.1f} at the end (shared machine: best of "
@@ -325,6 +348,8 @@ def main() -> dict:
           f"{cores} threads ({c['realtime']:.0f} x real time, speed-up "
           f"{c['thread_speedup']:.2f}); peak memory {c['peak_ratio']:.2f} x the channel "
           f"(target <= 4)")
+    print("(d) start-up, best / median of 15: " + "; ".join(
+        f"{k} {v['best_s']:.3f} / {v['median_s']:.3f} s" for k, v in res["d"].items()))
     print("targets: " + ", ".join(f"{k}: {'yes' if v else 'NO'}"
                                   for k, v in res["targets_met"].items()))
     print("\nprofile of (c), top entries by own time:\n" + res["profile"])
