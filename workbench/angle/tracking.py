@@ -528,12 +528,20 @@ class OrderTracker:
     def _gather(self, s0: int, n: int, nfft: int) -> np.ndarray:
         """Samples [s0, s0 + n) in an FFT buffer of nfft (channels x nfft), zero elsewhere (and
         outside the record), whatever chunks they arrived in."""
-        out = np.zeros((self._rows or 1, nfft), dtype=np.float32)
+        out = np.empty((self._rows or 1, nfft), dtype=np.float32)
+        filled = []
         for start, arr in self._bufs:
             lo = max(s0, start)
             hi = min(s0 + n, start + arr.shape[-1])
             if hi > lo:
                 out[:, lo - s0:hi - s0] = arr[..., lo - start:hi - start]
+                filled.append((lo - s0, hi - s0))
+        end = 0                         # zero what no chunk filled
+        for a, b in sorted(filled):
+            if a > end:
+                out[:, end:a] = 0.0
+            end = max(end, b)
+        out[:, end:] = 0.0
         return out
 
     def _discard_before(self, s: int) -> None:

@@ -564,7 +564,8 @@ def track_channels(
 
     def chunks():
         done = 0
-        for piece in run.iter_chunks_many(names, chunk):
+        # Single precision: the tracker filters in single precision (rounding -140 dB).
+        for piece in run.iter_chunks_many(names, chunk, dtype=np.float32):
             done += piece.shape[-1]
             yield piece
             if progress is not None:

@@ -357,7 +357,8 @@ class Run:
 
 
 
-    def iter_chunks_many(self, chs, chunk_samples: int) -> Iterator[np.ndarray]:
+    def iter_chunks_many(self, chs, chunk_samples: int, *, dtype=np.float64
+                         ) -> Iterator[np.ndarray]:
         """Stream several channels in physical units, chunk by chunk, in one pass over the file.
 
         Parameters
@@ -366,12 +367,16 @@ class Run:
             1-based indices or names (see :meth:`channel_index`).
         chunk_samples : int
             Samples per chunk, >= 1.  The last chunk may be shorter.
+        dtype : numpy dtype
+            float64 (default) or float32 (half the memory and conversion work, for a consumer
+            that works in single precision anyway, such as the order tracker's FFTs).
 
         Yields
         ------
-        ndarray of float64, shape (len(chs), <= chunk_samples)
-            A new array per chunk; row ``r`` equals the chunk :meth:`iter_chunks` gives for
-            ``chs[r]`` (same arithmetic), read together from the file.
+        ndarray of ``dtype``, shape (len(chs), <= chunk_samples)
+            A new array per chunk; with float64, row ``r`` equals the chunk
+            :meth:`iter_chunks` gives for ``chs[r]`` (same arithmetic), read together from the
+            file.
         """
         rows = [self.channel_index(c) for c in chs]
         if not rows:
@@ -380,11 +385,11 @@ class Run:
             raise InputError(f"chunk_samples {chunk_samples!r} is not valid; allowed: an integer "
                              ">= 1")
         fs = full_scale(self.data.dtype)
-        scale = np.array([1.0 / (fs * self.channels[i].sensitivity) for i in rows])
+        scale = np.array([1.0 / (fs * self.channels[i].sensitivity) for i in rows]).astype(dtype)
         n = self.n_samples
         for start in range(0, n, chunk_samples):
             stop = min(start + chunk_samples, n)
-            out = np.array(self.data[rows, start:stop], dtype=np.float64)
+            out = np.array(self.data[rows, start:stop], dtype=dtype)
             for r, sc in enumerate(scale):
                 if sc != 1.0:
                     out[r] *= sc
