@@ -5,7 +5,7 @@ from __future__ import annotations
 from workbench.errors import InputError
 
 __all__ = ["add_track_options", "track_options_from_args", "parse_orders", "parse_channels",
-           "parse_threads"]
+           "parse_threads", "option_name", "OPTION_NAMES"]
 
 
 def parse_orders(text: str, name: str) -> tuple:
@@ -53,6 +53,16 @@ def add_track_options(p) -> None:
     g.add_argument("--threads", metavar="N",
                    help="threads tracking each run (default: the machine's cores; batch: 1 per "
                         "worker)")
+
+
+#: Command-line option of each ``track_options_from_args`` key whose name differs from it.
+OPTION_NAMES = {"channels": "--channel", "rate_hz": "--rate", "envelope_hz": "--envelope",
+                "cut_bandwidth_orders": "--cut-bandwidth"}
+
+
+def option_name(key: str) -> str:
+    """The command-line option a ``track_options_from_args`` key came from."""
+    return OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
 
 
 def track_options_from_args(args) -> dict:
