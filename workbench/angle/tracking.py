@@ -347,6 +347,11 @@ class OrderTracker:
     max_order : float, optional
         Highest order that must pass unattenuated (the passband edge); 0 < max_order <
         0.95 x order Nyquist.  Default 0.8 x order Nyquist (``samples_per_rev / 2.5``).
+    threads : int or None
+        Threads filtering and interpolating consecutive blocks (default 1: in the caller's
+        thread; None: the machine's cores).  Up to ``threads`` blocks are in flight, so
+        :meth:`feed` may return a piece one or two calls later; the pieces and their values
+        do not depend on it.
 
     Notes
     -----
