@@ -10,8 +10,8 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE))
 sys.path.insert(0, str(HERE.parent))
 
-BENCHMARKS = ["bench_foldmap", "bench_tracking", "bench_ui", "bench_memory", "bench_batch",
-              "bench_vold_kalman", "bench_speed", "bench_criticals"]
+BENCHMARKS = ["bench_foldmap", "bench_tracking", "bench_channels", "bench_ui", "bench_memory",
+              "bench_batch", "bench_vold_kalman", "bench_speed", "bench_criticals"]
 
 
 def main(argv=None) -> int:

@@ -350,5 +350,5 @@ def test_track_options_from_args_maps_names():
     opts = track_options_from_args(p.parse_args(
         ["--channel", "2", "--tacho", "tacho", "--rpm", "1500", "--envelope", "400,1000",
          "--cut-orders", "1,29", "--samples-per-rev", "128"]))
-    assert opts == {"channel": 2, "tacho": "tacho", "rpm": 1500.0, "envelope_hz": (400.0, 1000.0),
+    assert opts == {"channels": (2,), "tacho": "tacho", "rpm": 1500.0, "envelope_hz": (400.0, 1000.0),
                     "cut_orders": (1.0, 29.0), "samples_per_rev": 128}

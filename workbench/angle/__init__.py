@@ -20,12 +20,35 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
 from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
                                    detect_pulses, tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
-from workbench.angle.vold_kalman import (OrderExtraction, extract_orders, vk_bandwidth_hz,
-                                         vk_response, vk_weighting)
-from workbench.angle.vibration_speed import (SpeedEstimate, speed_from_channel,
-                                             speed_from_vibration)
-from workbench.angle.order_tracks import (CriticalSearch, CriticalSpeed, OrderTrack, RejectedPeak,
-                                          find_criticals, find_track_criticals, order_tracks)
+import importlib
+
+# Order extraction, the speed from the vibration and order tracks with phase are imported on
+# first use (PEP 562): they need scipy.signal and scipy.ndimage, which the tracking path does
+# not.
+_LAZY = {
+    "workbench.angle.vold_kalman": ("OrderExtraction", "extract_orders", "vk_bandwidth_hz",
+                                    "vk_response", "vk_weighting"),
+    "workbench.angle.vibration_speed": ("SpeedEstimate", "speed_from_channel",
+                                        "speed_from_vibration"),
+    "workbench.angle.order_tracks": ("CriticalSearch", "CriticalSpeed", "OrderTrack",
+                                     "RejectedPeak", "find_criticals", "find_track_criticals",
+                                     "order_tracks"),
+}
+_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
+
+
+def __getattr__(name):
+    mod = _HOME.get(name)
+    if mod is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(mod), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_HOME))
+
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
@@ -35,4 +58,6 @@ __all__ = [
     "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks",
     "OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",
     "SpeedEstimate", "speed_from_vibration", "speed_from_channel",
+    "CriticalSearch", "CriticalSpeed", "OrderTrack", "RejectedPeak", "find_criticals",
+    "find_track_criticals", "order_tracks",
 ]

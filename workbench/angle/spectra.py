@@ -30,7 +30,6 @@ from numbers import Integral
 import numpy as np
 import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
-from scipy.signal import butter, find_peaks, get_window, hilbert, sosfiltfilt
 
 from workbench.angle._common import finite_real, iter_chunks, one_d, positive_int, positive_rate
 from workbench.angle.tacho import ShaftAngle
@@ -84,8 +83,22 @@ class WindowGains:
         return 1.0 / self.coherent_gain
 
 
+def _hann_periodic(n: int) -> np.ndarray:
+    """Periodic (DFT-even) Hann window of n samples, computed as scipy.signal.get_window("hann",
+    n) does (a cosine sum on n + 1 points, the last dropped), without importing scipy.signal."""
+    fac = np.linspace(-np.pi, np.pi, n + 1)
+    w = np.zeros(n + 1)
+    w += 0.5 * np.cos(0.0 * fac)
+    w += 0.5 * np.cos(1.0 * fac)
+    return w[:-1]
+
+
 def _window(window, n: int) -> np.ndarray:
+    if isinstance(window, str) and window in ("hann", "hanning") and n >= 2:
+        return _hann_periodic(n)        # the default: no scipy.signal import (a second)
     try:
+        from scipy.signal import get_window
+
         w = get_window(window, n, fftbins=True)
     except (ValueError, TypeError) as exc:
         raise InputError(f"window {window!r} is not valid ({exc}); allowed: a window name or "
@@ -323,6 +336,20 @@ def _check_options(window, overlap, scaling):
     return overlap
 
 
+def _add_rows(power: np.ndarray, count: np.ndarray, idx: np.ndarray, amp: np.ndarray) -> None:
+    """power[idx[k]] += amp[k]**2 and count[idx[k]] += 1 for every row k (repeats summed):
+    ``np.add.at`` by sorted runs of equal bins (consecutive blocks mostly share a bin)."""
+    if len(idx) == 0:
+        return
+    order = np.argsort(idx, kind="stable")
+    idx = idx[order]
+    starts = np.flatnonzero(np.r_[True, idx[1:] != idx[:-1]])
+    sq = amp[order]
+    sq *= sq
+    power[idx[starts]] += np.add.reduceat(sq, starts, axis=0)
+    count[idx[starts]] += np.diff(np.r_[starts, len(idx)])
+
+
 class _Blocks:
     """Windowed, amplitude-corrected FFT of consecutive (overlapping) blocks of a stream."""
 
@@ -390,8 +417,7 @@ class _Blocks:
                 if bins is not None:
                     idx = bins[b0:b0 + _FRAMES_PER_BATCH]
                     ok = (idx >= 0) & (idx < len(self.bin_count))
-                    np.add.at(self.bin_power, idx[ok], amp[ok] ** 2)
-                    np.add.at(self.bin_count, idx[ok], 1)
+                    _add_rows(self.bin_power, self.bin_count, idx[ok], amp[ok])
                 elif self.keep_rows:
                     self.rows.append(amp)
             self.centres.append(centres)
@@ -846,6 +872,8 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     filter_order = positive_int(filter_order, "filter_order")
     if len(xa) < 64:
         raise InputError(f"x has {len(xa)} samples; allowed: at least 64")
+    from scipy.signal import butter, hilbert, sosfiltfilt   # only on request: a second to import
+
     sos = butter(filter_order, (lo, hi), btype="bandpass", fs=rate_hz, output="sos")
     band = sosfiltfilt(sos, xa)
     env = np.abs(hilbert(band, sfft.next_fast_len(len(band)))[:len(band)])
@@ -932,6 +960,69 @@ def rpm_frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 40
                            blocks.enbw)
 
 
+def _prominent_peaks(x: np.ndarray, min_prominence: float) -> tuple[np.ndarray, np.ndarray]:
+    """Local maxima of ``x`` and their topographic prominence, those of at least
+    ``min_prominence``; the definitions of ``scipy.signal.find_peaks(x, prominence=...)``
+    (a flat top counts once, at its middle sample, rounded down; the first and last samples
+    are never peaks), in numpy, without importing scipy.signal (and with it scipy.stats).
+
+    The prominence of a peak is its height above the higher of the two lowest points between
+    it and the nearest strictly higher sample on each side (or the record's end).
+
+    References
+    ----------
+    .. [1] P. Virtanen et al., "SciPy 1.0: fundamental algorithms for scientific computing in
+       Python", Nature Methods 17:261-272, 2020 (``scipy.signal.peak_prominences``).
+    """
+    x = np.asarray(x, dtype=np.float64)
+    d = np.diff(x)
+    nz = np.flatnonzero(d)
+    if len(nz) < 2:
+        return np.empty(0, dtype=np.intp), np.empty(0)
+    rise = d[nz[:-1]] > 0
+    fall = d[nz[1:]] < 0
+    k = np.flatnonzero(rise & fall)
+    left_edge = nz[k] + 1          # first sample of the (possibly flat) top
+    right_edge = nz[k + 1]         # last sample of it
+    peaks = (left_edge + right_edge) // 2
+    if len(peaks) == 0:
+        return peaks, np.empty(0)
+    n = len(x)
+    # Range maxima and minima by sparse tables (level j: over 2**j samples), so the nearest
+    # strictly higher sample on each side of every peak is found by a binary descent done for
+    # all peaks at once, and the lowest sample in between by one range-minimum lookup.
+    mx, mn = [x], [x]
+    while (1 << len(mx)) <= n:
+        h = 1 << (len(mx) - 1)
+        mx.append(np.maximum(mx[-1][:-h], mx[-1][h:]))
+        mn.append(np.minimum(mn[-1][:-h], mn[-1][h:]))
+    height = x[peaks]
+    left = peaks.copy()            # samples [left, peak) hold nothing above the peak
+    right = peaks + 1              # samples (peak, right) hold nothing above the peak
+    for j in range(len(mx) - 1, -1, -1):
+        h = 1 << j
+        ok = left - h >= 0
+        ok[ok] = mx[j][left[ok] - h] <= height[ok]
+        left[ok] -= h
+        ok = right + h <= n
+        ok[ok] = mx[j][right[ok]] <= height[ok]
+        right[ok] += h
+
+    def range_min(lo, hi):         # min of x[lo:hi], hi > lo
+        k = np.floor(np.log2(hi - lo)).astype(np.intp)
+        out = np.empty(len(lo))
+        for j in np.unique(k):
+            sel = k == j
+            out[sel] = np.minimum(mn[j][lo[sel]], mn[j][hi[sel] - (1 << j)])
+        return out
+
+    left_min = range_min(left, peaks + 1)
+    right_min = range_min(peaks, right)
+    prom = height - np.maximum(left_min, right_min)
+    keep = prom >= min_prominence
+    return peaks[keep], prom[keep]
+
+
 def find_order_peaks(spectrum: OrderSpectrum, *, n: int = 10, min_prominence_db: float = 6.0,
                      order_range: tuple[float, float] | None = None) -> OrderPeaks:
     """Strongest peaks of an order spectrum, refined between bins.
@@ -942,7 +1033,8 @@ def find_order_peaks(spectrum: OrderSpectrum, *, n: int = 10, min_prominence_db:
     n : int
         Most peaks returned (strongest first).
     min_prominence_db : float
-        Least prominence (dB above the surrounding floor, :func:`scipy.signal.find_peaks`).
+        Least prominence (dB above the surrounding floor, as :func:`scipy.signal.find_peaks`
+        defines it; computed here in numpy).
     order_range : (float, float), optional
         Search only between these orders.
 
@@ -988,11 +1080,10 @@ def find_order_peaks(spectrum: OrderSpectrum, *, n: int = 10, min_prominence_db:
     floor = np.finfo(np.float64).tiny
     db = 20 * np.log10(np.maximum(amp, floor))
     seg = db[lo_i:hi_i]
-    idx, props = find_peaks(seg, prominence=min_prominence_db)
+    idx, prom = _prominent_peaks(seg, min_prominence_db)
     if len(idx) == 0:
         return OrderPeaks(np.empty(0), np.empty(0), np.empty(0))
     idx = idx + lo_i
-    prom = props["prominences"]
     a, b, c = db[idx - 1], db[idx], db[idx + 1]
     den = a - 2 * b + c
     with np.errstate(divide="ignore", invalid="ignore"):

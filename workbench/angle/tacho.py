@@ -23,8 +23,6 @@ from typing import Any
 
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
-from scipy import ndimage
-from scipy.interpolate import CubicSpline, make_interp_spline
 from scipy.linalg import solveh_banded
 
 from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
@@ -428,6 +426,8 @@ def _quadratic_pieces(t: np.ndarray, r: np.ndarray) -> np.ndarray:
 def _fit_pieces(t: np.ndarray, r: np.ndarray, method: str) -> np.ndarray:
     """Polynomial pieces (4, n - 1), ascending powers of (t - t_j), of the angle fit."""
     if method == "spline" and len(t) > 2:
+        from scipy.interpolate import CubicSpline   # imported here: it costs ~0.5 s to load
+
         return CubicSpline(t, r, bc_type="not-a-knot").c[::-1].copy()
     return _quadratic_pieces(t, r)
 
@@ -1096,6 +1096,8 @@ def _interpolant_speed_gain() -> float:
     Exact (the spline is linear in the data): the slope at a point is a weighted sum of the
     data, its variance the sum of the squared weights; averaged over an interior interval.
     """
+    from scipy.interpolate import CubicSpline
+
     n = 41
     x = np.arange(n, dtype=np.float64)
     spline = CubicSpline(x, np.eye(n), bc_type="not-a-knot")
@@ -1208,6 +1210,8 @@ def _speed_noise(counts: np.ndarray, z_noise: np.ndarray, pitch_s: np.ndarray
     x = np.empty(2 * len(c) - 1)
     x[0::2] = c
     x[1::2] = 0.5 * (c[1:] + c[:-1])
+    from scipy.interpolate import make_interp_spline
+
     # The not-a-knot cubic interpolating spline (as CubicSpline), in B-spline form: faster.
     slope = make_interp_spline(c, z_noise, k=3)(x, nu=1)
     rel = slope / np.interp(x, c, pitch_s)[:, None]
@@ -1603,7 +1607,7 @@ def _local_pitch(dt: np.ndarray) -> np.ndarray:
     pad = w // 2
     ext = np.pad(dt, pad, mode="reflect", reflect_type="odd")
     ext = np.maximum(ext, 0.5 * float(np.min(dt)))
-    return ndimage.median_filter(ext, size=w, mode="nearest")[pad:-pad]
+    return np.partition(sliding_window_view(ext, w), pad, axis=1)[:, pad]
 
 
 def _remove_extra_pulses(t: np.ndarray, tol: float) -> tuple[np.ndarray, list, list]:

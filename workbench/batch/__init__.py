@@ -10,10 +10,30 @@ Typical use::
     result.summary        # one row per run: levels per band, top orders, aliases, status
 """
 
-from workbench.batch.core import (BASE_COLUMNS, LEVEL_PREFIX, SUMMARY_NAME, TAIL_COLUMNS,
-                                  BatchResult, BatchSettings, process_run, read_summary,
-                                  run_batch)
-from workbench.batch.levels import band_level_series, band_levels
+import importlib
+
+# Imported on first use (PEP 562): registering the ``batch`` verb must not import pandas.
+_LAZY = {
+    "workbench.batch.core": ("BASE_COLUMNS", "LEVEL_PREFIX", "SUMMARY_NAME", "TAIL_COLUMNS",
+                             "BatchResult", "BatchSettings", "process_run", "read_summary",
+                             "run_batch"),
+    "workbench.batch.levels": ("band_level_series", "band_levels"),
+}
+_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
+
+
+def __getattr__(name):
+    mod = _HOME.get(name)
+    if mod is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(mod), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_HOME))
+
 
 __all__ = ["BatchSettings", "BatchResult", "process_run", "run_batch", "read_summary",
            "band_levels", "band_level_series", "BASE_COLUMNS", "TAIL_COLUMNS", "LEVEL_PREFIX",

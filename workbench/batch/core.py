@@ -1,8 +1,9 @@
 """Track many runs with the same settings, serially or on a Dask cluster.
 
-Each run is one task: the worker gets the run's *path* (never its samples), reads it, tracks it
-with :func:`workbench.runs.analysis.track_run`, writes the order spectrum and the order cuts as
-CSV files into the output folder, and returns one summary row.  The client collects the rows
+Each run is one task: the worker gets the run's *path* (never its samples), reads it, tracks
+its channels (one or several, against one speed) with
+:func:`workbench.runs.analysis.track_channels`, writes each channel's order spectrum and order
+cuts as CSV files into the output folder, and returns one summary row per channel.  The client collects the rows
 into ``summary.parquet`` and ``summary.csv`` (written under temporary names and renamed into
 place, again every few seconds while the batch runs, so an interrupted batch keeps what it
 finished).
@@ -50,8 +51,8 @@ SUMMARY_NAME = "summary"
 #: Column-name prefix of the per-band levels: ``"level: <band name>"``.
 LEVEL_PREFIX = "level: "
 #: Summary columns before the band levels, then :data:`TAIL_COLUMNS` after them.
-BASE_COLUMNS = ("file", "sha256", "sidecar_sha256", "settings", "status", "error", "rpm_min",
-                "rpm_max", "duration_s", "revolutions")
+BASE_COLUMNS = ("file", "channel", "sha256", "sidecar_sha256", "settings", "status", "error",
+                "rpm_min", "rpm_max", "duration_s", "revolutions")
 TAIL_COLUMNS = ("top_orders", "aliases", "alias_lines", "warnings", "spectrum_csv", "cuts_csv",
                 "seconds")
 _WRITE_EVERY_S = 5.0
@@ -71,9 +72,11 @@ class BatchSettings:
     Attributes
     ----------
     track : tuple of (str, value)
-        Keyword options of :func:`~workbench.runs.analysis.track_run` (``channel``, ``tacho``,
-        ``rpm``, ``samples_per_rev``, ...), as sorted pairs so the settings are hashable.
-        The rpm-frequency map is not computed (``rf_map=False``) unless asked for here.
+        Keyword options of :func:`~workbench.runs.analysis.track_channels` (``channels``:
+        one or several channels or ``"all"``; ``tacho``, ``rpm``, ``samples_per_rev``,
+        ``threads`` (default 1 per worker), ...), as sorted pairs so the settings are
+        hashable.  The rpm-frequency map is not computed (``rf_map=False``) unless asked for
+        here.
     machine_path, plan_path : str or None
         Machine file (predicted lines, alias identification) and plan file (bands whose level
         is reported).  Read by each worker; must be readable there.
@@ -94,6 +97,9 @@ class BatchSettings:
     def make(cls, *, track=None, machine_path=None, plan_path=None, cut_orders=(), n_top=5):
         """Build settings from a mapping of ``track_run`` options; checks the files exist."""
         opts = dict(track or {})
+        if "channel" in opts:               # one channel, as track_run names it
+            one = opts.pop("channel")
+            opts.setdefault("channels", None if one is None else (one,))
         for bad in ("machine", "cut_orders", "progress"):
             if bad in opts:
                 raise InputError(f"track option {bad!r}: give it as a batch setting, not a "
@@ -133,14 +139,20 @@ class BatchSettings:
 
     @property
     def track_options(self) -> dict:
-        """The ``track_run`` options as a dict."""
-        return dict(self.track)
+        """The ``track_channels`` options as a dict (``threads`` not included: it does not
+        change a result, see :attr:`threads`)."""
+        return {k: v for k, v in self.track if k != "threads"}
+
+    @property
+    def threads(self) -> int:
+        """Threads each run is tracked with (default 1: the workers already share the cores)."""
+        return int(dict(self.track).get("threads") or 1)
 
     @property
     def fingerprint(self) -> str:
         """Short hash of everything that changes a run's results (options and input files)."""
         doc = {
-            "track": [[k, v] for k, v in self.track],
+            "track": [[k, v] for k, v in self.track if k != "threads"],
             "cut_orders": list(self.cut_orders),
             "n_top": self.n_top,
             "files": [list(h) for h in self._file_hashes],
@@ -171,8 +183,13 @@ def _plan(path: str, sha: str):
     return read_plan(path)
 
 
-def _output_names(path: Path, sha256: str, out_dir: Path) -> tuple[Path, Path]:
+def _output_names(path: Path, sha256: str, out_dir: Path, channel: str | None = None
+                  ) -> tuple[Path, Path]:
+    import re
+
     tag = f"{path.stem}_{sha256[:8]}"
+    if channel is not None:   # several channels per run: the channel's name in each file's name
+        tag += "_" + (re.sub(r"[^A-Za-z0-9._-]", "_", channel) or "channel")
     return out_dir / f"{tag}_spectrum.csv", out_dir / f"{tag}_cuts.csv"
 
 
@@ -190,13 +207,14 @@ def _write_csv(frame: pd.DataFrame, path: Path) -> None:
         frame.to_csv(tmp, index=False)
 
 
-def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> dict:
-    """Track one run and write its spectrum and cuts; return its summary row.
+def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> list:
+    """Track one run (every channel the settings ask for) and write each channel's spectrum
+    and cuts; return the summary rows, one per channel.
 
     This is the function each Dask task runs (and the serial mode calls).  It hashes the run
     first (on the worker, so hashing is spread over the cluster too) and returns at once when
-    the run is among ``skip``.  It never raises for a bad run: the row then has status
-    ``"error"`` and the message.
+    the run is among ``skip``.  It never raises for a bad run: the (single) row then has
+    status ``"error"`` and the message.
 
     Parameters
     ----------
@@ -205,23 +223,25 @@ def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> 
     settings : BatchSettings
     out_dir : str or Path
         Folder for ``<stem>_<sha8>_spectrum.csv`` (columns ``order, amplitude``) and
-        ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``).
+        ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``); with
+        several channels ``<stem>_<sha8>_<channel>_spectrum.csv`` and ``..._cuts.csv``.
     skip : set of (str, str, str)
         Keys ``(sha256, sidecar_sha256, settings fingerprint)`` of runs already done; such a
-        run gets status ``"skipped"`` and is not tracked.
+        run gets one row with status ``"skipped"`` and is not tracked.
 
     Returns
     -------
-    dict
-        One summary row: :data:`BASE_COLUMNS`, ``level: <band>`` per plan band,
-        :data:`TAIL_COLUMNS`.
+    list of dict
+        Summary rows: :data:`BASE_COLUMNS`, ``level: <band>`` per plan band,
+        :data:`TAIL_COLUMNS`; one per channel tracked.
     """
     t0 = time.perf_counter()
     path = Path(path)
     out_dir = Path(out_dir)
-    row = {"file": str(path), "sha256": "", "sidecar_sha256": "", "settings": settings.fingerprint,
-           "status": "error", "error": ""}
+    row = {"file": str(path), "channel": "", "sha256": "", "sidecar_sha256": "",
+           "settings": settings.fingerprint, "status": "error", "error": ""}
     caught = []
+    rows = [row]
     try:
         try:
             row["sha256"] = file_sha256(path)
@@ -230,51 +250,66 @@ def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> 
         row["sidecar_sha256"] = _sidecar_sha(path)
         if _key(row) in skip:
             row["status"] = "skipped"
-            return row
+            return rows
         hashes = dict(settings._file_hashes)
         machine = None if settings.machine_path is None else _machine(settings.machine_path, hashes["machine"])
         plan = None if settings.plan_path is None else _plan(settings.plan_path, hashes["plan"])
         lines = () if machine is None else machine.lines()
-        from workbench.runs.analysis import track_run
+        from workbench.runs.analysis import track_channels
 
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", FoldlineWarning)
             options = {"rf_map": False, **settings.track_options}
-            analysis = track_run(path, machine=machine, cut_orders=settings.cut_orders, **options)
-        spec_path, cuts_path = _output_names(path, row["sha256"], out_dir)
-        spectrum = pd.DataFrame({"order": np.asarray(analysis.spectrum.order, dtype=float),
-                                 "amplitude": np.asarray(analysis.spectrum.amplitude, dtype=float)})
-        _write_csv(spectrum, spec_path)
-        cut_frames = [
-            pd.DataFrame({"order": float(c.order), "bandwidth_orders": float(c.bandwidth_orders),
-                          "rpm": np.asarray(c.rpm, dtype=float),
-                          "amplitude": np.asarray(c.amplitude, dtype=float)})
-            for c in analysis.cuts
-        ]
-        cuts = (pd.concat(cut_frames, ignore_index=True) if cut_frames else
-                pd.DataFrame(columns=["order", "bandwidth_orders", "rpm", "amplitude"]))
-        _write_csv(cuts, cuts_path)
-        sa = analysis.shaft_angle
-        row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
-                    "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
-        if plan is not None:
-            from workbench.batch.levels import band_levels
-
-            for name, level in band_levels(analysis.order_map, plan.bands, lines).items():
-                row[LEVEL_PREFIX + name] = level
-        row["top_orders"] = _top_orders(analysis.peaks, settings.n_top)
-        ident = analysis.identification
-        if ident is not None:
-            names = list(dict.fromkeys(str(n) for n in ident.aliases["line"]))
-            row["aliases"] = len(names)
-            row["alias_lines"] = "; ".join(names)
-        row["spectrum_csv"] = spec_path.name
-        row["cuts_csv"] = cuts_path.name
+            multi = track_channels(path, machine=machine, cut_orders=settings.cut_orders,
+                                   threads=settings.threads, **options)
+        rows = [_channel_row(dict(row), analysis, path, out_dir, settings, plan, lines,
+                             tagged=len(multi) > 1)
+                for analysis in multi.channels]
     except Exception as exc:  # one bad run must not stop the batch: report it in its row
+        rows = [row]
         row["status"] = "error"
         row["error"] = str(exc) if isinstance(exc, FoldlineError) else f"{type(exc).__name__}: {exc}"
-    row["warnings"] = " | ".join(dict.fromkeys(str(w.message) for w in caught))
-    row["seconds"] = time.perf_counter() - t0
+    warned = " | ".join(dict.fromkeys(str(w.message) for w in caught))
+    seconds = time.perf_counter() - t0
+    for r in rows:
+        r["warnings"] = warned
+        r["seconds"] = seconds / len(rows)
+    return rows
+
+
+def _channel_row(row, analysis, path, out_dir, settings, plan, lines, *, tagged) -> dict:
+    """Write one channel's spectrum and cuts; its summary row."""
+    row["channel"] = str(analysis.channel)
+    spec_path, cuts_path = _output_names(path, row["sha256"], out_dir,
+                                         analysis.channel if tagged else None)
+    spectrum = pd.DataFrame({"order": np.asarray(analysis.spectrum.order, dtype=float),
+                             "amplitude": np.asarray(analysis.spectrum.amplitude, dtype=float)})
+    _write_csv(spectrum, spec_path)
+    cut_frames = [
+        pd.DataFrame({"order": float(c.order), "bandwidth_orders": float(c.bandwidth_orders),
+                      "rpm": np.asarray(c.rpm, dtype=float),
+                      "amplitude": np.asarray(c.amplitude, dtype=float)})
+        for c in analysis.cuts
+    ]
+    cuts = (pd.concat(cut_frames, ignore_index=True) if cut_frames else
+            pd.DataFrame(columns=["order", "bandwidth_orders", "rpm", "amplitude"]))
+    _write_csv(cuts, cuts_path)
+    sa = analysis.shaft_angle
+    row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
+                "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
+    if plan is not None:
+        from workbench.batch.levels import band_levels
+
+        for name, level in band_levels(analysis.order_map, plan.bands, lines).items():
+            row[LEVEL_PREFIX + name] = level
+    row["top_orders"] = _top_orders(analysis.peaks, settings.n_top)
+    ident = analysis.identification
+    if ident is not None:
+        names = list(dict.fromkeys(str(n) for n in ident.aliases["line"]))
+        row["aliases"] = len(names)
+        row["alias_lines"] = "; ".join(names)
+    row["spectrum_csv"] = spec_path.name
+    row["cuts_csv"] = cuts_path.name
     return row
 
 
@@ -301,7 +336,7 @@ def _frame(rows) -> pd.DataFrame:
         if str(c).startswith(LEVEL_PREFIX):
             table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
     table["aliases"] = pd.to_numeric(table["aliases"], errors="coerce").astype("Int64")
-    for c in ("file", "sha256", "sidecar_sha256", "settings", "status", "error", "top_orders",
+    for c in ("file", "channel", "sha256", "sidecar_sha256", "settings", "status", "error", "top_orders",
               "alias_lines", "warnings", "spectrum_csv", "cuts_csv"):
         table[c] = table[c].astype(object).where(table[c].notna(), "").astype(str)
     return table.reset_index(drop=True)
@@ -324,7 +359,7 @@ def read_summary(out_dir) -> pd.DataFrame | None:
         if csv.is_file():
             return _frame(pd.read_csv(csv, keep_default_na=False,
                                       dtype={"sha256": str, "sidecar_sha256": str,
-                                             "settings": str}).to_dict("records"))
+                                             "settings": str, "channel": str}).to_dict("records"))
     except Exception as exc:
         raise InputError(f"{pq if pq.is_file() else csv}: the summary of an earlier batch cannot "
                          f"be read ({type(exc).__name__}: {exc}); move it away or choose another "
@@ -355,7 +390,8 @@ class BatchResult:
     Attributes
     ----------
     summary : pandas.DataFrame
-        The whole summary table as written (earlier rows kept, new rows after them).
+        The whole summary table as written (earlier rows kept, new rows after them): one row
+        per run and channel.
     done : tuple of str
         Runs tracked now with status ok.
     skipped : tuple of str
@@ -470,17 +506,18 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
     last_write = [time.monotonic()]
 
     def table_now():
-        redo = {_key(r) for r in new_rows.values()}
+        redo = {_key(r) for rs in new_rows.values() for r in rs}
         rows = [r for r in earlier_rows if _key(r) not in redo]
-        rows += [new_rows[i] for i in sorted(new_rows)]
+        rows += [r for i in sorted(new_rows) for r in new_rows[i]]
         return _frame(rows)
 
-    def finished_one(i, row):
+    def finished_one(i, rows):
         count["finished"] += 1
+        row = rows[0]
         if row["status"] == "skipped":
             skipped[i] = row["file"]
         else:
-            new_rows[i] = row
+            new_rows[i] = rows
             if row["status"] != "ok":
                 count["failed"] += 1
         say(count["finished"], total, len(skipped), count["failed"])
@@ -499,9 +536,10 @@ def run_batch(paths, out_dir, *, settings: BatchSettings, workers: int = 2, sche
     pq, csv = _write_summary(table, out_dir)
     return BatchResult(
         summary=table,
-        done=tuple(r["file"] for i, r in sorted(new_rows.items()) if r["status"] == "ok"),
+        done=tuple(rs[0]["file"] for i, rs in sorted(new_rows.items()) if rs[0]["status"] == "ok"),
         skipped=tuple(f for i, f in sorted(skipped.items())),
-        failed=tuple((r["file"], r["error"]) for i, r in sorted(new_rows.items()) if r["status"] != "ok"),
+        failed=tuple((rs[0]["file"], rs[0]["error"]) for i, rs in sorted(new_rows.items())
+                     if rs[0]["status"] != "ok"),
         seconds=time.perf_counter() - t0,
         workers=n_workers,
         scheduler=address,
@@ -543,11 +581,11 @@ def _run_on_dask(jobs, settings, out_dir, skip, workers, scheduler, finished_one
         for fut in as_completed(futures):
             i, p = futures[fut]
             try:
-                row = fut.result()
+                rows = fut.result()
             except Exception as exc:  # the worker died or the task could not run
-                row = _frame([{"file": str(p), "settings": settings.fingerprint, "status": "error",
-                               "error": f"{type(exc).__name__}: {exc}"}]).iloc[0].to_dict()
-            finished_one(i, row)
+                rows = [_frame([{"file": str(p), "settings": settings.fingerprint, "status": "error",
+                                 "error": f"{type(exc).__name__}: {exc}"}]).iloc[0].to_dict()]
+            finished_one(i, rows)
         return address, n_workers
     finally:
         client.close()

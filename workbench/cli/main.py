@@ -16,8 +16,6 @@ import sys
 import warnings
 from pathlib import Path
 
-import numpy as np
-
 from workbench import __version__
 from workbench.errors import FoldlineError, FoldlineWarning, InputError
 
@@ -39,6 +37,8 @@ class _UsageError(Exception):
 
 def _jsonable(obj):
     """Convert numpy scalars, NaN/inf and tuples for ``json.dumps``."""
+    import numpy as np   # here, not at the top: ``foldline --help`` should not load it
+
     if isinstance(obj, dict):
         return {str(k): _jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -74,7 +74,9 @@ def _positive(value, name):
 
 
 def cmd_alias(args) -> int:
-    from workbench.sampling import apparent_frequency, nyquist_zone, read_plan
+    import numpy as np
+
+    from workbench.sampling.folding import apparent_frequency, nyquist_zone
 
     rate = _positive(args.rate, "--rate")
     freqs = np.array(args.frequencies, dtype=float)
@@ -82,6 +84,8 @@ def cmd_alias(args) -> int:
         bad = [f for f in args.frequencies if not (math.isfinite(f) and f >= 0)]
         raise InputError(f"frequency {bad[0]!r}: frequencies must be finite and >= 0 Hz")
     if args.plan:
+        from workbench.sampling.plan import read_plan
+
         plan = read_plan(args.plan)
         att = np.asarray(plan.filter.attenuation_db(freqs, rate), dtype=float)
         label = plan.filter.describe()
@@ -102,12 +106,14 @@ def cmd_alias(args) -> int:
     if args.json:
         emit_json(out)
         return 0
-    import pandas as pd
-
     print(f"rate {rate:g} Hz, Nyquist {rate / 2:g} Hz, filter: {label}")
-    table = pd.DataFrame(out["lines"])
-    table["folded"] = table["zone"] >= 1
-    print(table.to_string(index=False, float_format=lambda v: f"{v:.2f}"))
+    head = ("hz", "apparent_hz", "zone", "attenuation_db", "folded")
+    rows = [(f"{r['hz']:.2f}", f"{r['apparent_hz']:.2f}", str(r["zone"]),
+             f"{r['attenuation_db']:.2f}", str(r["zone"] >= 1)) for r in out["lines"]]
+    width = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
+    print(" ".join(h.rjust(w) for h, w in zip(head, width)))
+    for r in rows:
+        print(" ".join(v.rjust(w) for v, w in zip(r, width)))
     return 0
 
 

@@ -6,6 +6,8 @@ from workbench.errors import InputError
 
 __all__ = ["add_track_options", "track_options_from_args", "parse_orders", "add_speed_options",
            "speed_options_from_args"]
+__all__ = ["add_track_options", "track_options_from_args", "parse_orders", "parse_channels",
+           "parse_threads", "option_name", "OPTION_NAMES"]
 
 
 def parse_orders(text: str, name: str) -> tuple:
@@ -33,7 +35,10 @@ def _band(text: str, name: str) -> tuple:
 def add_track_options(p) -> None:
     """The options that say how a run is tracked (same meaning as ``foldline track``)."""
     g = p.add_argument_group("tracking")
-    g.add_argument("--channel", metavar="CH", help="vibration channel: 1-based index or name")
+    g.add_argument("--channel", metavar="CH[,CH...]",
+                   help="vibration channel(s): 1-based indices or names separated by commas, or "
+                        "'all' (every channel but the tacho); default the first one that is not "
+                        "the tacho")
     g.add_argument("--tacho", metavar="CH", help="tacho channel: 1-based index or name")
     g.add_argument("--pulses-per-rev", type=int, metavar="N",
                    help="tacho tooth positions per rev, missing ones included")
@@ -51,12 +56,26 @@ def add_track_options(p) -> None:
     g.add_argument("--envelope", metavar="LO,HI", help="envelope order spectrum of this band, Hz")
     g.add_argument("--cut-orders", metavar="O1,O2", help="orders to cut against speed")
     g.add_argument("--cut-bandwidth", type=float, metavar="ORDERS", help="width of each order cut")
+    g.add_argument("--threads", metavar="N",
+                   help="threads tracking each run (default: the machine's cores; batch: 1 per "
+                        "worker)")
+
+
+#: Command-line option of each ``track_options_from_args`` key whose name differs from it.
+OPTION_NAMES = {"channels": "--channel", "rate_hz": "--rate", "envelope_hz": "--envelope",
+                "cut_bandwidth_orders": "--cut-bandwidth"}
+
+
+def option_name(key: str) -> str:
+    """The command-line option a ``track_options_from_args`` key came from."""
+    return OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
 
 
 def track_options_from_args(args) -> dict:
     """``track_run`` keyword options from the parsed tracking options (None left out)."""
     opts = {
-        "channel": _channel(args.channel),
+        "channels": parse_channels(args.channel),
+        "threads": parse_threads(args.threads),
         "tacho": _channel(args.tacho),
         "pulses_per_rev": args.pulses_per_rev,
         "missing_pulses": args.missing_pulses,
@@ -117,6 +136,47 @@ def _rpm_range(text: str) -> tuple:
     if not (0 < lo < hi < float("inf")):
         raise InputError(f"--speed-range {text!r}: need 0 < LO < HI (rpm)")
     return lo, hi
+def parse_channels(text):
+    """``--channel`` as given: None; ``"all"``; or a tuple of channels, each a 1-based index
+    (digits, an int) or a name (text).  ``"1,3,4"`` -> (1, 3, 4); ``"accel x,3"`` ->
+    ("accel x", 3).
+
+    Raises
+    ------
+    InputError
+        An empty entry, an index below 1, or ``all`` mixed with other entries.
+    """
+    if text is None:
+        return None
+    s = str(text).strip()
+    if s.lower() == "all":
+        return "all"
+    items = [v.strip() for v in s.split(",")]
+    hint = "give 1-based channel indices or names separated by commas (e.g. 1,3,4), or all"
+    if not s or any(not v for v in items):
+        raise InputError(f"--channel {text!r}: empty entry; {hint}")
+    out = []
+    for v in items:
+        if v.lower() == "all":
+            raise InputError(f"--channel {text!r}: 'all' cannot be mixed with other channels; {hint}")
+        if v.isdigit():
+            if int(v) < 1:
+                raise InputError(f"--channel {text!r}: channel {v} is out of range; channels are "
+                                 f"numbered from 1; {hint}")
+            out.append(int(v))
+        else:
+            out.append(v)
+    return tuple(dict.fromkeys(out))
+
+
+def parse_threads(text):
+    """``--threads`` as given: None (the default: the machine's cores) or an int >= 1."""
+    if text is None:
+        return None
+    s = str(text).strip()
+    if not s.isdigit() or int(s) < 1:
+        raise InputError(f"--threads {text!r}: give a whole number of threads, 1 or more")
+    return int(s)
 
 
 def _channel(text):

@@ -5,23 +5,15 @@ from __future__ import annotations
 import warnings
 from pathlib import Path
 
-import numpy as np
-
+from workbench.cli.verb_speed import MAX_JSON_POINTS, _thin   # one rule for thinning JSON arrays
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = ["add_extract_verb", "cmd_extract", "write_extract_outputs", "MAX_JSON_POINTS"]
 
 #: Longest array in the JSON answer; longer envelopes are thinned evenly.
-MAX_JSON_POINTS = 5000
 
 #: Tracking options that shape an order spectrum and mean nothing to the extraction.
 _UNUSED = ("samples_per_rev", "revs_per_block", "envelope_hz", "cut_orders", "cut_bandwidth_orders")
-
-
-def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
-    if n <= most:
-        return np.arange(n)
-    return np.unique(np.round(np.linspace(0, n - 1, most)).astype(np.int64))
 
 
 def _outputs(orders, out: Path) -> list:
@@ -32,6 +24,8 @@ def _outputs(orders, out: Path) -> list:
 
 def cmd_extract(args) -> int:
     """Extract orders of a run's channel and print (and optionally write) them."""
+    import numpy as np
+
     from workbench.angle.vold_kalman import extract_orders
     from workbench.cli.main import emit_json
     from workbench.cli.options import parse_orders, track_options_from_args
@@ -67,7 +61,11 @@ def cmd_extract(args) -> int:
     if out is not None and not float(run.rate_hz).is_integer():
         raise InputError(f"--out {out}: the run's rate {run.rate_hz:g} Hz is not a whole number, so "
                          "its order waveforms cannot be WAV files; leave --out away and use --json")
-    index = _vibration_channel(run, opts.get("channel"))
+    chans = opts.get("channels")
+    if chans == "all" or (chans is not None and len(chans) > 1):
+        raise InputError(f"--channel {args.channel}: foldline extract takes one channel; give "
+                         "one index or name, and run it once per channel")
+    index = _vibration_channel(run, None if chans is None else chans[0])
     channel = run.channels[index]
     angle, speed_source = run_speed(run, **{k: opts[k] for k in SPEED_OPTIONS if k in opts})
     x = run.channel(channel.name)

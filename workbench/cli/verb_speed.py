@@ -7,8 +7,6 @@ from __future__ import annotations
 import math
 import warnings
 
-import numpy as np
-
 from workbench.errors import FoldlineWarning
 
 __all__ = ["add_speed_verb", "cmd_speed", "speed_result", "MAX_JSON_POINTS"]
@@ -19,6 +17,8 @@ MAX_JSON_POINTS = 5000
 
 def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
     """Indices of at most ``most`` evenly spread points of ``n``, first and last included."""
+    import numpy as np
+
     if n <= most:
         return np.arange(n)
     return np.unique(np.rint(np.linspace(0, n - 1, most)).astype(np.int64))
@@ -37,6 +37,8 @@ def speed_result(run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
         ``uncertainty_pct`` (RMS relative uncertainty over the record, %, or None when not
         known), ``method`` (one line), ``warnings`` (list of str) and ``angle`` (ShaftAngle).
     """
+    import numpy as np
+
     from workbench.runs.analysis import run_speed, run_speed_estimate
 
     with warnings.catch_warnings(record=True) as caught:
@@ -70,6 +72,8 @@ def speed_result(run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
 
 def write_speed_table(path, time_s, rpm, *, force: bool = False) -> None:
     """Write a speed table (CSV ``time_s,rpm``, every row) under a temporary name, then rename."""
+    import numpy as np
+
     from workbench.runs import atomic_output
 
     table = np.column_stack([np.asarray(time_s, dtype=float), np.asarray(rpm, dtype=float)])

@@ -185,23 +185,57 @@ def cmd_track(args) -> int:
     """Track a recorded run in the angle domain and print (and optionally write) the results."""
     from workbench.cli.main import emit_json
     from workbench.cli.options import track_options_from_args
-    from workbench.runs.analysis import track_run
+    from workbench.runs.analysis import track_channels, vibration_channels
+    from workbench.runs.files import read_run
 
     opts = track_options_from_args(args)
+    channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
+    run = read_run(args.run, rate_hz=opts.pop("rate_hz", None))
+    rows = vibration_channels(run, channels, tacho=opts.get("tacho"))
+    folders = {}
     if out is not None:
-        _check_out_folder(out, force=args.force)
-    analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
-                         max_order=args.max_order, **opts)
-    files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
-    result = analysis.to_dict()
+        folders = channel_folders(out, [run.channels[i].name for i in rows])
+        for folder in folders.values():
+            _check_out_folder(folder, force=args.force)
+    # The rpm-frequency map is only drawn into --out: without it, it is not computed.
+    multi = track_channels(run, channels=tuple(i + 1 for i in rows), machine=args.machine,
+                           protect=not args.no_protect, max_order=args.max_order,
+                           rf_map=out is not None, **opts)
+    files = []
+    if out is not None:
+        for a in multi.channels:
+            files.extend(write_track_outputs(a, folders[a.channel], force=args.force))
+    result = multi.channels[0].to_dict() if len(multi) == 1 else multi.to_dict()
     if files:
         result["files"] = [str(f) for f in files]
     if args.json:
         emit_json(result)
         return 0
-    _print_track(analysis, files)
+    if len(multi) == 1:
+        _print_track(multi.channels[0], files)
+    else:
+        _print_track_channels(multi, files)
     return 0
+
+
+def channel_folders(out: Path, names) -> dict:
+    """Output folder of each channel: ``out`` itself for one channel; for several, one
+    sub-folder per channel named after it (characters other than letters, digits, ``.``,
+    ``-`` and ``_`` become ``_``; ``ch<N>_`` is put in front where two names would clash)."""
+    import re
+
+    names = list(names)
+    if len(names) == 1:
+        return {names[0]: out}
+    safe = [re.sub(r"[^A-Za-z0-9._-]", "_", n).strip(".") or "channel" for n in names]
+    taken = [s.lower() for s in safe]
+    folders = {}
+    for i, (n, f) in enumerate(zip(names, safe)):
+        if taken.count(f.lower()) > 1:
+            f = f"ch{i + 1}_{f}"
+        folders[n] = out / f
+    return folders
 
 
 TRACK_FILES = (
@@ -279,6 +313,30 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
     return files
 
 
+def _print_track_channels(multi, files) -> None:
+    """Text output of several channels: the speed once, then each channel's strongest orders."""
+    a = multi.first
+    print(f"{a.source}: {len(multi)} channels, {a.rate_hz:g} S/s, speed from {a.speed_source}: "
+          f"{a.rpm_min:.0f}-{a.rpm_max:.0f} rpm over {a.revolutions:.0f} rev")
+    print(f"angle domain: {a.samples_per_rev} samples/rev, {a.revs_per_block:g} revs/block "
+          f"(order resolution {1 / a.revs_per_block:g}), alias protection {'on' if a.protect else 'OFF'}")
+    if len(a.doubted):
+        print(f"doubted tacho pulses: {len(a.doubted)} (see doubted_pulses.csv)")
+    for c in multi.channels:
+        top = c.peaks.head(5)
+        orders = ", ".join(f"{o:.4g} ({v:.3g})" for o, v in zip(top["order"], top["amplitude"]))
+        print(f"\nchannel {c.channel}{' [' + c.unit + ']' if c.unit else ''}: strongest orders "
+              f"(amplitude) {orders or 'none'}")
+        if c.envelope is not None and len(c.envelope_peaks):
+            ep = c.envelope_peaks.head(5)
+            print("  envelope: " + ", ".join(f"{o:.4g} ({v:.3g})" for o, v in zip(ep["order"], ep["amplitude"])))
+        if c.identification is not None and len(c.identification.aliases):
+            names = list(dict.fromkeys(str(n) for n in c.identification.aliases["line"]))
+            print(f"  aliases (folded lines, not machine orders): {', '.join(names)}")
+    if files:
+        print(f"\noutputs written to one folder per channel under {Path(files[0]).parent.parent}")
+
+
 def _print_track(a, files) -> None:
     print(f"{a.source}: channel {a.channel}, {a.rate_hz:g} S/s, speed from {a.speed_source}: "
           f"{a.rpm_min:.0f}-{a.rpm_max:.0f} rpm over {a.revolutions:.0f} rev")
@@ -336,7 +394,8 @@ def add_verbs(verb) -> None:
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
     p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
-    p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder")
+    p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder "
+                   "(one sub-folder per channel when several are tracked)")
     p.add_argument("--force", action="store_true", help="replace existing outputs in the folder")
     p.set_defaults(func=cmd_track)
 

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from workbench.errors import FoldlineWarning, InputError
 
-from workbench.cli.options import add_track_options, track_options_from_args
+from workbench.cli.options import add_track_options, option_name, track_options_from_args
 
 __all__ = ["add_report_verb", "cmd_report", "demo_report"]
 
@@ -24,7 +24,7 @@ def cmd_report(args) -> int:
 
     opts = track_options_from_args(args)
     if args.run is None and opts:
-        raise InputError(f"tracking options ({', '.join('--' + k.replace('_', '-') for k in opts)}) "
+        raise InputError(f"tracking options ({', '.join(option_name(k) for k in opts)}) "
                          "need a RUN; give the run file after the plan")
     # Progress only for a person at a terminal: a script's stderr keeps the one-line error
     # contract (warnings go through the command's one-line handler).

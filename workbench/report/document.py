@@ -425,12 +425,15 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         f"Angle domain: {rs.samples_per_rev} samples/rev, {rs.revs_per_block} revs/block "
         f"(order resolution {rs.order_resolution:g}), highest order {rs.max_order:g}.")
     if analysis is not None:
-        ident = getattr(analysis, "identification", None)
-        n_alias = None if ident is None else len(set(ident.aliases["line"]))
+        idents = [getattr(c, "identification", None)
+                  for c in getattr(analysis, "channels", (analysis,))]
+        n_alias = None if all(i is None for i in idents) else len(
+            {str(n) for i in idents if i is not None for n in i.aliases["line"]})
         summary_items.append(
             f"Run <span class=\"mono\">{esc(Path(str(analysis.source)).name)}</span>: "
             f"{analysis.rate_hz:g} S/s, {analysis.duration_s:.1f} s, "
             f"{analysis.shaft_angle.rpm_min:.0f} to {analysis.shaft_angle.rpm_max:.0f} rpm"
+            + (f", {len(analysis.channels)} channels" if hasattr(analysis, "channels") else "")
             + ("" if n_alias is None else f"; {n_alias} folded line(s) identified in the order map")
             + ".")
     if criticals is not None:
@@ -704,13 +707,14 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
                                  plot_rpm_frequency_map, plot_tacho_check, speed_check_options)
 
     sa = analysis.shaft_angle
-    unit = analysis.unit or ""
     run_sections: list[str] = []
     sections.append("run")
     pairs = [
         ("file", Path(str(analysis.source)).name),
         ("rate", f"{analysis.rate_hz:g} S/s"),
-        ("channel", f"{analysis.channel} ({unit})" if unit else str(analysis.channel)),
+        ("channel" if not hasattr(analysis, "channels") else "channels",
+         ", ".join(f"{c.channel} ({c.unit})" if c.unit else str(c.channel)
+                   for c in getattr(analysis, "channels", (analysis,)))),
         ("duration", f"{analysis.duration_s:.2f} s"),
         ("speed range", f"{sa.rpm_min:.1f} to {sa.rpm_max:.1f} rpm"),
         ("revolutions", f"{sa.revolutions:.1f}"),
@@ -721,7 +725,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
         if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
             pairs.append((k.replace("_", " "), v if isinstance(v, str) else repr(v)))
     head = key_value_html(pairs, css_class="run-summary")
-    log = tuple(getattr(analysis, "log", ()) or ())
+    log = tuple(getattr(getattr(analysis, "first", analysis), "log", ()) or ())
     if log:
         head += "<details><summary>processing log</summary><ul class=\"notes\">" + "".join(
             f"<li>{esc(entry)}</li>" for entry in log) + "</ul></details>"
@@ -743,77 +747,106 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
                              caption="Doubted pulses", empty="no doubted pulses")
     run_sections.append(_sub("tacho", tacho_html, sections))
 
-    # order spectrum and peaks
-    res = 1.0 / float(analysis.revs_per_block)
-    peaks = analysis.peaks.copy()
-    peaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in peaks["order"]]
-    peaks = peaks.sort_values("amplitude", ascending=False)
-    fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit)
-    spec_html = figure_svg(fig, key="order-spectrum", caption="Order spectrum averaged over the run "
-                           "(peak amplitudes, window-corrected) with the predicted direct line "
-                           "orders dotted.", alt="order spectrum")
-    _close(fig)
-    spec_html += table_html(peaks, _PEAK_COLUMNS, css_class="peaks",
-                            caption="Peaks of the order spectrum (largest first)", empty="no peaks")
-    env = getattr(analysis, "envelope", None)
-    if env is not None:
-        epeaks = analysis.envelope_peaks.copy()
-        epeaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in epeaks["order"]]
-        epeaks = epeaks.sort_values("amplitude", ascending=False)
-        fig = plot_order_spectrum(env, peaks=analysis.envelope_peaks, lines=lines, unit=unit,
-                                  title="Envelope order spectrum")
-        spec_html += figure_svg(fig, key="envelope-spectrum", caption="Envelope order spectrum.",
-                                alt="envelope order spectrum")
-        _close(fig)
-        spec_html += table_html(epeaks, _PEAK_COLUMNS, css_class="envelope-peaks",
-                                caption="Peaks of the envelope order spectrum", empty="no peaks")
-    run_sections.append(_sub("order-spectrum", spec_html, sections))
+    chans = tuple(analysis.channels) if hasattr(analysis, "channels") else (analysis,)
+    aliases: list = []
+    any_ident = False
 
-    ident = getattr(analysis, "identification", None)
-    fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
-                         identification=ident, unit=unit)
-    run_sections.append(_sub("order-map", figure_svg(
-        fig, key="order-map", caption="Order map with the predicted lines: direct lines solid, "
-        "folded lines (aliases, moving in order with speed) dashed; identified aliases labelled.",
-        alt="order map"), sections))
-    _close(fig)
+    def channel_parts(analysis, sfx):
+        """One channel's spectrum, map, cuts, rpm-frequency map and identification."""
+        nonlocal any_ident
+        unit = analysis.unit or ""
 
-    cuts = tuple(getattr(analysis, "cuts", ()) or ())
-    if cuts:
-        fig = plot_order_cuts(cuts, unit=unit)
-        cut_html = figure_svg(fig, key="order-cuts", caption="Amplitude of chosen orders against "
-                              "speed (energy sum over the band of each cut).", alt="order cuts")
+        def sub(sid, inner):
+            if not sfx:
+                return _sub(sid, inner, sections)
+            if sid not in sections:
+                sections.append(sid)
+            return (f'<section id="{esc(sid + sfx)}" class="{esc(sid)}"><h4>{esc(SECTION_TITLES[sid])}'
+                    f"</h4>\n{inner}\n</section>")
+
+        # order spectrum and peaks
+        res = 1.0 / float(analysis.revs_per_block)
+        peaks = analysis.peaks.copy()
+        peaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in peaks["order"]]
+        peaks = peaks.sort_values("amplitude", ascending=False)
+        fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit)
+        spec_html = figure_svg(fig, key="order-spectrum" + sfx, caption="Order spectrum averaged over the run "
+                               "(peak amplitudes, window-corrected) with the predicted direct line "
+                               "orders dotted.", alt="order spectrum")
         _close(fig)
-        cut_html += table_html(_cut_records(cuts, lines, res), _CUT_COLUMNS, css_class="cuts",
-                               caption="Order cuts and the predicted line at each order")
+        spec_html += table_html(peaks, _PEAK_COLUMNS, css_class="peaks",
+                                caption="Peaks of the order spectrum (largest first)", empty="no peaks")
+        env = getattr(analysis, "envelope", None)
+        if env is not None:
+            epeaks = analysis.envelope_peaks.copy()
+            epeaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in epeaks["order"]]
+            epeaks = epeaks.sort_values("amplitude", ascending=False)
+            fig = plot_order_spectrum(env, peaks=analysis.envelope_peaks, lines=lines, unit=unit,
+                                      title="Envelope order spectrum")
+            spec_html += figure_svg(fig, key="envelope-spectrum" + sfx, caption="Envelope order spectrum.",
+                                    alt="envelope order spectrum")
+            _close(fig)
+            spec_html += table_html(epeaks, _PEAK_COLUMNS, css_class="envelope-peaks",
+                                    caption="Peaks of the envelope order spectrum", empty="no peaks")
+        run_sections.append(sub("order-spectrum", spec_html))
+
+        ident = getattr(analysis, "identification", None)
+        fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
+                             identification=ident, unit=unit)
+        run_sections.append(sub("order-map", figure_svg(
+            fig, key="order-map" + sfx, caption="Order map with the predicted lines: direct lines solid, "
+            "folded lines (aliases, moving in order with speed) dashed; identified aliases labelled.",
+            alt="order map")))
+        _close(fig)
+
+        cuts = tuple(getattr(analysis, "cuts", ()) or ())
+        if cuts:
+            fig = plot_order_cuts(cuts, unit=unit)
+            cut_html = figure_svg(fig, key="order-cuts" + sfx, caption="Amplitude of chosen orders against "
+                                  "speed (energy sum over the band of each cut).", alt="order cuts")
+            _close(fig)
+            cut_html += table_html(_cut_records(cuts, lines, res), _CUT_COLUMNS, css_class="cuts",
+                                   caption="Order cuts and the predicted line at each order")
+        else:
+            cut_html = '<p class="empty">no order cuts were asked for</p>'
+        run_sections.append(sub("order-cuts", cut_html))
+
+        rf = getattr(analysis, "rf_map", None)
+        if rf is not None:
+            names = None if ident is None or not len(ident.table) else set(ident.table["line"])
+            fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit, names=names)
+            run_sections.append(sub("rpm-frequency-map", figure_svg(
+                fig, key="rpm-frequency-map" + sfx, caption="Time-domain spectra against speed with the "
+                "apparent frequency of each identified line.", alt="rpm-frequency map")))
+            _close(fig)
+
+        if ident is not None:
+            aliases.extend(str(n) for n in ident.aliases["line"])
+            n_unexpl = len(ident.unexplained)
+            intro = ("<p>Ridges of the order map matched to the machine's predicted lines. A line in "
+                     "zone 1 or above is an <b>alias</b>: it was above Nyquist when sampled and shows at "
+                     "an order that moves with speed, so it is not a fault line at that order. "
+                     f"{n_unexpl} ridge point(s) match no predicted line.</p>")
+            run_sections.append(sub("identification", intro + table_html(
+                ident.table, _IDENT_COLUMNS, css_class="identification",
+                caption="Identified lines (aliases first, then by amplitude)",
+                empty="no ridge matched a predicted line")))
+        any_ident = any_ident or ident is not None
+
+    if len(chans) == 1:
+        channel_parts(chans[0], "")
     else:
-        cut_html = '<p class="empty">no order cuts were asked for</p>'
-    run_sections.append(_sub("order-cuts", cut_html, sections))
-
-    rf = getattr(analysis, "rf_map", None)
-    if rf is not None:
-        names = None if ident is None or not len(ident.table) else set(ident.table["line"])
-        fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit, names=names)
-        run_sections.append(_sub("rpm-frequency-map", figure_svg(
-            fig, key="rpm-frequency-map", caption="Time-domain spectra against speed with the "
-            "apparent frequency of each identified line.", alt="rpm-frequency map"), sections))
-        _close(fig)
-
+        for k, ch in enumerate(chans, start=1):
+            start = len(run_sections)
+            channel_parts(ch, f"-ch{k}")
+            inner = "\n".join(run_sections[start:])
+            del run_sections[start:]
+            label = f"{ch.channel} ({ch.unit})" if ch.unit else str(ch.channel)
+            run_sections.append(f'<section id="channel-{k}" class="channel"><h3>Channel '
+                                f"{esc(label)}</h3>\n{inner}\n</section>")
     if criticals is not None:
         run_sections.append(_criticals_section(criticals, sections))
-
-    aliases = None
-    if ident is not None:
-        aliases = tuple(dict.fromkeys(str(n) for n in ident.aliases["line"]))
-        n_unexpl = len(ident.unexplained)
-        intro = ("<p>Ridges of the order map matched to the machine's predicted lines. A line in "
-                 "zone 1 or above is an <b>alias</b>: it was above Nyquist when sampled and shows at "
-                 "an order that moves with speed, so it is not a fault line at that order. "
-                 f"{n_unexpl} ridge point(s) match no predicted line.</p>")
-        run_sections.append(_sub("identification", intro + table_html(
-            ident.table, _IDENT_COLUMNS, css_class="identification",
-            caption="Identified lines (aliases first, then by amplitude)",
-            empty="no ridge matched a predicted line"), sections))
+    aliases = tuple(dict.fromkeys(aliases)) if any_ident else None
     html_run = (f'<section id="run"><h2>{esc(SECTION_TITLES["run"])}</h2>\n{head}\n'
                 + "\n".join(run_sections) + "\n</section>")
     return html_run, aliases
@@ -876,6 +909,8 @@ def _run_criticals(run_path, machine, settings):
     from workbench.runs.criticals import run_criticals
 
     keep = {k: v for k, v in settings.items() if k in SPEED_OPTIONS or k in ("channel", "rate_hz")}
+    if settings.get("channels") is not None:
+        keep["channel"] = settings["channels"]
     return run_criticals(run_path, machine=machine, **keep)
 
 
@@ -930,7 +965,7 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         raise InputError("an analysis was given without the run file it was made from")
     if run_path is not None:
         from workbench.runs import sidecar_path
-        from workbench.runs.analysis import track_run
+        from workbench.runs.analysis import track_channels
 
         inputs.append(InputFile.of("run", run_path))
         side = sidecar_path(run_path)
@@ -949,7 +984,8 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         if analysis is None:
             if progress:
                 progress(f"tracking {run_path}")
-            analysis = track_run(run_path, machine=machine, **settings)
+            multi = track_channels(run_path, machine=machine, **settings)
+            analysis = multi.channels[0] if len(multi) == 1 else multi
         if progress:
             progress("order tracks with phase and critical speeds")
         crit = _run_criticals(run_path, machine, settings)

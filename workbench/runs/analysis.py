@@ -22,15 +22,16 @@ import pandas as pd
 
 from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_order_spectrum,
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
-                             speed_from_channel, speed_from_vibration, tacho_angle)
+                             tacho_angle)
+from workbench.angle.tracking import iter_order_track_channels, resolve_threads
 from workbench.angle.matching import identify_order_map
 from workbench.angle.tacho import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
-__all__ = ["RunAnalysis", "track_run", "run_speed", "run_speed_estimate", "SPEED_OPTIONS",
-           "CHUNK_S"]
+__all__ = ["RunAnalysis", "MultiRunAnalysis", "track_run", "track_channels", "vibration_channels",
+           "run_speed", "run_speed_estimate", "SPEED_OPTIONS", "CHUNK_S", "CHANNEL_KEYS"]
 
 #: Seconds of the record read per chunk while streaming.
 CHUNK_S = 8.0
@@ -138,6 +139,14 @@ class RunAnalysis:
         """Revolutions of the reference shaft over the tracked span."""
         return float(self.shaft_angle.revolutions)
 
+    def channel_dict(self) -> dict:
+        """This channel's entry of the multi-channel JSON (:data:`CHANNEL_KEYS`); keys whose
+        analysis was not asked for (envelope, identification) are null."""
+        d = self.to_dict()
+        return {"channel": d["channel"], "unit": d["unit"], "order_spectrum": d["order_spectrum"],
+                "peaks": d["peaks"], "envelope_peaks": d.get("envelope_peaks"),
+                "identified": d.get("identified")}
+
     def to_dict(self) -> dict:
         """The JSON contract of ``foldline track``."""
         out = {
@@ -179,6 +188,71 @@ class RunAnalysis:
         return out
 
 
+#: Keys of each entry of ``"channels"`` in the multi-channel JSON of ``foldline track``.
+CHANNEL_KEYS = ("channel", "unit", "order_spectrum", "peaks", "envelope_peaks", "identified")
+
+
+@dataclass(frozen=True, eq=False)
+class MultiRunAnalysis:
+    """One run tracked on several channels against one speed (:func:`track_channels`).
+
+    Attributes
+    ----------
+    channels : tuple of RunAnalysis
+        One analysis per channel, in the order asked; they share the same ``shaft_angle``
+        (the speed and the angle instants were computed once).
+    threads : int
+        Threads the tracking used.
+    """
+
+    channels: tuple
+    threads: int = 1
+
+    def __post_init__(self):
+        if not self.channels:
+            raise InputError("a multi-channel analysis needs at least one channel")
+        object.__setattr__(self, "channels", tuple(self.channels))
+
+    def __len__(self) -> int:
+        return len(self.channels)
+
+    def __iter__(self):
+        return iter(self.channels)
+
+    @property
+    def first(self) -> RunAnalysis:
+        """The first channel's analysis (its speed keys are every channel's)."""
+        return self.channels[0]
+
+    @property
+    def channel_names(self) -> tuple:
+        """Names of the channels, in order."""
+        return tuple(a.channel for a in self.channels)
+
+    def __getattr__(self, name):
+        # Speed and run attributes (source, rate_hz, shaft_angle, speed_source, rpm_min,
+        # samples_per_rev, doubted, ...) are the same for every channel.
+        if name.startswith("_") or name == "channels":
+            raise AttributeError(name)
+        if name in _PER_CHANNEL:
+            raise AttributeError(f"{name!r} differs between channels; read it from .channels[i]")
+        return getattr(self.channels[0], name)
+
+    def to_dict(self) -> dict:
+        """The multi-channel JSON of ``foldline track``: the speed keys at the top and
+        ``"channels": [{"channel", "unit", "order_spectrum", "peaks", "envelope_peaks",
+        "identified"}]``."""
+        top = self.channels[0].to_dict()
+        for k in ("channel", "unit", "order_spectrum", "peaks", "envelope_peaks", "identified"):
+            top.pop(k, None)
+        top["channels"] = [a.channel_dict() for a in self.channels]
+        return top
+
+
+_PER_CHANNEL = frozenset({"channel", "unit", "spectrum", "peaks", "envelope", "envelope_peaks",
+                          "order_map", "cuts", "rf_map", "identification", "log"})
+
+
 def _peaks_frame(peaks) -> pd.DataFrame:
     return pd.DataFrame(
         {"order": np.asarray(peaks.order), "amplitude": np.asarray(peaks.amplitude),
@@ -205,6 +279,56 @@ def _vibration_channel(run: Run, channel, speed_channel=None):
     raise RunFileError(
         f"{run.source}: the run has only the tacho channel; there is no vibration channel to track"
     )
+
+
+def vibration_channels(run: Run, channels=None, *, tacho=None,
+                       speed_channel=None) -> tuple[int, ...]:
+    """Rows of the channels to track.
+
+    Parameters
+    ----------
+    run : Run
+    channels : None, "all", int, str or sequence of int / str
+        None: the first channel that is not the tacho; ``"all"``: every channel but the
+        tacho; else 1-based indices or names (a name wins over ``"all"`` when a channel is
+        called so).  Repeats are dropped.
+    tacho : int or str, optional
+        The tacho channel left out by ``"all"`` (default the run's).
+    speed_channel : int or str, optional
+        An analogue speed channel, left out by ``"all"`` and the default.
+
+    Returns
+    -------
+    tuple of int
+        0-based rows, in the order given.
+
+    Raises
+    ------
+    InputError
+        An unknown channel (the message names ``--channel`` and lists the run's channels).
+    RunFileError
+        ``"all"`` (or the default) on a run with only the tacho channel.
+    """
+    if channels is None:
+        return (_vibration_channel(run, None, speed_channel),)
+    if isinstance(channels, (str, int)) and not (isinstance(channels, str)
+                                                and channels in run.channel_names):
+        if isinstance(channels, str) and channels.strip().lower() == "all":
+            t = tacho if tacho is not None else run.tacho
+            skip = {None if t is None else _channel_index(run, t, "--tacho")}
+            if speed_channel is not None:
+                skip.add(_channel_index(run, speed_channel, "--speed-channel"))
+            rows = tuple(i for i in range(run.n_channels) if i not in skip)
+            if not rows:
+                raise RunFileError(f"{run.source}: --channel all: the run has only the tacho "
+                                   "channel; there is no vibration channel to track")
+            return rows
+        channels = (channels,)
+    rows = tuple(dict.fromkeys(_channel_index(run, c, "--channel") for c in channels))
+    if not rows:
+        raise InputError("--channel: no channel given; name one or more (1-based index or "
+                         "name), or all")
+    return rows
 
 
 #: Keyword options of :func:`run_speed` (and of every function that finds a run's speed).
@@ -262,6 +386,8 @@ def run_speed_estimate(run: Run, *, speed_order=None, speed_range=None, speed_ch
         raise InputError("--speed-scale needs --speed-channel (the channel it scales)")
     if speed_order is None and speed_channel is None:
         return None
+    from workbench.angle.vibration_speed import speed_from_channel, speed_from_vibration
+
     mine = "--speed-order" if speed_order is not None else "--speed-channel"
     others = [k for k, v in given.items() if v is not None and k != mine]
     if others:
@@ -413,8 +539,59 @@ def track_run(
     cut_bandwidth_orders=None,
     rf_map=True,
     progress=None,
+    threads=1,
 ) -> RunAnalysis:
-    """Track one run in the angle domain and analyse it.
+    """Track one channel of a run in the angle domain and analyse it.
+
+    The same as :func:`track_channels` with one channel; see it for the parameters
+    (``channel`` is one 1-based index or name, default the first channel that is not the
+    tacho).
+
+    Returns
+    -------
+    RunAnalysis
+    """
+    if isinstance(channel, (list, tuple)) or (isinstance(channel, str)
+                                              and channel.strip().lower() == "all"):
+        raise InputError(f"channel {channel!r}: track_run tracks one channel; use "
+                         "track_channels for several (or all)")
+    return track_channels(
+        run_or_path, channels=None if channel is None else (channel,), machine=machine,
+        rate_hz=rate_hz, samples_per_rev=samples_per_rev, revs_per_block=revs_per_block,
+        max_order=max_order, envelope_hz=envelope_hz, protect=protect, cut_orders=cut_orders,
+        cut_bandwidth_orders=cut_bandwidth_orders, rf_map=rf_map, progress=progress,
+        threads=threads, tacho=tacho, pulses_per_rev=pulses_per_rev,
+        missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table,
+        speed_tolerance=speed_tolerance, speed_order=speed_order, speed_range=speed_range,
+        speed_channel=speed_channel, speed_scale=speed_scale,
+    ).channels[0]
+
+
+def track_channels(
+    run_or_path,
+    *,
+    channels=None,
+    machine=None,
+    rate_hz=None,
+    samples_per_rev=256,
+    revs_per_block=None,
+    max_order=None,
+    envelope_hz=None,
+    protect=True,
+    cut_orders=(),
+    cut_bandwidth_orders=None,
+    rf_map=True,
+    progress=None,
+    threads=None,
+    **speed_options,
+) -> MultiRunAnalysis:
+    """Track one or many channels of a run in the angle domain against one speed, and analyse
+    each.
+
+    The speed and the angle instants are computed once (:func:`run_speed`); every block's
+    alias-protection filter, angle instants and interpolation weights are made once and
+    applied to each channel, and the channels are read together in one pass over the file.
+    Each channel's result is the same as tracking it alone.
 
     Parameters
     ----------
@@ -423,29 +600,10 @@ def track_run(
     machine : Machine or path-like, optional
         The machine, for the identification of measured ridges with predicted lines; default
         the sidecar's ``machine_file``.
-    channel : int or str, optional
-        Vibration channel (1-based index or name); default the first channel that is not
-        the tacho.
-    tacho : int or str, optional
-        Tacho channel (default: the sidecar's).
-    pulses_per_rev, missing_pulses : int, optional
-        Tacho wheel (tooth positions per rev including missing ones, and missing teeth);
-        default the sidecar's.
-    rpm : float, optional
-        Constant speed standing in for a tacho, rpm.
-    speed_table : path-like, optional
-        CSV with columns ``time_s, rpm`` standing in for a tacho.
-    speed_tolerance : float, optional
-        RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
-        default from the error budget of the settings,
-        :func:`~workbench.angle.tacho.speed_tolerance_for` (``max_order``, revs per block).
-    speed_order : float, optional
-        Speed from the vibration: the order whose ridge gives it (with ``speed_range``, rpm
-        range searched); followed in ``channel``.  See :func:`run_speed_estimate`.
-    speed_range : (float, float), optional
-    speed_channel : int or str, optional
-        Speed from an analogue speed channel (with ``speed_scale``, rpm per unit).
-    speed_scale : float, optional
+    channels : None, "all", or sequence of int / str
+        Vibration channels (1-based indices or names; see :func:`vibration_channels`);
+        default the first channel that is not the tacho, ``"all"`` every channel but the
+        tacho.
     rate_hz : float, optional
         Sample rate, where the file does not give it (CSV without time column, MAT).
     samples_per_rev : int
@@ -467,10 +625,17 @@ def track_run(
         Also compute the rpm-frequency map (a second pass over the record).
     progress : callable, optional
         Called with the fraction of the record tracked so far (0..1).
+    threads : int, optional
+        Threads filtering and interpolating blocks (default: the machine's cores); the
+        result does not depend on it.
+    **speed_options
+        Keyword options of :func:`run_speed` (:data:`SPEED_OPTIONS`: ``tacho``,
+        ``pulses_per_rev``, ``missing_pulses``, ``rpm``, ``speed_table``, ...).
 
     Returns
     -------
-    RunAnalysis
+    MultiRunAnalysis
+        One :class:`RunAnalysis` per channel, in the order asked.
 
     References
     ----------
@@ -496,23 +661,26 @@ def track_run(
                 f"--envelope {lo:g},{hi:g}: the band must satisfy 0 < lo < hi < Nyquist ({run.rate_hz / 2:g} Hz)"
             )
         envelope_hz = (lo, hi)
+    unknown = sorted(set(speed_options) - set(SPEED_OPTIONS))
+    if unknown:
+        raise InputError(f"track_channels: unknown option {unknown[0]!r}; allowed: the tracking "
+                         f"options and the speed options {', '.join(SPEED_OPTIONS)}")
+    threads = resolve_threads(threads, "--threads")
     chunk = max(4096, int(CHUNK_S * run.rate_hz))
-    vib_index = _vibration_channel(run, channel, speed_channel)
-    vib = run.channels[vib_index].name  # Run methods take names or 1-based indices
-    unit = run.channels[vib_index].unit
-    if speed_tolerance is None:
-        speed_tolerance = speed_tolerance_for(top, rpb)
+    speed_options = dict(speed_options)
+    if speed_options.get("speed_tolerance") is None:
+        speed_options["speed_tolerance"] = speed_tolerance_for(top, rpb)
+    rows = vibration_channels(run, channels, tacho=speed_options.get("tacho"),
+                              speed_channel=speed_options.get("speed_channel"))
+    names = [run.channels[i].name for i in rows]  # Run methods take names or 1-based indices
     estimate = run_speed_estimate(
-        run, speed_order=speed_order, speed_range=speed_range, speed_channel=speed_channel,
-        speed_scale=speed_scale, channel=vib, tacho=tacho, pulses_per_rev=pulses_per_rev,
-        missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table, chunk=chunk)
+        run, chunk=chunk, channel=names[0],
+        **{k: v for k, v in speed_options.items() if k != "speed_tolerance"})
     if estimate is not None:
         angle, speed_source = estimate.angle, estimate.source
     else:
-        angle, speed_source = _speed(
-            run, tacho=tacho, pulses_per_rev=pulses_per_rev, missing_pulses=missing_pulses,
-            rpm=rpm, speed_table=speed_table, chunk=chunk, speed_tolerance=speed_tolerance,
-        )
+        angle, speed_source = run_speed(run, chunk=chunk, **speed_options)
+    rpm, speed_table = speed_options.get("rpm"), speed_options.get("speed_table")
     if not angle.rpm_max / 60.0 < run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
         given = {"rpm": f"--rpm {rpm}", "speed table": f"--speed-table {speed_table}"}.get(
             speed_source, f"{source}: {speed_source}")
@@ -520,40 +688,77 @@ def track_run(
                          f"({angle.rpm_max / 60.0:g} Hz) lies above the run's Nyquist frequency "
                          f"{run.rate_hz / 2.0:g} Hz; allowed: speeds below "
                          f"{30.0 * run.rate_hz:g} rpm")
-    log = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
+    head = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
     if getattr(angle, "timing", None) is not None:
-        log.append(f"tacho timing: {angle.timing.describe()}")
+        head.append(f"tacho timing: {angle.timing.describe()}")
         if math.isfinite(angle.timing.angle_uncertainty_rev):
-            log.append(f"phase uncertainty at order {top:g}: "
-                       f"{360.0 * top * angle.timing.angle_uncertainty_rev:.2g} deg RMS")
+            head.append(f"phase uncertainty at order {top:g}: "
+                        f"{360.0 * top * angle.timing.angle_uncertainty_rev:.2g} deg RMS")
     if len(angle.stretches) > 1:
-        log.append("speed unknown between the stretches " + ", ".join(
+        head.append("speed unknown between the stretches " + ", ".join(
             f"{a:.3f}-{b:.3f} s" for a, b in angle.stretches) + "; each tracked on its own")
     if estimate is not None:
-        log.append(f"speed: {estimate.method}; uncertainty {100 * estimate.speed_uncertainty:.3g} "
-                   "% RMS")
+        head.append(f"speed: {estimate.method}; uncertainty "
+                    f"{100 * estimate.speed_uncertainty:.3g} % RMS")
     n_total = run.n_samples
 
     def chunks():
         done = 0
-        for piece in run.iter_chunks(vib, chunk):
-            done += len(piece)
+        # Single precision: the tracker filters in single precision (rounding -140 dB).
+        for piece in run.iter_chunks_many(names, chunk, dtype=np.float32):
+            done += piece.shape[-1]
             yield piece
             if progress is not None:
                 progress(min(1.0, done / n_total))
 
     # Blocks overlap by half (OrderAnalysis default): about 2 x revolutions / rpb of them.
-    acc = OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True,
-                        rpm_bins=_map_bins(angle, 2.0 * angle.revolutions / rpb))
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", FoldlineWarning)
-        for piece in iter_order_track(chunks, run.rate_hz, angle, samples_per_rev=spr, protect=protect):
-            acc.feed(piece)
-        spectrum = acc.spectrum()
-        omap = acc.order_map()
-    for w in caught:
-        log.append(f"warning: {w.message}")
-    log.extend(acc.log)
+    accs = [OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True,
+                          rpm_bins=_map_bins(angle, 2.0 * angle.revolutions / rpb))
+            for _ in names]
+    # Several channels on several threads: each channel's spectra are fed on the pool (in
+    # order, one task per channel and piece), while the tracker's own pool works ahead.
+    pool = None
+    if threads > 1 and len(accs) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="foldline-spectra")
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", FoldlineWarning)
+            for pieces in iter_order_track_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
+                                                    protect=protect, threads=threads):
+                if pool is None:
+                    for acc, piece in zip(accs, pieces):
+                        acc.feed(piece)
+                else:
+                    for f in [pool.submit(acc.feed, piece) for acc, piece in zip(accs, pieces)]:
+                        f.result()
+            spectra = [acc.spectrum() for acc in accs]
+            omaps = [acc.order_map() for acc in accs]
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=True)
+    track_warnings = [f"warning: {w.message}" for w in caught]
+    mach = _machine_for(run, machine)
+    lines = () if mach is None else tuple(mach.lines())
+    doubted = angle.doubted.to_frame() if hasattr(angle.doubted, "to_frame") else pd.DataFrame(
+        {"time_s": [], "reason": []}
+    )
+    out = []
+    for row, vib, acc, spectrum, omap in zip(rows, names, accs, spectra, omaps):
+        log = head + track_warnings + list(acc.log)
+        out.append(_analyse_channel(
+            run, vib, run.channels[row].unit, angle, speed_source, spr, rpb, spectrum, omap, log,
+            mach=mach, lines=lines, doubted=doubted, envelope_hz=envelope_hz, cut_orders=cut_orders,
+            cut_bandwidth_orders=cut_bandwidth_orders, rf_map=rf_map, chunk=chunk, protect=protect,
+            source=source, estimate=estimate))
+    return MultiRunAnalysis(tuple(out), threads=threads)
+
+
+def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, omap, log, *, mach,
+                     lines, doubted, envelope_hz, cut_orders, cut_bandwidth_orders, rf_map, chunk,
+                     protect, source, estimate=None) -> RunAnalysis:
+    """Peaks, cuts, envelope, rpm-frequency map and identification of one tracked channel."""
     peaks = _peaks_frame(find_order_peaks(spectrum, n=10))
     orders = tuple(cut_orders) if cut_orders else tuple(
         dict.fromkeys([1.0] + [round(float(o), 3) for o in peaks["order"].head(3) if o > 0])
@@ -576,14 +781,10 @@ def track_run(
             bins = _map_bins(angle, 2.0 * run.n_samples / nperseg)
             rfm = rpm_frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
                                     rpm_bins=bins)
-    mach = _machine_for(run, machine)
     ident = None
     if mach is not None:
         ident = identify_order_map(omap, mach, run.rate_hz)
         log.append(f"identified {len(ident.table)} predicted lines, {len(ident.aliases)} of them aliases")
-    doubted = angle.doubted.to_frame() if hasattr(angle.doubted, "to_frame") else pd.DataFrame(
-        {"time_s": [], "reason": []}
-    )
     return RunAnalysis(
         source=str(source),
         rate_hz=float(run.rate_hz),
@@ -603,7 +804,7 @@ def track_run(
         cuts=tuple(cuts),
         rf_map=rfm,
         identification=ident,
-        lines=() if mach is None else tuple(mach.lines()),
+        lines=lines,
         doubted=doubted,
         protect=bool(protect),
         log=tuple(log),

@@ -4,18 +4,40 @@ Pure math of acquisition.  Imports only numpy, scipy, pandas and the standard li
 machine layer's line objects, by duck typing).
 """
 
-from workbench.sampling.filters import (ANALOG_KINDS, FILTER_KINDS, MAX_ANALOG_ORDER,
-                                        TABLE_UNITS, AntiAliasFilter)
-from workbench.sampling.folding import apparent_frequency, apparent_order, fold, nyquist_zone
-from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from_dict,
-                                     plan_to_dict, read_plan, write_plan)
-from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
-from workbench.sampling.foldmap import COLLISION_COLUMNS, FoldMap, find_collisions, fold_map
-from workbench.sampling.resonance import (CROSSING_COLUMNS, PEAK_LOSS_LIMIT_DB, Crossing,
-                                          fastest_sweep_rpm_per_s, find_crossings,
-                                          passage_loss_db, passage_peak_ratio)
-from workbench.sampling.advisor import (STANDARD_RATES_HZ, Advice, AngleSettings, advise,
-                                        angle_settings, min_rate_for)
+import importlib
+
+# Names are imported on first use (PEP 562), so that a verb needing only the folding rule
+# (``foldline alias``) does not pay for pandas and the fold-map machinery.
+_LAZY = {
+    "workbench.sampling.filters": ("ANALOG_KINDS", "FILTER_KINDS", "MAX_ANALOG_ORDER",
+                                   "TABLE_UNITS", "AntiAliasFilter"),
+    "workbench.sampling.folding": ("apparent_frequency", "apparent_order", "fold",
+                                   "nyquist_zone"),
+    "workbench.sampling.plan": ("DEFAULT_THRESHOLD_DB", "Band", "Plan", "plan_from_dict",
+                                "plan_to_dict", "read_plan", "write_plan"),
+    "workbench.sampling.profiles": ("PROFILE_KINDS", "SpeedProfile", "read_speed_table"),
+    "workbench.sampling.foldmap": ("COLLISION_COLUMNS", "FoldMap", "find_collisions", "fold_map"),
+    "workbench.sampling.resonance": ("CROSSING_COLUMNS", "PEAK_LOSS_LIMIT_DB", "Crossing",
+                                     "fastest_sweep_rpm_per_s", "find_crossings",
+                                     "passage_loss_db", "passage_peak_ratio"),
+    "workbench.sampling.advisor": ("STANDARD_RATES_HZ", "Advice", "AngleSettings", "advise",
+                                   "angle_settings", "min_rate_for"),
+}
+_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
+
+
+def __getattr__(name):
+    mod = _HOME.get(name)
+    if mod is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    value = getattr(importlib.import_module(mod), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_HOME))
+
 
 __all__ = [
     "apparent_frequency",

@@ -5,7 +5,9 @@ Steps and what each control redoes (the rest is kept):
 1. the speed and shaft angle -- once per speed source and its settings (tacho pulses, an
    order's ridge in the vibration, or an analogue speed channel; the tacho check figure);
 2. computed order tracking of the chosen channel -- per (channel, samples per rev, alias
-   protection), with a progress bar fed chunk by chunk;
+   protection), with a progress bar fed chunk by chunk; the channels ticked in "track
+   together" are tracked in the same pass (one block plan for all), so switching the shown
+   channel among them redoes nothing;
 3. order map, order spectrum, peaks and the identification of measured ridges with the
    machine's predicted lines (direct and folded) -- per (block length, window);
 4. order cuts -- per list of orders;
@@ -130,7 +132,7 @@ class AngleDomainPanel:
             with collect_warnings():
                 s = angle_settings(self.lines, self.plan)
             spr, rpb = s.samples_per_rev, s.revs_per_block
-        self._tracks = Cache(4)
+        self._tracks = Cache(max(4, self.run.n_channels + 2))
         self._analyses = Cache(8)
         self._cuts = Cache(8)
         self._drawn = {}
@@ -156,6 +158,9 @@ class AngleDomainPanel:
         names = [n for n in run.channel_names if n != run.tacho] or list(run.channel_names)
         self.channel = widgets.Dropdown(options=names, value=channel or names[0], description="vibration channel",
                                         style=style, layout=wide)
+        self.channels = widgets.SelectMultiple(options=names, value=(self.channel.value,),
+                                               rows=min(4, len(names)), description="track together",
+                                               style=style, layout=wide)
         sizes = sorted({2 ** k for k in range(4, 13)} | {int(spr)})
         self.samples_per_rev = widgets.Dropdown(options=sizes, value=int(spr), description="samples per rev",
                                                 style=style, layout=wide)
@@ -203,9 +208,10 @@ class AngleDomainPanel:
             self.tabs.set_title(i, title)
         self.tabs.selected_index = 1
         controls = widgets.VBox([
-            self.channel, self.samples_per_rev, self.revs_per_block, self.window, self.protect,
-            self.cut_orders, self.speed_source, self.speed_order, self.speed_range, self.speed_channel,
-            self.speed_scale, self.progress, widgets.HTML("<hr>"), self.folder, self.overwrite,
+            self.channel, self.channels, self.samples_per_rev, self.revs_per_block, self.window,
+            self.protect, self.cut_orders, self.speed_source, self.speed_order, self.speed_range,
+            self.speed_channel, self.speed_scale, self.progress, widgets.HTML("<hr>"), self.folder,
+            self.overwrite,
             widgets.HBox([self.export_tables, self.export_figures]), self.status,
         ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
         self.header = widgets.HTML()
@@ -291,19 +297,27 @@ class AngleDomainPanel:
         return self._tracks.get(self._track_key(), lambda: self._tracked(*self._track_key()))
 
     def _tracked(self, channel, samples_per_rev, protect) -> AngleSignal:
-        """Feed the tracker chunk by chunk; the progress bar counts the samples fed."""
+        """Feed the tracker chunk by chunk (the shown channel and the other channels ticked in
+        "track together", in one pass); the progress bar counts the samples fed."""
         _, angle = self.tacho()
-        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=samples_per_rev, protect=protect)
+        together = [c for c in self.channels.value if c != channel
+                    and (c, samples_per_rev, protect) not in self._tracks._items]
+        chans = [channel] + together
+        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=samples_per_rev, protect=protect,
+                               threads=None)
         self.progress.bar_style = ""
         self.progress.value = 0
         pieces, done = [], 0
-        for chunk in self.run.iter_chunks(channel, _CHUNK):
+        for chunk in self.run.iter_chunks_many(chans, _CHUNK):
             pieces.extend(tracker.feed(chunk))
-            done += len(chunk)
+            done += chunk.shape[-1]
             self.progress.value = done
         pieces.extend(tracker.finish())
         self.progress.bar_style = "success"
-        return AngleSignal.concatenate(pieces, tracker.log)
+        sigs = [AngleSignal.concatenate([p[r] for p in pieces], tracker.log) for r in range(len(chans))]
+        for c, sig in zip(together, sigs[1:]):
+            self._tracks.put((c, samples_per_rev, protect), sig)
+        return sigs[0]
 
     def analysis(self):
         """Order map, order spectrum, its peaks and the identification of predicted lines."""
