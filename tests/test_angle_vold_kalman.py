@@ -375,3 +375,33 @@ def test_extract_verb_refuses_bad_orders_in_one_line(small_run, capsys, orders):
     captured = capsys.readouterr()
     assert code == 2 and captured.out == ""
     assert captured.err.startswith("foldline: error: --orders") and captured.err.count("\n") == 1
+
+
+def test_extract_verb_takes_a_channel_list(tmp_path, capsys):
+    # Two accelerometers against one known speed: order 4 at amplitude 1 on the first and 0.25
+    # on the second (analytic signals).  Every channel is extracted with the same speed; the
+    # JSON keeps the first channel's keys and lists each channel; --out has a folder each.
+    from workbench.cli.main import main
+    from workbench.runs import Channel, Run, write_run
+
+    rate, rpm = 2048.0, 1800.0
+    t = np.arange(int(12 * rate)) / rate
+    revs = rpm / 60.0 * t
+    a = np.cos(2 * np.pi * 4 * revs)
+    run = Run(np.vstack([a, 0.25 * a]).astype(np.float32), rate,
+              (Channel("drive end", "m/s^2"), Channel("fan end", "m/s^2")))
+    path = tmp_path / "two.wav"
+    write_run(run, path)
+    out = tmp_path / "ex"
+    code = main(["extract", str(path), "--rpm", "1800", "--orders", "4", "--channel", "all",
+                 "--out", str(out), "--json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    d = json.loads(captured.out)
+    assert d["channel"] == "drive end" and [c["channel"] for c in d["channels"]] == [
+        "drive end", "fan end"]
+    mid = len(d["orders"][0]["amplitude"]) // 2
+    levels = [c["orders"][0]["amplitude"][mid] for c in d["channels"]]
+    assert levels == pytest.approx([1.0, 0.25], rel=1e-3)
+    assert sorted(p.name for p in out.iterdir()) == ["drive_end", "fan_end"]
+    assert (out / "fan_end" / "order_4.wav").exists()

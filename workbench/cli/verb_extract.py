@@ -31,7 +31,8 @@ def cmd_extract(args) -> int:
     from workbench.cli.options import parse_orders, track_options_from_args
     from workbench.errors import OutputExistsError
     from workbench.runs import read_run
-    from workbench.runs.analysis import SPEED_OPTIONS, _vibration_channel, run_speed
+    from workbench.cli.verbs_runs import channel_folders
+    from workbench.runs.analysis import SPEED_OPTIONS, run_speed, vibration_channels
 
     orders = parse_orders(args.orders, "--orders")
     if len(set(orders)) != len(orders):
@@ -50,32 +51,50 @@ def cmd_extract(args) -> int:
         warnings.warn(f"--{unused[0].replace('_', '-')} shapes order spectra; extract ignores it",
                       FoldlineWarning, stacklevel=1)
     out = Path(args.out) if args.out else None
-    if out is not None:
-        if out.exists() and not out.is_dir():
-            raise InputError(f"--out {out}: exists and is not a folder; give a folder")
-        clash = [p for p in _outputs(orders, out) if p.exists()]
-        if clash and not args.force:
-            raise OutputExistsError(f"{clash[0]}: exists already; pass --force to replace the outputs "
-                                    f"in {out}")
+    if out is not None and out.exists() and not out.is_dir():
+        raise InputError(f"--out {out}: exists and is not a folder; give a folder")
     run = read_run(args.run, rate_hz=opts.get("rate_hz"))
     if out is not None and not float(run.rate_hz).is_integer():
         raise InputError(f"--out {out}: the run's rate {run.rate_hz:g} Hz is not a whole number, so "
                          "its order waveforms cannot be WAV files; leave --out away and use --json")
-    chans = opts.get("channels")
-    if chans == "all" or (chans is not None and len(chans) > 1):
-        raise InputError(f"--channel {args.channel}: foldline extract takes one channel; give "
-                         "one index or name, and run it once per channel")
-    index = _vibration_channel(run, None if chans is None else chans[0])
-    channel = run.channels[index]
+    rows = vibration_channels(run, opts.get("channels"), tacho=opts.get("tacho"),
+                              speed_channel=opts.get("speed_channel"))
+    names = [run.channels[i].name for i in rows]
+    folders = channel_folders(out, names) if out is not None else {}
+    for folder in folders.values():   # refuse before any work when an output would be replaced
+        clash = [p for p in _outputs(orders, folder) if p.exists()]
+        if clash and not args.force:
+            raise OutputExistsError(f"{clash[0]}: exists already; pass --force to replace the "
+                                    f"outputs in {folder}")
     angle, speed_source = run_speed(run, **{k: opts[k] for k in SPEED_OPTIONS if k in opts})
-    x = run.channel(channel.name)
-    ex = extract_orders(x, run.rate_hz, angle, orders, bandwidth_hz=args.bandwidth,
-                        bandwidth_pct=args.bandwidth_pct, filter_order=args.filter_order)
-    del x
-    files = write_extract_outputs(ex, out, unit=channel.unit, force=args.force,
-                                  title=f"{Path(args.run).name}, channel {channel.name}") \
-        if out is not None else []
-    keep = _thin(len(ex.time_s))
+    files, per_channel, extractions = [], [], []
+    for row, name in zip(rows, names):
+        channel = run.channels[row]
+        x = run.channel(name)
+        ex = extract_orders(x, run.rate_hz, angle, orders, bandwidth_hz=args.bandwidth,
+                            bandwidth_pct=args.bandwidth_pct, filter_order=args.filter_order)
+        del x
+        written = write_extract_outputs(ex, folders[name], unit=channel.unit, force=args.force,
+                                        title=f"{Path(args.run).name}, channel {name}") \
+            if out is not None else []
+        files.extend(written)
+        keep = _thin(len(ex.time_s))
+        per_channel.append({
+            "channel": name,
+            "unit": channel.unit,
+            "orders": [
+                {
+                    "order": o,
+                    "time_s": ex.time_s[keep],
+                    "rpm": ex.rpm[keep],
+                    "amplitude": ex.amplitude[i, keep],
+                    "phase_deg": ex.phase_deg[i, keep],
+                }
+                for i, o in enumerate(ex.orders)
+            ],
+        })
+        extractions.append((channel, ex))
+    channel, ex = extractions[0]
     result = {
         "source": str(args.run),
         "channel": channel.name,
@@ -86,34 +105,29 @@ def cmd_extract(args) -> int:
         "bandwidth_hz": None if args.bandwidth_pct is not None else float(ex.bandwidth_hz[0, 0]),
         "bandwidth_pct": args.bandwidth_pct,
         "envelope_rate_hz": ex.envelope_rate_hz,
-        "orders": [
-            {
-                "order": o,
-                "time_s": ex.time_s[keep],
-                "rpm": ex.rpm[keep],
-                "amplitude": ex.amplitude[i, keep],
-                "phase_deg": ex.phase_deg[i, keep],
-            }
-            for i, o in enumerate(ex.orders)
-        ],
+        "orders": per_channel[0]["orders"],
     }
+    if len(per_channel) > 1:           # the first channel's keys stay; every channel is listed
+        result["channels"] = per_channel
     if files:
         result["files"] = [str(f) for f in files]
     if args.json:
         emit_json(result)
         return 0
-    unit = f" {channel.unit}" if channel.unit else ""
     bw = (f"{args.bandwidth_pct:g} % of each order" if args.bandwidth_pct is not None
           else f"{ex.bandwidth_hz[0, 0]:g} Hz")
-    print(f"{args.run}: channel {channel.name}, {run.rate_hz:g} S/s, speed from {speed_source}: "
+    print(f"{args.run}: {run.rate_hz:g} S/s, speed from {speed_source}: "
           f"{np.nanmin(ex.rpm):.0f}-{np.nanmax(ex.rpm):.0f} rpm")
     print(f"Vold-Kalman extraction, -3 dB bandwidth {bw}, filter order {ex.filter_order}, "
           f"envelopes at {ex.envelope_rate_hz:g} Hz")
-    for i, o in enumerate(ex.orders):
-        amp = ex.amplitude[i]
-        j = int(np.argmax(amp))
-        print(f"  order {o:g}: peak amplitude {amp[j]:.4g}{unit} at {ex.rpm[j]:.0f} rpm "
-              f"(t = {ex.time_s[j]:.2f} s), mean {np.mean(amp):.4g}{unit}")
+    for channel, ex in extractions:
+        unit = f" {channel.unit}" if channel.unit else ""
+        print(f"channel {channel.name}:")
+        for i, o in enumerate(ex.orders):
+            amp = ex.amplitude[i]
+            j = int(np.argmax(amp))
+            print(f"  order {o:g}: peak amplitude {amp[j]:.4g}{unit} at {ex.rpm[j]:.0f} rpm "
+                  f"(t = {ex.time_s[j]:.2f} s), mean {np.mean(amp):.4g}{unit}")
     if files:
         print(f"outputs written to {out}")
     return 0

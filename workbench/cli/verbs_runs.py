@@ -192,7 +192,8 @@ def cmd_track(args) -> int:
     channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
     run = read_run(args.run, rate_hz=opts.pop("rate_hz", None))
-    rows = vibration_channels(run, channels, tacho=opts.get("tacho"))
+    rows = vibration_channels(run, channels, tacho=opts.get("tacho"),
+                              speed_channel=opts.get("speed_channel"))
     folders = {}
     if out is not None:
         folders = channel_folders(out, [run.channels[i].name for i in rows])
