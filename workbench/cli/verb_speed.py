@@ -26,7 +26,7 @@ def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
 
 def speed_result(run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
                  speed_order=None, speed_range=None, speed_channel=None, speed_scale=None,
-                 channel=None) -> dict:
+                 channel=None, speed_tolerance=None) -> dict:
     """The speed of a run as the verb reports it (every estimate, not thinned).
 
     Returns
@@ -54,7 +54,8 @@ def speed_result(run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
             method = est.method
         else:
             angle, source = run_speed(run, tacho=tacho, pulses_per_rev=pulses_per_rev,
-                                      missing_pulses=missing_pulses)
+                                      missing_pulses=missing_pulses,
+                                      speed_tolerance=speed_tolerance)
             t = np.asarray(angle.pulse_times_s)
             rpm = np.asarray(angle.rpm_at(t))
             timing = getattr(angle, "timing", None)
@@ -84,7 +85,7 @@ def write_speed_table(path, time_s, rpm, *, force: bool = False) -> None:
 def cmd_speed(args) -> int:
     """Speed of a run from the tacho, an order of the vibration or a speed channel."""
     from workbench.cli.main import emit_json
-    from workbench.cli.options import _channel, speed_options_from_args
+    from workbench.cli.options import _channel, _percent, speed_options_from_args
     from workbench.runs import check_writable, read_run
 
     opts = speed_options_from_args(args)
@@ -93,6 +94,7 @@ def cmd_speed(args) -> int:
     run = read_run(args.run, rate_hz=args.rate)
     res = speed_result(run, tacho=_channel(args.tacho), pulses_per_rev=args.pulses_per_rev,
                        missing_pulses=args.missing_pulses, channel=_channel(args.channel),
+                       speed_tolerance=_percent(args.speed_tolerance, "--speed-tolerance"),
                        **opts)
     if args.out:
         write_speed_table(args.out, res["time_s"], res["rpm"], force=args.force)
@@ -139,6 +141,9 @@ def add_speed_verb(verb) -> None:
     g.add_argument("--missing-pulses", type=int, metavar="M",
                    help="missing teeth of the tacho wheel")
     add_speed_options(g, source)
+    g.add_argument("--speed-tolerance", type=float, metavar="PCT",
+                   help="RMS speed uncertainty (percent) the tacho stage aims at and warns "
+                        "beyond (default 0.0078, from order 100 and 16 revs per block)")
     g.add_argument("--channel", metavar="CH",
                    help="vibration channel --speed-order follows (default: the first that is "
                         "not the tacho)")
