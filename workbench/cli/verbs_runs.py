@@ -191,9 +191,20 @@ def cmd_track(args) -> int:
     out = Path(args.out) if args.out else None
     if out is not None:
         _check_out_folder(out, force=args.force)
+    from workbench.cli.display_options import analysis_options_from_args
+
+    aa_filter = None
+    if getattr(args, "plan", None):
+        from workbench.sampling import read_plan
+
+        aa_filter = read_plan(args.plan).filter
     analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
-                         max_order=args.max_order, **opts)
-    files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
+                         max_order=args.max_order, aa_filter=aa_filter, **opts,
+                         **analysis_options_from_args(args))
+    from workbench.cli.display_options import display_options_from_args
+
+    files = (write_track_outputs(analysis, out, force=args.force, **display_options_from_args(args))
+             if out is not None else [])
     result = analysis.to_dict()
     if files:
         result["files"] = [str(f) for f in files]
@@ -206,6 +217,7 @@ def cmd_track(args) -> int:
 
 TRACK_FILES = (
     "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
+    "unmatched.csv", "overall_level.csv", "overall_level.png",
     "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
     "rpm_frequency_map.png",
 )
@@ -223,8 +235,12 @@ def _check_out_folder(out: Path, *, force: bool) -> None:
             raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace the outputs in {out}")
 
 
-def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
-    """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``."""
+def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: str = "none") -> list:
+    """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``.
+
+    ``overlay`` (``"none"``, ``"matched"``, ``"all"``) chooses the predicted lines drawn over
+    the maps and the order spectrum.
+    """
     import numpy as np
     import pandas as pd
 
@@ -255,6 +271,11 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
               "order_cuts.csv")
     if a.identification is not None:
         table(a.identification.table, "identification.csv")
+    if getattr(a, "unmatched", None) is not None:
+        table(a.unmatched, "unmatched.csv")
+    if getattr(a, "overall", None) is not None:
+        table(pd.DataFrame({"rpm": a.overall.rpm, "rms": a.overall.rms, "blocks": a.overall.n_blocks}),
+              "overall_level.csv")
     table(a.doubted, "doubted_pulses.csv")
     sa = a.shaft_angle
     t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
@@ -263,16 +284,28 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})"), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
     top = a.samples_per_rev / 2.56
+    valid = getattr(a, "valid", None)
     figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,
+                               overlay=overlay, identification=a.identification, valid=valid,
+                               rpm_range=(a.rpm_min, a.rpm_max),
                                title=f"Order spectrum: {Path(a.source).name}, channel {a.channel}"), "order_spectrum.png")
     figure(plot_order_map(a.order_map, lines=lines, rate_hz=a.rate_hz, identification=a.identification,
-                          max_order=top, unit=a.unit, title=f"Order map: {Path(a.source).name}, predicted lines overlaid"),
+                          max_order=top, unit=a.unit, overlay=overlay, unmatched=getattr(a, "unmatched", None),
+                          valid=valid,
+                          title=f"Order map: {Path(a.source).name}"),
            "order_map.png")
     if a.cuts:
-        figure(plot_order_cuts(a.cuts, unit=a.unit), "order_cuts.png")
+        figure(plot_order_cuts(a.cuts, unit=a.unit, valid=valid), "order_cuts.png")
+    if getattr(a, "overall", None) is not None:
+        from workbench.plots import plot_overall_level
+
+        figure(plot_overall_level(a.overall, unit=a.unit, cuts=a.cuts,
+                                  title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
+               "overall_level.png")
     if a.rf_map is not None:
-        names = None if a.identification is None else set(a.identification.table["line"])
-        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, names=names),
+        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, overlay=overlay,
+                                      identification=a.identification, valid=valid,
+                                      title=f"rpm-frequency map: {Path(a.source).name}"),
                "rpm_frequency_map.png")
     return files
 
@@ -295,6 +328,12 @@ def _print_track(a, files) -> None:
         print(f"\nfolded lines identified in the order map (aliases, not machine orders): {len(al)}")
         print(al[["line", "zone", "rpm_min", "rpm_max", "amplitude_max"]].to_string(
             index=False, float_format=lambda v: f"{v:.4g}"))
+    um = getattr(a, "unmatched", None)
+    if um is not None and len(um):
+        what = "match no predicted line" if a.identification is not None else "were measured (no machine file)"
+        print(f"\nmeasured lines that {what}: {len(um)}")
+        print(um[["id", "family", "order", "hz", "rpm_min", "rpm_max", "amplitude_max"]].head(20).to_string(
+            index=False, float_format=lambda v: f"{v:.4g}", na_rep="-"))
     if files:
         print(f"\noutputs written to {Path(files[0]).parent}")
 
@@ -331,7 +370,12 @@ def add_verbs(verb) -> None:
     p = verb("track", "order tracking of a recorded run: speed, order spectrum, peaks, maps, aliases")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
     add_track_options(p)
+    from workbench.cli.display_options import add_display_options
+
+    add_display_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
+    p.add_argument("--plan", metavar="PLAN", help="plan file of the acquisition: its anti-alias filter bounds the "
+                                                  "valid region of the results (default: Nyquist of the run's rate)")
     p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
     p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder")

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from matplotlib.figure import Figure
 
-__all__ = ["new_figure", "save_figure", "figure_bytes", "KIND_COLOURS"]
+__all__ = ["new_figure", "save_figure", "figure_bytes", "KIND_COLOURS", "place_labels"]
 
 #: Colour of each line kind family (colour-blind safe palette of Wong, Nature Methods 8:441, 2011).
 KIND_COLOURS = {
@@ -65,3 +65,47 @@ def save_figure(fig, path, *, force=False, dpi=110) -> Path:
     with atomic_output(path, force=force) as tmp:
         Path(tmp).write_bytes(data)
     return path
+
+
+def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=()):
+    """Choose for each label one of its candidate points so that no two labels overlap.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+        Its limits must be final (the choice is made in display pixels).
+    candidates : sequence of array_like, shape (n_i, 2)
+        For each label, candidate (x, y) points in data coordinates, most preferred first.
+    min_separation_px : float
+        Least distance between two labels' anchor points, display pixels.
+    occupied : sequence of (x, y)
+        Points (data coordinates) already taken.
+
+    Returns
+    -------
+    list of (x, y) or None
+        The chosen point of each label, or None where every candidate was taken (the caller
+        then lists the label in its key only).
+    """
+    import numpy as np
+
+    fig = ax.figure
+    fig.draw_without_rendering()  # final layout, so pixel distances are the saved ones
+    bbox = ax.get_window_extent()
+    taken = [ax.transData.transform(p) for p in occupied]
+    out = []
+    for cand in candidates:
+        cand = np.asarray(cand, dtype=float).reshape(-1, 2)
+        cand = cand[np.all(np.isfinite(cand), axis=1)]
+        chosen = None
+        if len(cand):
+            pix = ax.transData.transform(cand)
+            inside = ((pix[:, 0] > bbox.x0 + 8) & (pix[:, 0] < bbox.x1 - 8)
+                      & (pix[:, 1] > bbox.y0 + 8) & (pix[:, 1] < bbox.y1 - 8))
+            for k in np.flatnonzero(inside):
+                if all(np.hypot(*(pix[k] - t)) >= min_separation_px for t in taken):
+                    chosen = (float(cand[k, 0]), float(cand[k, 1]))
+                    taken.append(pix[k])
+                    break
+        out.append(chosen)
+    return out
