@@ -7,7 +7,8 @@ from pathlib import Path
 
 from matplotlib.figure import Figure
 
-__all__ = ["new_figure", "save_figure", "figure_bytes", "KIND_COLOURS", "place_labels"]
+__all__ = ["new_figure", "save_figure", "figure_bytes", "KIND_COLOURS", "place_labels", "SOURCE_PALETTE",
+           "source_colours", "text_size_px"]
 
 #: Colour of each line kind family (colour-blind safe palette of Wong, Nature Methods 8:441, 2011).
 KIND_COLOURS = {
@@ -67,7 +68,7 @@ def save_figure(fig, path, *, force=False, dpi=110) -> Path:
     return path
 
 
-def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=()):
+def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=(), sizes=None):
     """Choose for each label one of its candidate points so that no two labels overlap.
 
     Parameters
@@ -77,9 +78,14 @@ def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=()):
     candidates : sequence of array_like, shape (n_i, 2)
         For each label, candidate (x, y) points in data coordinates, most preferred first.
     min_separation_px : float
-        Least distance between two labels' anchor points, display pixels.
+        Least distance between two labels' anchor points, display pixels (labels without a
+        size).
     occupied : sequence of (x, y)
-        Points (data coordinates) already taken.
+        Points (data coordinates) already taken (a box of ``min_separation_px`` around each).
+    sizes : sequence of (width_px, height_px), optional
+        Size of each label's box, its anchor at the left middle of the box; boxes of
+        different labels must not intersect (with a 2-pixel margin).  Without sizes a label
+        is a box of ``min_separation_px`` centred on its anchor.
 
     Returns
     -------
@@ -92,20 +98,47 @@ def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=()):
     fig = ax.figure
     fig.draw_without_rendering()  # final layout, so pixel distances are the saved ones
     bbox = ax.get_window_extent()
-    taken = [ax.transData.transform(p) for p in occupied]
+    d = float(min_separation_px)
+    taken = []  # (x0, y0, x1, y1) in pixels
+    for p in occupied:
+        x, y = ax.transData.transform(p)
+        taken.append((x - d / 2, y - d / 2, x + d / 2, y + d / 2))
     out = []
-    for cand in candidates:
+    for i, cand in enumerate(candidates):
         cand = np.asarray(cand, dtype=float).reshape(-1, 2)
         cand = cand[np.all(np.isfinite(cand), axis=1)]
+        w, h = (d, d) if sizes is None else (float(sizes[i][0]), float(sizes[i][1]))
+        dx0 = -d / 2 if sizes is None else 0.0
         chosen = None
         if len(cand):
             pix = ax.transData.transform(cand)
-            inside = ((pix[:, 0] > bbox.x0 + 8) & (pix[:, 0] < bbox.x1 - 8)
-                      & (pix[:, 1] > bbox.y0 + 8) & (pix[:, 1] < bbox.y1 - 8))
-            for k in np.flatnonzero(inside):
-                if all(np.hypot(*(pix[k] - t)) >= min_separation_px for t in taken):
+            for k in range(len(pix)):
+                x0, y0 = pix[k, 0] + dx0, pix[k, 1] - h / 2
+                x1, y1 = x0 + w, y0 + h
+                if x0 < bbox.x0 + 2 or x1 > bbox.x1 - 2 or y0 < bbox.y0 + 2 or y1 > bbox.y1 - 2:
+                    continue
+                if all(x1 + 2 <= a0 or a1 + 2 <= x0 or y1 + 2 <= b0 or b1 + 2 <= y0 for a0, b0, a1, b1 in taken):
                     chosen = (float(cand[k, 0]), float(cand[k, 1]))
-                    taken.append(pix[k])
+                    taken.append((x0, y0, x1, y1))
                     break
         out.append(chosen)
     return out
+
+
+def text_size_px(text, fontsize, dpi=100.0):
+    """Rough box of a one-line text, pixels: 0.6 em per character wide, 1.5 em high (+ padding)."""
+    em = fontsize * dpi / 72.0
+    return (0.6 * em * len(str(text)) + 6.0, 1.5 * em + 4.0)
+
+
+#: Colours of sources on a fold map, assigned in the machine's order: the colour-blind safe
+#: palette of Wong (Nature Methods 8:441, 2011) without its yellow (too pale on white), then
+#: matplotlib's tab10 for machines with more sources.
+SOURCE_PALETTE = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000",
+                  "#8C564B", "#7F7F7F", "#BCBD22", "#17BECF", "#9467BD", "#D62728", "#2CA02C")
+
+
+def source_colours(lines) -> dict:
+    """One colour per source entry of ``lines`` (entry name -> colour), in first-seen order."""
+    entries = list(dict.fromkeys(ln.entry for ln in lines))
+    return {e: SOURCE_PALETTE[i % len(SOURCE_PALETTE)] for i, e in enumerate(entries)}
