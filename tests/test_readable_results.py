@@ -265,3 +265,87 @@ def test_a_line_inside_a_cut_band_is_warned_about():
     assert (d["rpm_min"], d["rpm_max"]) == (a.cuts[0].rpm.min(), a.cuts[0].rpm.max())
     assert not [d for d in a.cut_band_lines if d["line"] == "motor shaft"]  # the cut's own line
     assert a.to_dict()["cut_band_lines"][0]["line"] == "cage order"
+
+
+# -- scaling: peak / RMS / dB, integration to velocity and displacement ----------------------------
+
+@pytest.fixture(scope="module")
+def one_order():
+    m = machine_from_dict({"machine": {"name": "one order", "reference": "motor"},
+                           "shaft": [{"name": "motor"}],
+                           "order": [{"name": "mesh", "shaft": "motor", "order": 12.0, "level_db": 6.0}]})
+    run = simulate_run(m, _plan(), RATE, seed=8, tacho_rise_s=2e-3, resonance_gain_db=0.0, noise_db=-80.0,
+                       duration_s=10.0)
+    return m, track_run(run, machine=m, samples_per_rev=64, revs_per_block=16, cut_orders=(12.0,))
+
+
+def test_integration_of_a_sinusoid_matches_its_analytic_velocity(one_order):
+    from workbench.angle.scaling import AmplitudeScaling
+    from workbench.runs.scaled import scaled_analysis
+
+    _m, a = one_order
+    acc = 10 ** (6 / 20)  # peak acceleration of order 12, m/s^2 (level 6 dB re 1 m/s^2)
+    assert a.unit == "m/s^2"
+    v = scaled_analysis(a, AmplitudeScaling(integrate="velocity"))
+    d = scaled_analysis(a, AmplitudeScaling(integrate="displacement", amplitude="rms"))
+    cut, rpm = v.cuts[0], np.asarray(v.cuts[0].rpm)
+    f = 12.0 * rpm / 60.0
+    # a(t) = A cos(2 pi f t)  ->  v(t) = A / (2 pi f) sin(2 pi f t),  x(t) = -A / (2 pi f)^2 cos(...)
+    # (calculus); shown in mm/s and um (RMS: / sqrt 2)
+    np.testing.assert_allclose(cut.amplitude, 1e3 * acc / (2 * np.pi * f), rtol=0.02)
+    np.testing.assert_allclose(d.cuts[0].amplitude, 1e6 * acc / (2 * np.pi * f) ** 2 / np.sqrt(2), rtol=0.02)
+    assert v.unit == "mm/s" and d.unit == "um" and v.channel_unit == "m/s^2"
+    assert v.to_dict()["scaling"]["label"] == "velocity, peak (mm/s)"
+    # the peak of the integrated spectrum is the run's average of the velocity at order 12
+    want = 1e3 * acc / (2 * np.pi * 12.0 / 60.0) * np.sqrt(np.mean(1 / rpm ** 2))
+    p12 = v.peaks.iloc[(v.peaks["order"] - 12.0).abs().argmin()]
+    assert p12["order"] == pytest.approx(12.0, abs=0.02)
+    assert p12["amplitude"] == pytest.approx(want, rel=0.03)
+    # identified amplitude: at the point of largest velocity (lowest speed)
+    row = v.identification.table.set_index("line").loc["mesh order"]
+    assert row["amplitude_max"] == pytest.approx(1e3 * acc / (2 * np.pi * f.min()), rel=0.03)
+
+
+def test_rms_and_db_levels(one_order):
+    from workbench.angle.scaling import AmplitudeScaling
+    from workbench.runs.scaled import scaled_analysis
+
+    _m, a = one_order
+    rms = scaled_analysis(a, AmplitudeScaling(amplitude="rms"))
+    np.testing.assert_allclose(rms.spectrum.amplitude, a.spectrum.amplitude / np.sqrt(2), rtol=1e-12)
+    db = scaled_analysis(a, AmplitudeScaling(db_ref=1e-6))  # dB re 1 um/s^2, peak
+    # 20 log10(A / ref) (definition of the level in dB)
+    np.testing.assert_allclose(db.peaks["amplitude"], 20 * np.log10(a.peaks["amplitude"] / 1e-6), rtol=1e-12)
+    assert db.unit == "dB re 1e-06 m/s^2"
+
+
+def test_integrate_refuses_a_channel_that_is_not_acceleration(tmp_path, capsys):
+    from workbench.angle.scaling import acceleration_factor, G_N
+    from workbench.errors import InputError
+
+    assert acceleration_factor("g") == G_N and acceleration_factor("mm/s^2") == 1e-3
+    with pytest.raises(InputError, match="acceleration channel"):
+        acceleration_factor("V")
+    assert main(["track", "x.wav", "--integrate-from", "5"]) == 2
+    assert "--integrate-from 5: it applies with --integrate" in capsys.readouterr().err
+
+
+# -- maps as data -----------------------------------------------------------------------------------
+
+def test_map_data_round_trip(tracked, tmp_path):
+    from workbench.runs.mapdata import map_data, read_map_data, write_map_npz, write_map_parquet
+
+    for obj, kind in ((tracked.order_map, "order"), (tracked.rf_map, "frequency")):
+        d = map_data(obj, unit=tracked.unit)
+        for path in (write_map_npz(d, tmp_path / f"{kind}.npz"), write_map_parquet(d, tmp_path / f"{kind}.parquet")):
+            back = read_map_data(path)
+            assert back.kind == kind and back.unit == "m/s^2" and back.amplitude_scaling == "peak"
+            np.testing.assert_array_equal(back.rpm, obj.rpm)
+            np.testing.assert_array_equal(back.axis, obj.order if kind == "order" else obj.hz)
+            np.testing.assert_array_equal(back.amplitude, obj.amplitude)
+            assert back.axes()["amplitude"] == "m/s^2"
+    import pandas as pd
+
+    t = pd.read_parquet(tmp_path / "order.parquet")  # a tidy table any tool reads
+    assert list(t.columns) == ["rpm", "order", "amplitude", "n_averaged"]
+    assert len(t) == tracked.order_map.amplitude.size

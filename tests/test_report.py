@@ -128,8 +128,8 @@ def test_report_opens_offline_with_no_error_and_no_request(browser_page, report_
     # The only request is the file itself (every figure is inline SVG).
     assert events["requests"] == [out.as_uri()]
     # Fold maps (Hz and order view) of the worst candidate and the recommended rate, then the
-    # run's tacho check, order spectrum, order map, order cuts and rpm-frequency map.
-    assert page.locator("figure.plot svg").count() == 9
+    # run's tacho check, order spectrum, order map, order cuts, overall level and rpm-frequency map.
+    assert page.locator("figure.plot svg").count() == 10
     assert page.locator("script").count() == 1
     # The sorting script ran (it marks each sortable table).
     assert page.locator("table.sortable.js").count() == page.locator("table.sortable").count()

@@ -474,7 +474,7 @@ def test_export_writes_tables_and_figures(angle_panel, tmp_path):
     assert ("tacho_check.png, order_map.png, order_cuts.png, order_spectrum.png exist(s) already; "
             "nothing written") in angle_panel.status.value
     angle_panel.overwrite.value = True
-    assert len(angle_panel.export("tables", tmp_path)) == 6
+    assert len(angle_panel.export("tables", tmp_path)) == 7
     angle_panel.overwrite.value = False
 
 

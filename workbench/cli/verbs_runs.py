@@ -198,9 +198,14 @@ def cmd_track(args) -> int:
         from workbench.sampling import read_plan
 
         aa_filter = read_plan(args.plan).filter
+    from workbench.cli.display_options import scaling_from_args
+    from workbench.runs.scaled import scaled_analysis
+
+    scaling = scaling_from_args(args)  # checked before the work
     analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
                          max_order=args.max_order, aa_filter=aa_filter, **opts,
                          **analysis_options_from_args(args))
+    analysis = scaled_analysis(analysis, scaling)
     from workbench.cli.display_options import display_options_from_args
 
     files = (write_track_outputs(analysis, out, force=args.force, **display_options_from_args(args))
@@ -217,7 +222,8 @@ def cmd_track(args) -> int:
 
 TRACK_FILES = (
     "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
-    "unmatched.csv", "overall_level.csv", "overall_level.png",
+    "unmatched.csv", "overall_level.csv", "overall_level.png", "order_map.npz", "order_map.parquet",
+    "rpm_frequency_map.npz", "rpm_frequency_map.parquet",
     "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
     "rpm_frequency_map.png",
 )
@@ -277,6 +283,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
         table(pd.DataFrame({"rpm": a.overall.rpm, "rms": a.overall.rms, "blocks": a.overall.n_blocks}),
               "overall_level.csv")
     table(a.doubted, "doubted_pulses.csv")
+    files.extend(_write_maps(a, out, force=force))
     sa = a.shaft_angle
     t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
     figure(plot_tacho_check(t, sa.rpm_at(t), pulse_times_s=getattr(sa, "pulse_times_s", None),
@@ -284,30 +291,58 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})"), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
     top = a.samples_per_rev / 2.56
+    sc = getattr(a, "scaling", None)  # amplitudes shown RMS, in dB or integrated
+    label = None if sc is None else sc.label(a.channel_unit or "")
+    db = sc is not None and sc.db_ref is not None
+    shown = {"amplitude_label": label}
     valid = getattr(a, "valid", None)
     figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,
                                overlay=overlay, identification=a.identification, valid=valid,
-                               rpm_range=(a.rpm_min, a.rpm_max),
+                               rpm_range=(a.rpm_min, a.rpm_max), log=not db, **shown,
                                title=f"Order spectrum: {Path(a.source).name}, channel {a.channel}"), "order_spectrum.png")
     figure(plot_order_map(a.order_map, lines=lines, rate_hz=a.rate_hz, identification=a.identification,
                           max_order=top, unit=a.unit, overlay=overlay, unmatched=getattr(a, "unmatched", None),
-                          valid=valid,
+                          valid=valid, db=db, **shown,
                           title=f"Order map: {Path(a.source).name}"),
            "order_map.png")
     if a.cuts:
-        figure(plot_order_cuts(a.cuts, unit=a.unit, valid=valid), "order_cuts.png")
+        figure(plot_order_cuts(a.cuts, unit=a.unit, valid=valid, log=not db, **shown), "order_cuts.png")
     if getattr(a, "overall", None) is not None:
         from workbench.plots import plot_overall_level
 
-        figure(plot_overall_level(a.overall, unit=a.unit, cuts=a.cuts,
+        figure(plot_overall_level(a.overall, unit=a.channel_unit or a.unit, cuts=None if sc else a.cuts,
                                   title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
                "overall_level.png")
     if a.rf_map is not None:
         figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, overlay=overlay,
-                                      identification=a.identification, valid=valid,
+                                      identification=a.identification, valid=valid, db=db, **shown,
                                       title=f"rpm-frequency map: {Path(a.source).name}"),
                "rpm_frequency_map.png")
     return files
+
+
+def _write_maps(a, out: Path, *, force: bool) -> list:
+    """The order map and the rpm-frequency map as data: NPZ, and Parquet when pyarrow is there."""
+    import importlib.util
+    import warnings as _w
+
+    from workbench.runs.mapdata import map_data, write_map_npz, write_map_parquet
+
+    sc = getattr(a, "scaling", None)
+    how = "peak" if sc is None else sc.label(a.channel_unit or "")
+    parquet = importlib.util.find_spec("pyarrow") is not None
+    if not parquet:
+        _w.warn("the maps are written as NPZ only: Parquet needs pyarrow (pip install 'foldline[batch]')",
+                FoldlineWarning, stacklevel=2)
+    written = []
+    for obj, stem in ((a.order_map, "order_map"), (a.rf_map, "rpm_frequency_map")):
+        if obj is None:
+            continue
+        d = map_data(obj, unit=a.unit, amplitude_scaling=how)
+        written.append(write_map_npz(d, out / f"{stem}.npz", force=force))
+        if parquet:
+            written.append(write_map_parquet(d, out / f"{stem}.parquet", force=force))
+    return written
 
 
 def _print_track(a, files) -> None:

@@ -29,6 +29,16 @@ __all__ = [
 ]
 
 
+def _colour_scale(vmax, dynamic_range_db, db):
+    """(vmin, norm): logarithmic colours for amplitudes, linear for levels already in dB."""
+    from matplotlib.colors import Normalize
+
+    if db:
+        return vmax - dynamic_range_db, Normalize(vmin=vmax - dynamic_range_db, vmax=vmax)
+    vmin = vmax * 10 ** (-dynamic_range_db / 20.0)
+    return vmin, LogNorm(vmin=vmin, vmax=vmax)
+
+
 def _db(amplitude, ref=None):
     a = np.asarray(amplitude, dtype=float)
     ref = float(np.nanmax(a)) if ref is None else float(ref)
@@ -330,7 +340,7 @@ def _mark_unmatched(ax, spots):
 
 def plot_order_map(order_map, *, lines=None, rate_hz=None, identification=None, max_order=None,
                    dynamic_range_db=60.0, unit="", title=None, overlay="none", unmatched=None,
-                   amplitude_label=None, valid=None):
+                   amplitude_label=None, valid=None, db=False):
     """Order map (order against rpm, colour = amplitude), measurement first.
 
     Parameters
@@ -355,6 +365,8 @@ def plot_order_map(order_map, *, lines=None, rate_hz=None, identification=None, 
         The title's start; what is overlaid is appended.
     valid : ValidRegion, optional
         Shades orders beyond the usable band (hatched) and above Nyquist at each speed.
+    db : bool
+        The amplitudes are levels in dB (linear colour scale ``dynamic_range_db`` deep).
     """
     overlay = _check_overlay(overlay)
     rpm = np.asarray(order_map.rpm, dtype=float)
@@ -365,14 +377,14 @@ def plot_order_map(order_map, *, lines=None, rate_hz=None, identification=None, 
     fig = new_figure(width_in=10.0, height_in=6.5)
     ax = fig.add_subplot()
     vmax = float(np.nanmax(amp[:, ksel])) if amp.size else 1.0
-    vmin = vmax * 10 ** (-dynamic_range_db / 20.0)
+    vmin, norm = _colour_scale(vmax, dynamic_range_db, db)
     order_idx = np.argsort(rpm)
     mesh = ax.pcolormesh(
         rpm[order_idx],
         order[ksel],
         np.clip(amp[order_idx][:, ksel].T, vmin, None),
         shading="nearest",
-        norm=LogNorm(vmin=vmin, vmax=vmax),
+        norm=norm,
         cmap="viridis",
         rasterized=True,
     )
@@ -454,7 +466,8 @@ def plot_order_cuts(cuts, *, unit="", title=None, log=True, valid=None, amplitud
 
 
 def plot_rpm_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db=60.0, unit="", title=None,
-                           names=None, overlay=None, identification=None, amplitude_label=None, valid=None):
+                           names=None, overlay=None, identification=None, amplitude_label=None, valid=None,
+                           db=False):
     """rpm-frequency map (Campbell diagram in Hz) from the time-domain signal, measurement first.
 
     Parameters
@@ -488,10 +501,10 @@ def plot_rpm_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db
     fig = new_figure(width_in=10.0, height_in=5.5)
     ax = fig.add_subplot()
     vmax = float(np.nanmax(amp)) if amp.size else 1.0
-    vmin = vmax * 10 ** (-dynamic_range_db / 20.0)
+    vmin, norm = _colour_scale(vmax, dynamic_range_db, db)
     k = np.argsort(rpm)
     mesh = ax.pcolormesh(rpm[k], hz, np.clip(amp[k].T, vmin, None), shading="nearest",
-                         norm=LogNorm(vmin=vmin, vmax=vmax), cmap="magma", rasterized=True)
+                         norm=norm, cmap="magma", rasterized=True)
     cb = fig.colorbar(mesh, ax=ax, pad=0.01)
     cb.set_label(amplitude_label or f"amplitude, peak{(' (' + unit + ')') if unit else ''}")
     chosen = []

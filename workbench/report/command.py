@@ -31,11 +31,11 @@ def cmd_report(args) -> int:
     # Progress only for a person at a terminal: a script's stderr keeps the one-line error
     # contract (warnings go through the command's one-line handler).
     show = not args.json and sys.stderr.isatty()
-    from workbench.cli.display_options import display_options_from_args
+    from workbench.cli.display_options import report_display_from_args
 
     report = write_report(args.machine, args.plan, args.run, out=args.out, force=args.force,
                           track_options=opts, progress=(lambda t: _stderr(f"report: {t}")) if show else None,
-                          display=display_options_from_args(args))
+                          display=report_display_from_args(args))
     result = {"out": str(args.out), **report.to_dict()}
     if args.json:
         emit_json(result)

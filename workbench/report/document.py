@@ -588,6 +588,14 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
     """The run part of the report; returns (html, alias names or None)."""
     display = dict(display or {})
     overlay = display.get("overlay", "none")
+    scaling = display.get("scaling")
+    if scaling is not None:
+        from workbench.runs.scaled import scaled_analysis
+
+        analysis = scaled_analysis(analysis, scaling)
+    label = None if scaling is None else scaling.label(analysis.channel_unit or "")
+    db = scaling is not None and scaling.db_ref is not None
+    shown = {"amplitude_label": label}
     from workbench.angle.validity import valid_region
 
     # the plan's filter is the acquisition's: it bounds what the run measured faithfully
@@ -609,6 +617,9 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
         ("samples per rev", str(analysis.samples_per_rev)),
         ("revs per block", f"{float(analysis.revs_per_block):g}"),
     ]
+    if scaling is not None:
+        pairs.append(("amplitudes shown as", label + (f", integrated from {scaling.min_hz:g} Hz"
+                                                       if scaling.integrate else "")))
     for k, v in (track_settings or {}).items():
         if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
             pairs.append((k.replace("_", " "), v if isinstance(v, str) else repr(v)))
@@ -641,7 +652,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
     ident = getattr(analysis, "identification", None)
     fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit,
                               overlay=overlay, identification=ident, valid=valid,
-                              rpm_range=(float(sa.rpm_min), float(sa.rpm_max)))
+                              rpm_range=(float(sa.rpm_min), float(sa.rpm_max)), log=not db, **shown)
     spec_html = figure_svg(fig, key="order-spectrum", caption="Order spectrum averaged over the run "
                            "(peak amplitudes, window-corrected)" + (
                                "." if overlay == "none" else " with the predicted direct line orders "
@@ -665,7 +676,8 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
 
     unmatched = getattr(analysis, "unmatched", None)
     fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
-                         identification=ident, unit=unit, overlay=overlay, unmatched=unmatched, valid=valid)
+                         identification=ident, unit=unit, overlay=overlay, unmatched=unmatched, valid=valid,
+                         db=db, **shown)
     caption = ("Order map as measured" if overlay == "none" else
                "Order map with the predicted lines ("
                + ("those matched to measured ridges" if overlay == "matched" else "all") +
@@ -679,7 +691,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
 
     cuts = tuple(getattr(analysis, "cuts", ()) or ())
     if cuts:
-        fig = plot_order_cuts(cuts, unit=unit, valid=valid)
+        fig = plot_order_cuts(cuts, unit=unit, valid=valid, log=not db, **shown)
         cut_html = figure_svg(fig, key="order-cuts", caption="Amplitude of chosen orders against "
                               "speed (energy sum over the band of each cut); dotted where the cut's band "
                               "lies beyond the " + valid.describe() + "; grey above Nyquist, where the "
@@ -702,7 +714,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
     if overall is not None:
         from workbench.plots import plot_overall_level
 
-        fig = plot_overall_level(overall, unit=unit, cuts=cuts)
+        fig = plot_overall_level(overall, unit=analysis.channel_unit or unit, cuts=None if scaling else cuts)
         band = overall.band_hz
         run_sections.append(_sub("overall-level", figure_svg(
             fig, key="overall-level", caption="Overall RMS of the channel against speed (time domain, "
@@ -715,7 +727,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
     rf = getattr(analysis, "rf_map", None)
     if rf is not None:
         fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit, overlay=overlay,
-                                     identification=ident, valid=valid)
+                                     identification=ident, valid=valid, db=db, **shown)
         run_sections.append(_sub("rpm-frequency-map", figure_svg(
             fig, key="rpm-frequency-map", caption="Time-domain spectra against speed" + (
                 "." if overlay == "none" else " with the apparent frequency of each "

@@ -102,6 +102,10 @@ class RunAnalysis:
     cut_band_lines : tuple of dict
         Predicted lines other than a cut's own inside its band (``cut_order, line, order,
         zone, rpm_min, rpm_max``): the cut sums them.
+    scaling : AmplitudeScaling or None
+        Set by :func:`~workbench.runs.scaled.scaled_analysis` when the amplitudes are shown
+        RMS, in dB or integrated (``unit`` is then the shown unit, ``channel_unit`` the
+        channel's own).
     doubted : pandas.DataFrame
         Tacho pulses the processing doubted (time_s, reason).
     log : tuple of str
@@ -133,6 +137,8 @@ class RunAnalysis:
     overall: object = None
     valid: object = None
     cut_band_lines: tuple = ()
+    scaling: object = None
+    channel_unit: str | None = None
 
     @property
     def rpm_min(self) -> float:
@@ -195,6 +201,8 @@ class RunAnalysis:
             out["valid_region"] = self.valid.to_dict()
         if self.cut_band_lines:
             out["cut_band_lines"] = [dict(d) for d in self.cut_band_lines]
+        if self.scaling is not None:
+            out["scaling"] = self.scaling.to_dict(self.channel_unit or "")
         return out
 
 
