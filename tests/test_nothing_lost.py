@@ -103,6 +103,7 @@ VERBS = {
                  "OUT/sim.wav", "--json"],
     "track": ["track", "run.wav", "--out", "OUT/track", "--json"],
     "extract": ["extract", "run.wav", "--orders", "1,2", "--out", "OUT/extract", "--json"],
+    "compare": ["compare", "run.wav", "run.wav", "--out", "OUT/compare", "--json"],
 }
 
 

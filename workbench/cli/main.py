@@ -284,6 +284,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli.verb_extract import add_extract_verb
 
     add_extract_verb(verb)
+    from workbench.cli.verb_compare import add_compare_verb
+
+    add_compare_verb(verb)
     return parser
 
 

@@ -7,9 +7,10 @@ their axes and units.  Two forms:
   columns), ``n_averaged`` (blocks per row), and text arrays ``kind``, ``unit``,
   ``amplitude_scaling``, ``axes`` (JSON: the name and unit of each array).  Plain arrays only,
   read back with ``allow_pickle=False``.
-* **Parquet**: one row per cell, columns ``rpm``, ``order`` (or ``hz``), ``amplitude`` (a tidy
-  table pandas, Arrow and SQL engines read as is), the same metadata as JSON under the schema
-  key ``foldline``.  Needs pyarrow (the ``batch`` extra).
+* **Parquet**: one row per cell, columns ``rpm``, ``order`` (or ``hz``), ``amplitude``,
+  ``n_averaged`` (a tidy table pandas, Arrow and SQL engines read as is), the same metadata
+  as JSON in the frame's ``attrs["foldline"]`` (pandas keeps it in the file's metadata).
+  Needs pyarrow (the ``batch`` extra).
 
 Both are written under a temporary name and renamed into place.
 """
@@ -104,19 +105,23 @@ def write_map_npz(d: MapData, path, *, force=False) -> Path:
 
 
 def write_map_parquet(d: MapData, path, *, force=False) -> Path:
-    """Write ``d`` as a tidy Parquet table (``rpm``, axis, ``amplitude``) with JSON metadata."""
-    try:
-        import pyarrow as pa
-        import pyarrow.parquet as pq
-    except ImportError:  # pragma: no cover - pyarrow comes with the batch extra
-        raise InputError("writing Parquet needs pyarrow: pip install 'foldline[batch]' (or pyarrow)") from None
+    """Write ``d`` as a tidy Parquet table (``rpm``, axis, ``amplitude``) with JSON metadata.
+
+    Written by pandas (its Parquet engine, pyarrow, comes with the ``batch`` extra); the
+    metadata travels as the frame's ``attrs["foldline"]``, which pandas keeps in the file.
+    """
+    import pandas as pd
+
     path = Path(path)
     b, k = d.amplitude.shape
-    table = pa.table({"rpm": np.repeat(d.rpm, k), d.axis_name: np.tile(d.axis, b),
-                      "amplitude": d.amplitude.ravel(), "n_averaged": np.repeat(d.n_averaged, k)})
-    table = table.replace_schema_metadata({b"foldline": json.dumps(_meta(d)).encode()})
-    with atomic_output(path, force=force) as tmp:
-        pq.write_table(table, tmp)
+    frame = pd.DataFrame({"rpm": np.repeat(d.rpm, k), d.axis_name: np.tile(d.axis, b),
+                          "amplitude": d.amplitude.ravel(), "n_averaged": np.repeat(d.n_averaged, k)})
+    frame.attrs["foldline"] = json.dumps(_meta(d))
+    try:
+        with atomic_output(path, force=force) as tmp:
+            frame.to_parquet(tmp, index=False)
+    except ImportError:
+        raise InputError("writing Parquet needs pyarrow: pip install 'foldline[batch]' (or pyarrow)") from None
     return path
 
 
@@ -132,20 +137,17 @@ def read_map_data(path) -> MapData:
                 return MapData(kind, z["rpm"], z[name], z["amplitude"], str(z["unit"]),
                                str(z["amplitude_scaling"]), z["n_averaged"])
         if suffix == ".parquet":
-            import pyarrow.parquet as pq
+            import pandas as pd
 
-            t = pq.read_table(path)
-            meta = json.loads(t.schema.metadata[b"foldline"])
+            t = pd.read_parquet(path)
+            meta = json.loads(t.attrs["foldline"])
             kind = meta["kind"]
             name = MAP_KINDS[kind][0]
-            rpm_all = t.column("rpm").to_numpy()
-            axis_all = t.column(name).to_numpy()
-            axis = np.unique(axis_all)
-            b = rpm_all.size // max(axis.size, 1)
-            k = axis.size
-            return MapData(kind, rpm_all.reshape(b, k)[:, 0], axis_all[:k],
-                           t.column("amplitude").to_numpy().reshape(b, k), meta["unit"], meta["amplitude_scaling"],
-                           t.column("n_averaged").to_numpy().reshape(b, k)[:, 0])
-    except (KeyError, ValueError, OSError) as exc:
+            k = int(np.unique(t[name].to_numpy()).size)
+            b = len(t) // max(k, 1)
+            return MapData(kind, t["rpm"].to_numpy().reshape(b, k)[:, 0], t[name].to_numpy()[:k],
+                           t["amplitude"].to_numpy().reshape(b, k), meta["unit"], meta["amplitude_scaling"],
+                           t["n_averaged"].to_numpy().reshape(b, k)[:, 0])
+    except (KeyError, ValueError, OSError, ImportError) as exc:
         raise RunFileError(f"{path}: not a map written by foldline ({type(exc).__name__}: {exc})") from None
     raise InputError(f"{path}: a map is read from .npz or .parquet; got '{suffix}'")
