@@ -349,3 +349,15 @@ def test_map_data_round_trip(tracked, tmp_path):
     t = pd.read_parquet(tmp_path / "order.parquet")  # a tidy table any tool reads
     assert list(t.columns) == ["rpm", "order", "amplitude", "n_averaged"]
     assert len(t) == tracked.order_map.amplitude.size
+
+
+def test_waterfall_draws_one_row_per_chosen_speed(tracked):
+    from workbench.plots import plot_waterfall
+
+    fig = plot_waterfall(tracked.order_map, unit=tracked.unit, max_rows=12)
+    lines = fig.axes[0].lines
+    assert len(lines) == 12
+    # each row sits at its speed: its baseline (the lowest point) is the row's rpm
+    bases = sorted(float(np.min(ln.get_ydata())) for ln in lines)
+    rpm = np.sort(tracked.order_map.rpm)
+    assert bases[0] == pytest.approx(rpm[0]) and bases[-1] == pytest.approx(rpm[-1], rel=1e-3)

@@ -223,7 +223,7 @@ def cmd_track(args) -> int:
 TRACK_FILES = (
     "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
     "unmatched.csv", "overall_level.csv", "overall_level.png", "order_map.npz", "order_map.parquet",
-    "rpm_frequency_map.npz", "rpm_frequency_map.parquet",
+    "rpm_frequency_map.npz", "rpm_frequency_map.parquet", "order_waterfall.png",
     "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
     "rpm_frequency_map.png",
 )
@@ -307,6 +307,11 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
            "order_map.png")
     if a.cuts:
         figure(plot_order_cuts(a.cuts, unit=a.unit, valid=valid, log=not db, **shown), "order_cuts.png")
+    if not db:
+        from workbench.plots import plot_waterfall
+
+        figure(plot_waterfall(a.order_map, unit=a.unit, max_axis=top, amplitude_label=label,
+                              title=f"Order waterfall: {Path(a.source).name}"), "order_waterfall.png")
     if getattr(a, "overall", None) is not None:
         from workbench.plots import plot_overall_level
 

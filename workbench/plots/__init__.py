@@ -8,7 +8,7 @@ from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_o
                                    plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check)
 from workbench.plots.common import figure_bytes, new_figure, save_figure
 from workbench.plots.foldmap import draw_fold_map, plot_fold_map
-from workbench.plots.angle import plot_overall_level  # noqa: E402  (overall level against rpm)
+from workbench.plots.angle import plot_overall_level, plot_waterfall  # noqa: E402
 
 __all__ = [
     "plot_fold_map",
@@ -23,4 +23,4 @@ __all__ = [
     "new_figure",
     "figure_bytes",
 ]
-__all__ += ["plot_overall_level"]
+__all__ += ["plot_overall_level", "plot_waterfall"]

@@ -26,6 +26,7 @@ __all__ = [
     "plot_order_envelopes",
     "plot_overall_level",
     "shade_invalid_orders",
+    "plot_waterfall",
 ]
 
 
@@ -605,4 +606,46 @@ def plot_overall_level(overall, *, unit="", title=None, log=False, cuts=None, am
     ax.grid(True, lw=0.3, alpha=0.5, which="both")
     ax.legend(fontsize=8)
     ax.set_title(title or "Overall level against speed (time-domain RMS per block)", fontsize=10)
+    return fig
+
+
+def plot_waterfall(spectra_map, *, unit="", title=None, max_rows=40, dynamic_range_db=60.0, max_axis=None,
+                   amplitude_label=None):
+    """Waterfall (cascade): the spectra of a map against speed, each row drawn as a line offset upwards.
+
+    Parameters
+    ----------
+    spectra_map : OrderMap or RpmFrequencyMap
+        Rows of spectra (``rpm``, ``order`` or ``hz``, ``amplitude``).
+    max_rows : int
+        Rows drawn (evenly chosen over the speed range; a map averaged into rpm bins keeps
+        its bins).
+    dynamic_range_db : float
+        Height of one row's scale: levels from the map's maximum to this far below it, dB.
+    max_axis : float, optional
+        Highest order (or Hz) drawn.
+    """
+    rpm = np.asarray(spectra_map.rpm, dtype=float)
+    axis = np.asarray(spectra_map.order if hasattr(spectra_map, "order") else spectra_map.hz, dtype=float)
+    what = "order (multiples of reference shaft speed)" if hasattr(spectra_map, "order") else "frequency (Hz)"
+    amp = np.asarray(spectra_map.amplitude, dtype=float)
+    top = float(axis[-1]) if max_axis is None else float(max_axis)
+    ksel = axis <= top
+    k = np.argsort(rpm)
+    rows = k[np.unique(np.round(np.linspace(0, len(k) - 1, min(max_rows, len(k)))).astype(int))]
+    level = _db(amp[:, ksel], float(np.nanmax(amp[:, ksel])))
+    level = np.clip(level, -dynamic_range_db, 0.0) + dynamic_range_db  # 0 .. range
+    fig = new_figure(width_in=10.0, height_in=7.0)
+    ax = fig.add_subplot()
+    span = float(rpm.max() - rpm.min()) if rpm.size > 1 else 1.0
+    scale = 3.0 * span / max(len(rows), 1) / dynamic_range_db  # a full-scale line spans 3 rows
+    for i in rows[::-1]:  # far (high speed) first, near rows drawn over them
+        y = rpm[i] + level[i] * scale
+        ax.fill_between(axis[ksel], rpm[i], y, color="white", lw=0, zorder=2 * (len(rpm) - i))
+        ax.plot(axis[ksel], y, color="#0072B2", lw=0.6, zorder=2 * (len(rpm) - i) + 1)
+    ax.set_xlim(0, top)
+    ax.set_xlabel(what)
+    ax.set_ylabel(f"reference shaft speed (rpm); each row {dynamic_range_db:g} dB full scale"
+                  f" ({amplitude_label or ('peak' + ((' ' + unit) if unit else ''))})")
+    ax.set_title(title or "Waterfall: spectra against speed", fontsize=10)
     return fig

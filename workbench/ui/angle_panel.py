@@ -332,6 +332,12 @@ class AngleDomainPanel:
                 return ch.unit
         return ""
 
+    def valid_region(self):
+        """What the run measures faithfully: the plan's filter's usable edge, or Nyquist."""
+        from workbench.angle.validity import valid_region
+
+        return valid_region(self.run.rate_hz, None if self.plan is None else self.plan.filter)
+
     def unmatched(self):
         """Measured lines no predicted line explains (every measured line without a machine)."""
         omap, _spec, _peaks, ident = self.analysis()
@@ -384,17 +390,19 @@ class AngleDomainPanel:
                                     title=f"Tacho check: {len(pulses)} pulses, {self.run.pulses_per_rev} per rev")
         omap, spec, peaks, ident = self.analysis()
         top = self.usable_max_order
+        valid = self.valid_region()
         if which == "map":
             return plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
                                   max_order=top, unit=unit, overlay=self.overlay.value,
-                                  unmatched=self.unmatched(),
+                                  unmatched=self.unmatched(), valid=valid,
                                   title=f"Order map at {self.run.rate_hz:g} S/s")
         if which == "cuts":
-            return plot_order_cuts(self.cuts(), unit=unit)
+            return plot_order_cuts(self.cuts(), unit=unit, valid=valid)
         if which == "spectrum":
             table = pd.DataFrame({"order": peaks.order, "amplitude": peaks.amplitude})
             return plot_order_spectrum(spec, peaks=table, lines=self.lines or None, unit=unit, max_order=top,
-                                       overlay=self.overlay.value, identification=ident)
+                                       overlay=self.overlay.value, identification=ident, valid=valid,
+                                       rpm_range=(float(np.nanmin(omap.rpm)), float(np.nanmax(omap.rpm))))
         raise InputError(f"figure {which!r}: choose one of {', '.join(self.FIGURES)}")
 
     def _figure_key(self, which):
