@@ -178,10 +178,16 @@ def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=
         head = p.head(10)
         at = place_labels(ax, [[(o, a)] for o, a in zip(head["order"], head["amplitude"])],
                           min_separation_px=26.0)
+        unplaced = []
         for row, spot in zip(head.itertuples(index=False), at):
             if spot is not None:
                 ax.annotate(f"{row.order:.2f}", (row.order, row.amplitude), xytext=(0, 6), textcoords="offset points",
                             ha="center", fontsize=7, color="#A00000")
+            else:
+                unplaced.append(f"{row.order:.2f}")
+        if unplaced:  # named once, below the axes, rather than printed over each other
+            ax.text(0.0, -0.13 if not handles else -0.26, "peaks without room for a label: " + ", ".join(unplaced),
+                    transform=ax.transAxes, fontsize=7, color="#A00000", va="top")
     ax.set_title(title or "Order spectrum (averaged over the run)", fontsize=10)
     return fig
 
