@@ -16,3 +16,7 @@ from workbench.ui.foldmap_panel import FoldMapPanel
 from workbench.ui.source_editor import SourceEditorPanel
 
 __all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel"]
+
+from workbench.ui.map_explorer import MapExplorer  # noqa: E402  (zoom, cursor read-out, markers)
+
+__all__ += ["MapExplorer"]
