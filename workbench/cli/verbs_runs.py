@@ -75,7 +75,8 @@ def cmd_demo(args) -> int:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FoldlineWarning)
             analysis = track_run(run_path, machine=machine, samples_per_rev=spr,
-                                 revs_per_block=advice.resampling.revs_per_block)
+                                 revs_per_block=advice.resampling.revs_per_block,
+                                 aa_filter=plan.filter)  # the demo run was made under the plan
         track_dir = out / "run"
         _check_out_folder(track_dir, force=args.force)
         figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force))
