@@ -96,7 +96,8 @@ def place_labels(ax, candidates, *, min_separation_px=16.0, occupied=(), sizes=N
     import numpy as np
 
     fig = ax.figure
-    fig.draw_without_rendering()  # final layout, so pixel distances are the saved ones
+    if fig.get_layout_engine() is not None:  # the layout moves the axes: settle it first
+        fig.draw_without_rendering()
     bbox = ax.get_window_extent()
     d = float(min_separation_px)
     taken = []  # (x0, y0, x1, y1) in pixels
