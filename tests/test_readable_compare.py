@@ -81,3 +81,16 @@ def test_compare_refuses_one_run_and_wrong_labels(runs, capsys):
     assert "at least two runs" in capsys.readouterr().err
     assert main(["compare", str(up), str(down), "--labels", "a"]) == 2
     assert "--labels 'a': give 2 labels" in capsys.readouterr().err
+
+
+def test_compare_panel_shows_the_same_changes(runs):
+    pytest.importorskip("ipywidgets")
+    from workbench.ui.compare_panel import ComparePanel
+
+    base, up, _, after = runs
+    panel = ComparePanel([up, after], labels=["before", "after"], samples_per_rev=64, cut_orders=(1.0, 7.0))
+    ch = panel.comparison.changes().set_index("order")
+    assert ch.loc[7.0, "change_db"] == pytest.approx(20 * np.log10(2.0), abs=0.3)  # +6.02 dB
+    assert "+6.0" in panel.changes.value and "run-up" in panel.changes.value
+    for img in (panel.cuts_figure, panel.overall_figure, panel.spectra_figure):
+        assert img.value[:4] == b"\x89PNG"

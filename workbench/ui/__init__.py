@@ -20,3 +20,6 @@ __all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel"]
 from workbench.ui.map_explorer import MapExplorer  # noqa: E402  (zoom, cursor read-out, markers)
 
 __all__ += ["MapExplorer"]
+from workbench.ui.compare_panel import ComparePanel  # noqa: E402  (run against run)
+
+__all__ += ["ComparePanel"]
