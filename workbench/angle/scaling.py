@@ -27,7 +27,7 @@ from workbench.errors import InputError
 
 __all__ = ["AmplitudeScaling", "INTEGRATIONS", "AMPLITUDES", "acceleration_factor",
            "integrate_order_map", "integrate_frequency_map", "spectrum_from_map", "DEFAULT_MIN_HZ",
-           "G_N"]
+           "G_N", "correct_rolloff_map"]
 
 #: What an acceleration channel can be integrated to.
 INTEGRATIONS = ("velocity", "displacement")
@@ -185,3 +185,31 @@ def spectrum_from_map(order_map, like):
     keep = min(len(like.order), a.shape[1])
     amp = np.sqrt(p[:keep])
     return replace(like, order=np.asarray(like.order)[:keep], amplitude=amp)
+
+
+def correct_rolloff_map(order_map, aa_filter, rate_hz):
+    """An order map with the anti-alias filter's known roll-off taken out inside its usable band.
+
+    Parameters
+    ----------
+    order_map : OrderMap
+    aa_filter : AntiAliasFilter
+        The acquisition's filter (a plan's ``filter``).
+    rate_hz : float
+        The run's sample rate, Hz.
+
+    Returns
+    -------
+    OrderMap
+        Each bin at ``f = order x rpm / 60`` up to the filter's usable edge multiplied by
+        ``10**(attenuation_db(f) / 20)`` (at most the 1 dB the usable band allows, or the
+        passband ripple); bins beyond the edge are left as measured (the roll-off there is steep
+        and the filter model's tolerance would be multiplied into the result).
+    """
+    rate = float(rate_hz)
+    edge = min(float(aa_filter.usable_edge_hz(rate)), 0.5 * rate)
+    hz = np.asarray(order_map.order, dtype=float)[None, :] * np.asarray(order_map.rpm, dtype=float)[:, None] / 60.0
+    inside = hz <= edge
+    att = np.zeros_like(hz)
+    att[inside] = np.asarray(aa_filter.attenuation_db(hz[inside], rate), dtype=float)
+    return replace(order_map, amplitude=np.asarray(order_map.amplitude, dtype=float) * 10.0 ** (att / 20.0))

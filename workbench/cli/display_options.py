@@ -28,6 +28,9 @@ def add_display_options(p) -> None:
                         "integrated in the frequency domain bin by bin")
     g.add_argument("--integrate-from", type=float, metavar="HZ",
                    help="lowest frequency integrated, Hz (default 2): below it bins are left out")
+    g.add_argument("--correct-rolloff", action="store_true",
+                   help="take the anti-alias filter's known roll-off out of the order results inside its "
+                        "usable band (track: needs --plan; report: the plan's filter)")
     g.add_argument("--overall-band", metavar="LO,HI",
                    help="overall level (RMS against rpm) of this band only, Hz (default: the whole band)")
 
@@ -39,7 +42,8 @@ def display_options_from_args(args) -> dict:
 
 def report_display_from_args(args) -> dict:
     """The report's ``display`` mapping: overlay and amplitude scaling."""
-    return {**display_options_from_args(args), "scaling": scaling_from_args(args)}
+    return {**display_options_from_args(args), "scaling": scaling_from_args(args),
+            "correct_rolloff": bool(getattr(args, "correct_rolloff", False))}
 
 
 def scaling_from_args(args):

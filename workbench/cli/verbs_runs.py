@@ -199,6 +199,9 @@ def cmd_track(args) -> int:
         from workbench.sampling import read_plan
 
         aa_filter = read_plan(args.plan).filter
+    if getattr(args, "correct_rolloff", False) and aa_filter is None:
+        raise InputError("--correct-rolloff: give the acquisition's plan with --plan PLAN (its filter's "
+                         "roll-off is what is taken out)")
     from workbench.cli.display_options import scaling_from_args
     from workbench.runs.scaled import scaled_analysis
 
@@ -206,6 +209,10 @@ def cmd_track(args) -> int:
     analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
                          max_order=args.max_order, aa_filter=aa_filter, **opts,
                          **analysis_options_from_args(args))
+    if getattr(args, "correct_rolloff", False):
+        from workbench.runs.scaled import rolloff_corrected
+
+        analysis = rolloff_corrected(analysis, aa_filter)
     analysis = scaled_analysis(analysis, scaling)
     from workbench.cli.display_options import display_options_from_args
 

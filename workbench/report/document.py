@@ -589,6 +589,10 @@ def _run_sections(analysis, lines, track_settings, sections, *, plan=None, displ
     display = dict(display or {})
     overlay = display.get("overlay", "none")
     scaling = display.get("scaling")
+    if display.get("correct_rolloff") and plan is not None:
+        from workbench.runs.scaled import rolloff_corrected
+
+        analysis = rolloff_corrected(analysis, plan.filter)
     if scaling is not None:
         from workbench.runs.scaled import scaled_analysis
 

@@ -20,7 +20,7 @@ from workbench.angle import find_order_peaks, order_cut
 from workbench.angle.scaling import (AmplitudeScaling, acceleration_factor, integrate_frequency_map,
                                      integrate_order_map, spectrum_from_map)
 
-__all__ = ["scaled_analysis"]
+__all__ = ["scaled_analysis", "rolloff_corrected"]
 
 
 def _point_factor(scaling, unit, rpm, order):
@@ -104,3 +104,24 @@ def _scaled_unmatched(table, scaling, unit):
                      0.5 * (t["order_min"].to_numpy() + t["order_max"].to_numpy()))
     t["amplitude_max"] = scaling.level(t["amplitude_max"].to_numpy() * _point_factor(scaling, unit, rpm, order))
     return t
+
+
+def rolloff_corrected(analysis, aa_filter):
+    """The run with the anti-alias filter's roll-off taken out inside its usable band.
+
+    The order map is corrected bin by bin (:func:`~workbench.angle.scaling.correct_rolloff_map`)
+    and the spectrum, its peaks and the cuts are remade from it; call before
+    :func:`scaled_analysis`.  The log says so.
+    """
+    from workbench.angle.scaling import correct_rolloff_map
+
+    a = analysis
+    omap = correct_rolloff_map(a.order_map, aa_filter, a.rate_hz)
+    spec = spectrum_from_map(omap, a.spectrum)
+    cuts = tuple(order_cut(omap, c.order, bandwidth_orders=c.bandwidth_orders) for c in a.cuts)
+    found = find_order_peaks(replace(spec, amplitude=np.nan_to_num(spec.amplitude, nan=0.0)), n=10)
+    peaks = pd.DataFrame({"order": np.asarray(found.order), "amplitude": np.asarray(found.amplitude),
+                          "prominence_db": np.asarray(found.prominence_db)})
+    note = (f"anti-alias filter roll-off corrected inside its usable band (up to "
+            f"{min(float(aa_filter.usable_edge_hz(a.rate_hz)), a.rate_hz / 2):.0f} Hz)")
+    return replace(a, order_map=omap, spectrum=spec, cuts=cuts, peaks=peaks, log=tuple(a.log) + (note,))
