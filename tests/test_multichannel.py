@@ -230,8 +230,11 @@ def test_cli_json_shape_for_several_channels(run_file, multi, capsys):
     assert "order_spectrum" not in d and "peaks" not in d
     assert [c["channel"] for c in d["channels"]] == ["acc 1", "acc 3", "acc 8"]
     for c in d["channels"]:
-        assert set(c) == {"channel", "unit", "order_spectrum", "peaks", "envelope_peaks",
-                          "identified"}
+        # the keys of the contract, and each channel's own overall level and unmatched lines
+        assert {"channel", "unit", "order_spectrum", "peaks", "envelope_peaks",
+                "identified"} <= set(c) <= {"channel", "unit", "order_spectrum", "peaks",
+                                            "envelope_peaks", "identified", "overall",
+                                            "unmatched", "cut_band_lines", "scaling"}
         assert c["unit"] == "m/s^2"
     # Channel 3's spectrum is the one tracked with all the others (threads do not matter).
     assert d["channels"][1]["order_spectrum"]["amplitude"] == pytest.approx(

@@ -104,6 +104,7 @@ VERBS = {
     "track": ["track", "run.wav", "--out", "OUT/track", "--json"],
     "extract": ["extract", "run.wav", "--orders", "1,2", "--out", "OUT/extract", "--json"],
     "speed": ["speed", "run.wav", "--out", "OUT/speed.csv", "--json"],
+    "compare": ["compare", "run.wav", "run.wav", "--out", "OUT/compare", "--json"],
 }
 
 

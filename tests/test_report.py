@@ -129,8 +129,9 @@ def test_report_opens_offline_with_no_error_and_no_request(browser_page, report_
     assert events["requests"] == [out.as_uri()]
     # Fold maps (Hz and order view) of the worst candidate and the recommended rate, the
     # plan's Campbell diagram (the demo machine has resonances), then the run's tacho check,
-    # order spectrum, order map, order cuts, rpm-frequency map, Bode, polar and Campbell views.
-    assert page.locator("figure.plot svg").count() == 13
+    # order spectrum, order map, order cuts, overall level, rpm-frequency map, Bode, polar and
+    # Campbell views.
+    assert page.locator("figure.plot svg").count() == 14
     assert page.locator("script").count() == 1
     # The sorting script ran (it marks each sortable table).
     assert page.locator("table.sortable.js").count() == page.locator("table.sortable").count()

@@ -461,7 +461,8 @@ def test_order_cuts_match_direct_cuts(angle_panel, direct):
 def test_export_writes_tables_and_figures(angle_panel, tmp_path):
     tables = angle_panel.export("tables", tmp_path)
     assert {p.name for p in tables} == {"speed.csv", "doubted_pulses.csv", "order_spectrum.csv",
-                                        "order_peaks.csv", "order_cuts.csv", "identified_lines.csv"}
+                                        "order_peaks.csv", "order_cuts.csv", "identified_lines.csv",
+                                        "unmatched_lines.csv"}
     spectrum = pd.read_csv(tmp_path / "order_spectrum.csv")
     np.testing.assert_allclose(spectrum["amplitude"], angle_panel.tables()["order_spectrum"]["amplitude"],
                                rtol=1e-12)
@@ -473,7 +474,7 @@ def test_export_writes_tables_and_figures(angle_panel, tmp_path):
     assert ("tacho_check.png, order_map.png, order_cuts.png, order_spectrum.png exist(s) already; "
             "nothing written") in angle_panel.status.value
     angle_panel.overwrite.value = True
-    assert len(angle_panel.export("tables", tmp_path)) == 6
+    assert len(angle_panel.export("tables", tmp_path)) == 7
     angle_panel.overwrite.value = False
 
 

@@ -56,10 +56,13 @@ def test_every_drawn_line_is_owned_by_its_name(demo):
     scene = FoldScene(fmap, plan, table)
     # Every line of the machine is drawn (each has at least one segment on the grid).
     assert scene.line_names == frozenset(ln.name for ln in machine.lines())
-    # Labels start with the collision's line name.
-    texts = scene.ax.texts
-    assert texts and all(scene._owners[t] and t.get_text().startswith(next(iter(scene._owners[t])))
-                         for t in texts)
+    # Numbered collision labels belong to their collision's line (named in the label's gid);
+    # band names belong to no line.
+    texts = [t for t in scene.ax.texts if t.get_gid() != "band-name"]
+    assert texts and all(scene._owners[t] == frozenset([t.get_gid()[5:]]) for t in texts)
+    assert all(t.get_text().isdigit() for t in texts)
+    names = [t for t in scene.ax.texts if t.get_gid() == "band-name"]
+    assert names and all(not scene._owners[t] for t in names)
 
 
 def test_showing_everything_again_gives_the_first_picture(demo):
@@ -74,6 +77,6 @@ def test_legend_moves_to_html(demo):
     machine, plan, fmap, table = demo
     scene = FoldScene(fmap, plan, table)
     assert scene.ax.get_legend() is None
-    for text in ("direct line (zone 0)", "Nyquist (1280 Hz)", "band: housing resonance", "mesh"):
+    for text in ("direct line (zone 0)", "Nyquist (1280 Hz)", "band: housing resonance", "source: stage 1"):
         assert text in scene.legend_html
     assert legend_html(None) == '<div class="foldline-legend foldline-note"></div>'

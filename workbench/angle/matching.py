@@ -10,7 +10,7 @@ line at that speed tells the analyst which peaks are the machine and which are a
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -19,6 +19,7 @@ from workbench.errors import InputError
 from workbench.sampling.folding import fold
 
 __all__ = ["find_ridges", "predicted_orders", "match_lines", "identify_order_map", "Identification",
+           "unmatched_ridges",
            "RIDGE_FLOOR_DB", "RIDGES_PER_BLOCK"]
 
 #: A ridge point must stand this far above its block's median amplitude, dB ...
@@ -28,7 +29,8 @@ RIDGE_FLOOR_DB = 20.0
 RIDGES_PER_BLOCK = 60
 
 
-def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_order=None):
+def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_order=None,
+                window=None, n_window=None):
     """Local maxima of each order-map block that stand above the block's noise floor.
 
     Parameters
@@ -45,6 +47,13 @@ def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_o
         Keep at most this many peaks per block, strongest first.
     min_order : float, optional
         Ignore orders below this (default: the second bin, to skip DC).
+    window : str or tuple, optional
+        The map's FFT window; with it the amplitude is refined between bins by the estimator
+        of the order spectrum's peaks (:func:`~workbench.angle.spectra.peak_amplitude`), so a
+        ridge and the spectrum's peak of a steady line read the same.  Without it the peak
+        bin's amplitude is given.
+    n_window : int, optional
+        Samples per block of the map (with ``window``; without it the parabola's vertex).
 
     Returns
     -------
@@ -79,7 +88,13 @@ def find_ridges(rpm, order, amplitude, *, floor_db=20.0, max_per_block=12, min_o
         delta = np.where(denom < 0, 0.5 * (a - c) / denom, 0.0)
     delta = np.clip(delta, -0.5, 0.5)
     step = order[1] - order[0]
-    table = pd.DataFrame({"rpm": rpm[rows_b], "order": order[k] + delta * step, "amplitude": amp[rows_b, k]})
+    peak = amp[rows_b, k]
+    if window is not None:
+        from workbench.angle.spectra import peak_amplitude
+
+        db = 20.0 / np.log(10.0)
+        peak = peak_amplitude(peak, db * a, db * b, db * c, delta, window=window, n_window=n_window)
+    table = pd.DataFrame({"rpm": rpm[rows_b], "order": order[k] + delta * step, "amplitude": peak})
     table = table.sort_values(["rpm", "amplitude"], ascending=[True, False])
     table = table.groupby("rpm", sort=True, group_keys=False).head(max_per_block)
     return table.reset_index(drop=True)
@@ -130,11 +145,22 @@ class Identification:
         amplitude.
     unexplained : pandas.DataFrame
         Ridge points no predicted line explains.
+    unmatched : pandas.DataFrame or None
+        The unexplained points joined into lines (:func:`~workbench.angle.ridges.group_ridges`:
+        ``id, family, moves_with_speed, order, hz, ..., amplitude_max``); None when not grouped.
+    min_order : float
+        Lowest order matched (two bins of the order map): below it a line is not resolved
+        from its neighbours and DC, so it is neither matched nor given an amplitude.
+    below_resolution : tuple of str
+        Predicted order lines below ``min_order`` (listed, not matched).
     """
 
     points: pd.DataFrame
     table: pd.DataFrame
     unexplained: pd.DataFrame
+    unmatched: pd.DataFrame | None = None
+    min_order: float = 0.0
+    below_resolution: tuple = ()
 
     @property
     def aliases(self) -> pd.DataFrame:
@@ -142,7 +168,8 @@ class Identification:
         return self.table[self.table["alias"]]
 
 
-def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=1.0, min_points=2):
+def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=1.0, min_points=2,
+                min_order=0.0, rpm_span=0.0):
     """Match ridge points of an order map to the machine's predicted lines.
 
     Parameters
@@ -160,6 +187,16 @@ def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=
     min_points : int, optional
         A predicted line is listed in the table only when at least this many ridge points
         match it.
+    min_order : float, optional
+        Resolution limit, orders (use two bins of the map): ridge points below it are dropped
+        and no prediction below it is matched, so an order the map cannot resolve (a
+        low-speed shaft at 0.075 with 0.0625-order bins) takes no amplitude from DC leakage
+        or a neighbour.
+    rpm_span : float, optional
+        Speed range one ridge point stands for (one block or rpm bin of the map), rpm: a line
+        whose predicted order changes with speed (a folded line) is matched anywhere within
+        the orders it takes over that range, plus the tolerance, since the block's spectrum
+        smears it over them.
 
     Returns
     -------
@@ -177,14 +214,28 @@ def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=
     rate = float(rate_hz)
     if not np.isfinite(rate) or rate <= 0:
         raise InputError(f"rate_hz = {rate_hz!r}: must be a positive number of Hz")
-    pts = ridges[["rpm", "order", "amplitude"]].reset_index(drop=True).copy()
+    min_order = float(min_order)
+    pts = ridges[["rpm", "order", "amplitude"]]
+    pts = pts[pts["order"] >= min_order].reset_index(drop=True).copy()
     names = np.array([ln.name for ln in lines], dtype=object)
     kinds = np.array([ln.kind for ln in lines], dtype=object)
     if len(pts) and len(lines):
-        app, zone, _ = predicted_orders(lines, rate, pts["rpm"].to_numpy())
-        err = np.abs(app - pts["order"].to_numpy()[None, :])
+        r = pts["rpm"].to_numpy()
+        app, zone, _ = predicted_orders(lines, rate, r)
+        o = pts["order"].to_numpy()[None, :]
+        err = np.abs(app - o)
+        if rpm_span > 0:  # distance to the orders the line takes over the block's speed range
+            lo_r = np.maximum(r - 0.5 * rpm_span, 1e-9)
+            a1, _, _ = predicted_orders(lines, rate, lo_r)
+            a2, _, _ = predicted_orders(lines, rate, r + 0.5 * rpm_span)
+            a_lo, a_hi = np.minimum(np.minimum(a1, a2), app), np.maximum(np.maximum(a1, a2), app)
+            reach = np.where((o >= a_lo) & (o <= a_hi), 0.0, np.minimum(np.abs(o - a_lo), np.abs(o - a_hi)))
+        else:
+            reach = err
         tol = np.maximum(tolerance_orders, app * tolerance_pct / 100.0)
-        err = np.where(err <= tol, err, np.inf)
+        # accepted within the tolerance of the orders the line takes over the block; among the
+        # accepted lines the one whose order at the block's centre is nearest wins
+        err = np.where((reach <= tol) & (app >= min_order), err, np.inf)
         best = np.argmin(err, axis=0)
         col = np.arange(len(pts))
         found = np.isfinite(err[best, col])
@@ -217,10 +268,13 @@ def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=
             columns=["line", "kind", "zone", "alias", "points", "rpm_min", "rpm_max", "order_min", "order_max", "amplitude_max"]
         )
     unexplained = pts[pts["line"].isna()][["rpm", "order", "amplitude"]].reset_index(drop=True)
-    return Identification(points=pts, table=table, unexplained=unexplained)
+    below = tuple(ln.name for ln in lines if ln.order is not None and ln.order < min_order)
+    return Identification(points=pts, table=table, unexplained=unexplained, min_order=min_order,
+                          below_resolution=below)
 
 
-def identify_order_map(order_map, lines, rate_hz, *, floor_db=RIDGE_FLOOR_DB, max_per_block=RIDGES_PER_BLOCK):
+def identify_order_map(order_map, lines, rate_hz, *, floor_db=RIDGE_FLOOR_DB, max_per_block=RIDGES_PER_BLOCK,
+                       samples_per_rev=None):
     """Ridges of an order map matched to predicted lines, with the project's standard settings.
 
     Parameters
@@ -231,13 +285,61 @@ def identify_order_map(order_map, lines, rate_hz, *, floor_db=RIDGE_FLOOR_DB, ma
         Sample rate of the recording, Hz.
     floor_db, max_per_block : float, int
         Ridge picking (see :func:`find_ridges`).
+    samples_per_rev : int, optional
+        Samples per revolution of the tracked signal (the block length for the amplitude
+        estimator; default 256, which changes the Hann correction by far less than 0.01 dB).
 
     Returns
     -------
     Identification
-        Matched with a tolerance of 1.5 bins of the map (at least 0.05 orders).
+        Matched with a tolerance of 1.5 bins of the map (at least 0.05 orders); nothing below
+        two bins of the map is matched (:attr:`Identification.min_order`); ridge amplitudes
+        from the order spectrum's peak estimator; the unexplained points joined into lines
+        (:attr:`Identification.unmatched`).
     """
+    from workbench.angle.ridges import group_ridges
+
+    res = float(order_map.order_resolution)
+    min_order = 2.0 * res
+    window = getattr(order_map, "window", "hann")
+    n_window = round(float(order_map.revs_per_block) * (samples_per_rev or 256))
     ridges = find_ridges(order_map.rpm, order_map.order, order_map.amplitude, floor_db=floor_db,
-                         max_per_block=max_per_block)
-    tolerance = max(1.5 * float(order_map.order_resolution), 0.05)
-    return match_lines(ridges, lines, rate_hz, tolerance_orders=tolerance)
+                         max_per_block=max_per_block, min_order=min_order, window=window,
+                         n_window=n_window)
+    tolerance = max(1.5 * res, 0.05)
+    rpm = np.sort(np.asarray(order_map.rpm, dtype=float))
+    span = float(np.median(np.diff(rpm))) if rpm.size > 2 else 0.0
+    ident = match_lines(ridges, lines, rate_hz, tolerance_orders=tolerance, min_order=min_order,
+                        rpm_span=max(span, 0.0))
+    unmatched, _ = group_ridges(ident.unexplained, order_resolution=res,
+                                min_amplitude=_floor_of(order_map))
+    return replace(ident, unmatched=unmatched)
+
+
+def unmatched_ridges(order_map, *, floor_db=RIDGE_FLOOR_DB, max_per_block=RIDGES_PER_BLOCK, samples_per_rev=None):
+    """Ridges of an order map joined into lines when no machine is known (nothing predicted).
+
+    Same ridge picking, resolution limit and amplitude estimator as :func:`identify_order_map`.
+
+    Returns
+    -------
+    pandas.DataFrame
+        :func:`~workbench.angle.ridges.group_ridges` table of every measured line.
+    """
+    from workbench.angle.ridges import group_ridges
+
+    res = float(order_map.order_resolution)
+    ridges = find_ridges(order_map.rpm, order_map.order, order_map.amplitude, floor_db=floor_db,
+                         max_per_block=max_per_block, min_order=2.0 * res,
+                         window=getattr(order_map, "window", "hann"),
+                         n_window=round(float(order_map.revs_per_block) * (samples_per_rev or 256)))
+    return group_ridges(ridges, order_resolution=res, min_amplitude=_floor_of(order_map))[0]
+
+
+def _floor_of(order_map) -> float:
+    """Weakest unmatched line listed: the map's maximum UNMATCHED_RANGE_DB down."""
+    from workbench.angle.ridges import UNMATCHED_RANGE_DB
+
+    amp = np.asarray(order_map.amplitude, dtype=float)
+    top = float(np.nanmax(amp)) if amp.size and np.isfinite(amp).any() else 0.0
+    return top * 10.0 ** (-UNMATCHED_RANGE_DB / 20.0)

@@ -172,7 +172,8 @@ def cmd_foldmap(args) -> int:
     if args.png:
         from workbench.plots import save_figure, plot_fold_map
 
-        fig = plot_fold_map(fmap, plan, collisions=table, view=args.view)
+        fig = plot_fold_map(fmap, plan, collisions=table, view=args.view,
+                            log_frequency=getattr(args, "log_frequency", False))
         save_figure(fig, args.png, force=args.force)
     coll = table[table["kind"] == "collision"]
     over = table[table["kind"] == "overlap"]
@@ -281,6 +282,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--rate", required=True, type=float, metavar="HZ")
     p.add_argument("--png", metavar="FILE", help="write the fold map figure to FILE")
     p.add_argument("--view", choices=("hz", "order"), default="hz", help="frequency axis of the figure")
+    p.add_argument("--log-frequency", action="store_true",
+                   help="logarithmic frequency (or order) axis: spreads the low-frequency region")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_foldmap)
 
@@ -301,6 +304,9 @@ def build_parser() -> argparse.ArgumentParser:
     from workbench.cli.verb_criticals import add_criticals_verb
 
     add_criticals_verb(verb)
+    from workbench.cli.verb_compare import add_compare_verb
+
+    add_compare_verb(verb)
     return parser
 
 

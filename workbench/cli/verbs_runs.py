@@ -75,7 +75,8 @@ def cmd_demo(args) -> int:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FoldlineWarning)
             analysis = track_run(run_path, machine=machine, samples_per_rev=spr,
-                                 revs_per_block=advice.resampling.revs_per_block)
+                                 revs_per_block=advice.resampling.revs_per_block,
+                                 aa_filter=plan.filter)  # the demo run was made under the plan
         track_dir = out / "run"
         _check_out_folder(track_dir, force=args.force)
         figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force))
@@ -188,9 +189,23 @@ def cmd_track(args) -> int:
     from workbench.runs.analysis import track_channels, vibration_channels
     from workbench.runs.files import read_run
 
+    from workbench.cli.display_options import (analysis_options_from_args,
+                                               display_options_from_args, scaling_from_args)
+    from workbench.runs.analysis import MultiRunAnalysis
+    from workbench.runs.scaled import rolloff_corrected, scaled_analysis
+
     opts = track_options_from_args(args)
     channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
+    scaling = scaling_from_args(args)  # checked before the work
+    aa_filter = None
+    if getattr(args, "plan", None):
+        from workbench.sampling import read_plan
+
+        aa_filter = read_plan(args.plan).filter
+    if getattr(args, "correct_rolloff", False) and aa_filter is None:
+        raise InputError("--correct-rolloff: give the acquisition's plan with --plan PLAN (its filter's "
+                         "roll-off is what is taken out)")
     run = read_run(args.run, rate_hz=opts.pop("rate_hz", None))
     rows = vibration_channels(run, channels, tacho=opts.get("tacho"),
                               speed_channel=opts.get("speed_channel"))
@@ -202,11 +217,19 @@ def cmd_track(args) -> int:
     # The rpm-frequency map is only drawn into --out: without it, it is not computed.
     multi = track_channels(run, channels=tuple(i + 1 for i in rows), machine=args.machine,
                            protect=not args.no_protect, max_order=args.max_order,
-                           rf_map=out is not None, **opts)
+                           rf_map=out is not None, aa_filter=aa_filter, **opts,
+                           **analysis_options_from_args(args))
+    chans = []
+    for a in multi.channels:
+        if getattr(args, "correct_rolloff", False):
+            a = rolloff_corrected(a, aa_filter)
+        chans.append(scaled_analysis(a, scaling))
+    multi = MultiRunAnalysis(tuple(chans), threads=multi.threads)
     files = []
     if out is not None:
         for a in multi.channels:
-            files.extend(write_track_outputs(a, folders[a.channel], force=args.force))
+            files.extend(write_track_outputs(a, folders[a.channel], force=args.force,
+                                             **display_options_from_args(args)))
     result = multi.channels[0].to_dict() if len(multi) == 1 else multi.to_dict()
     if files:
         result["files"] = [str(f) for f in files]
@@ -241,6 +264,8 @@ def channel_folders(out: Path, names) -> dict:
 
 TRACK_FILES = (
     "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
+    "unmatched.csv", "overall_level.csv", "overall_level.png", "order_map.npz", "order_map.parquet",
+    "rpm_frequency_map.npz", "rpm_frequency_map.parquet", "order_waterfall.png",
     "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
     "rpm_frequency_map.png",
 )
@@ -258,8 +283,12 @@ def _check_out_folder(out: Path, *, force: bool) -> None:
             raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace the outputs in {out}")
 
 
-def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
-    """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``."""
+def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: str = "none") -> list:
+    """Write the tables (CSV) and figures (PNG) of a tracked run into folder ``out``.
+
+    ``overlay`` (``"none"``, ``"matched"``, ``"all"``) chooses the predicted lines drawn over
+    the maps and the order spectrum.
+    """
     import numpy as np
     import pandas as pd
 
@@ -290,7 +319,13 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
               "order_cuts.csv")
     if a.identification is not None:
         table(a.identification.table, "identification.csv")
+    if getattr(a, "unmatched", None) is not None:
+        table(a.unmatched, "unmatched.csv")
+    if getattr(a, "overall", None) is not None:
+        table(pd.DataFrame({"rpm": a.overall.rpm, "rms": a.overall.rms, "blocks": a.overall.n_blocks}),
+              "overall_level.csv")
     table(a.doubted, "doubted_pulses.csv")
+    files.extend(_write_maps(a, out, force=force))
     sa = a.shaft_angle
     t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
     from workbench.plots import speed_check_options
@@ -300,16 +335,37 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False) -> list:
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})", **band), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
     top = a.samples_per_rev / 2.56
+    sc = getattr(a, "scaling", None)  # amplitudes shown RMS, in dB or integrated
+    label = None if sc is None else sc.label(a.channel_unit or "")
+    db = sc is not None and sc.db_ref is not None
+    shown = {"amplitude_label": label}
+    valid = getattr(a, "valid", None)
     figure(plot_order_spectrum(a.spectrum, peaks=a.peaks, lines=lines, unit=a.unit, max_order=top,
+                               overlay=overlay, identification=a.identification, valid=valid,
+                               rpm_range=(a.rpm_min, a.rpm_max), log=not db, **shown,
                                title=f"Order spectrum: {Path(a.source).name}, channel {a.channel}"), "order_spectrum.png")
     figure(plot_order_map(a.order_map, lines=lines, rate_hz=a.rate_hz, identification=a.identification,
-                          max_order=top, unit=a.unit, title=f"Order map: {Path(a.source).name}, predicted lines overlaid"),
+                          max_order=top, unit=a.unit, overlay=overlay, unmatched=getattr(a, "unmatched", None),
+                          valid=valid, db=db, **shown,
+                          title=f"Order map: {Path(a.source).name}"),
            "order_map.png")
     if a.cuts:
-        figure(plot_order_cuts(a.cuts, unit=a.unit), "order_cuts.png")
+        figure(plot_order_cuts(a.cuts, unit=a.unit, valid=valid, log=not db, **shown), "order_cuts.png")
+    if not db:
+        from workbench.plots import plot_waterfall
+
+        figure(plot_waterfall(a.order_map, unit=a.unit, max_axis=top, amplitude_label=label,
+                              title=f"Order waterfall: {Path(a.source).name}"), "order_waterfall.png")
+    if getattr(a, "overall", None) is not None:
+        from workbench.plots import plot_overall_level
+
+        figure(plot_overall_level(a.overall, unit=a.channel_unit or a.unit, cuts=None if sc else a.cuts,
+                                  title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
+               "overall_level.png")
     if a.rf_map is not None:
-        names = None if a.identification is None else set(a.identification.table["line"])
-        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, names=names),
+        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, overlay=overlay,
+                                      identification=a.identification, valid=valid, db=db, **shown,
+                                      title=f"rpm-frequency map: {Path(a.source).name}"),
                "rpm_frequency_map.png")
     return files
 
@@ -338,6 +394,30 @@ def _print_track_channels(multi, files) -> None:
         print(f"\noutputs written to one folder per channel under {Path(files[0]).parent.parent}")
 
 
+def _write_maps(a, out: Path, *, force: bool) -> list:
+    """The order map and the rpm-frequency map as data: NPZ, and Parquet when pyarrow is there."""
+    import importlib.util
+    import warnings as _w
+
+    from workbench.runs.mapdata import map_data, write_map_npz, write_map_parquet
+
+    sc = getattr(a, "scaling", None)
+    how = "peak" if sc is None else sc.label(a.channel_unit or "")
+    parquet = importlib.util.find_spec("pyarrow") is not None
+    if not parquet:
+        _w.warn("the maps are written as NPZ only: Parquet needs pyarrow (pip install 'foldline[batch]')",
+                FoldlineWarning, stacklevel=2)
+    written = []
+    for obj, stem in ((a.order_map, "order_map"), (a.rf_map, "rpm_frequency_map")):
+        if obj is None:
+            continue
+        d = map_data(obj, unit=a.unit, amplitude_scaling=how)
+        written.append(write_map_npz(d, out / f"{stem}.npz", force=force))
+        if parquet:
+            written.append(write_map_parquet(d, out / f"{stem}.parquet", force=force))
+    return written
+
+
 def _print_track(a, files) -> None:
     print(f"{a.source}: channel {a.channel}, {a.rate_hz:g} S/s, speed from {a.speed_source}: "
           f"{a.rpm_min:.0f}-{a.rpm_max:.0f} rpm over {a.revolutions:.0f} rev")
@@ -356,6 +436,12 @@ def _print_track(a, files) -> None:
         print(f"\nfolded lines identified in the order map (aliases, not machine orders): {len(al)}")
         print(al[["line", "zone", "rpm_min", "rpm_max", "amplitude_max"]].to_string(
             index=False, float_format=lambda v: f"{v:.4g}"))
+    um = getattr(a, "unmatched", None)
+    if um is not None and len(um):
+        what = "match no predicted line" if a.identification is not None else "were measured (no machine file)"
+        print(f"\nmeasured lines that {what}: {len(um)}")
+        print(um[["id", "family", "order", "hz", "rpm_min", "rpm_max", "amplitude_max"]].head(20).to_string(
+            index=False, float_format=lambda v: f"{v:.4g}", na_rep="-"))
     if files:
         print(f"\noutputs written to {Path(files[0]).parent}")
 
@@ -392,7 +478,12 @@ def add_verbs(verb) -> None:
     p = verb("track", "order tracking of a recorded run: speed, order spectrum, peaks, maps, aliases")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
     add_track_options(p)
+    from workbench.cli.display_options import add_display_options
+
+    add_display_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
+    p.add_argument("--plan", metavar="PLAN", help="plan file of the acquisition: its anti-alias filter bounds the "
+                                                  "valid region of the results (default: Nyquist of the run's rate)")
     p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
     p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder "

@@ -10,6 +10,7 @@ from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_o
 from workbench.plots.criticals import plot_bode, plot_campbell, plot_polar, run_up_figures
 from workbench.plots.common import figure_bytes, new_figure, save_figure
 from workbench.plots.foldmap import draw_fold_map, plot_fold_map
+from workbench.plots.angle import plot_overall_level, plot_waterfall  # noqa: E402
 
 __all__ = [
     "plot_fold_map",
@@ -29,3 +30,4 @@ __all__ = [
     "new_figure",
     "figure_bytes",
 ]
+__all__ += ["plot_overall_level", "plot_waterfall"]

@@ -22,15 +22,20 @@ def cmd_report(args) -> int:
     from workbench.cli.main import emit_json
     from workbench.report.document import write_report
 
-    opts = track_options_from_args(args)
+    from workbench.cli.display_options import analysis_options_from_args
+
+    opts = {**track_options_from_args(args), **analysis_options_from_args(args)}
     if args.run is None and opts:
         raise InputError(f"tracking options ({', '.join(option_name(k) for k in opts)}) "
                          "need a RUN; give the run file after the plan")
     # Progress only for a person at a terminal: a script's stderr keeps the one-line error
     # contract (warnings go through the command's one-line handler).
     show = not args.json and sys.stderr.isatty()
+    from workbench.cli.display_options import report_display_from_args
+
     report = write_report(args.machine, args.plan, args.run, out=args.out, force=args.force,
-                          track_options=opts, progress=(lambda t: _stderr(f"report: {t}")) if show else None)
+                          track_options=opts, progress=(lambda t: _stderr(f"report: {t}")) if show else None,
+                          display=report_display_from_args(args))
     result = {"out": str(args.out), **report.to_dict()}
     if args.json:
         emit_json(result)
@@ -67,4 +72,7 @@ def add_report_verb(verb) -> None:
     p.add_argument("--out", required=True, metavar="FILE.html", help="output HTML file")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     add_track_options(p)
+    from workbench.cli.display_options import add_display_options
+
+    add_display_options(p)
     p.set_defaults(func=cmd_report)

@@ -58,9 +58,11 @@ SECTION_TITLES = {
     "order-spectrum": "Order spectrum",
     "order-map": "Order map",
     "order-cuts": "Order cuts",
+    "overall-level": "Overall level",
     "rpm-frequency-map": "rpm-frequency map",
     "identification": "Identified lines and aliases",
     "criticals": "Critical speeds: Bode, polar and Campbell",
+    "unmatched": "Measured lines no prediction explains",
     "safety": "Safety",
     "provenance": "Provenance",
 }
@@ -230,6 +232,18 @@ _IDENT_COLUMNS = (
     Column("amplitude_max", "largest amplitude", general(4), numeric=True),
 )
 
+_UNMATCHED_COLUMNS = (
+    Column("id", "tag"),
+    Column("family", "family"),
+    Column("moves_with_speed", "moves with speed", lambda v: "?" if v is None else yes_no(v)),
+    Column("order", "order", lambda v: "" if v is None or v != v else f"{v:.3f}", numeric=True),
+    Column("hz", "Hz", lambda v: "" if v is None or v != v else f"{v:.1f}", numeric=True),
+    Column("rpm_min", "from (rpm)", fixed(0), numeric=True),
+    Column("rpm_max", "to (rpm)", fixed(0), numeric=True),
+    Column("points", "ridge points", str, numeric=True),
+    Column("amplitude_max", "largest amplitude", general(4), numeric=True),
+)
+
 _DOUBT_COLUMNS = (
     Column("time_s", "time (s)", fixed(4), numeric=True),
     Column("reason", "what was found and done"),
@@ -334,7 +348,8 @@ def _sub(sid, inner, sections):
 
 
 def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None,
-                 created_utc=None, title=None, progress=None, criticals=None) -> Report:
+                 created_utc=None, title=None, progress=None, criticals=None,
+                 display=None) -> Report:
     """Render the report of a machine under a plan, and of a tracked run when given.
 
     Parameters
@@ -358,6 +373,9 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         Order tracks and critical speeds of the run
         (:func:`workbench.runs.criticals.run_criticals`): adds the Bode, polar and Campbell
         views and the criticals table to the run's part.
+    display : mapping, optional
+        How the run's results are shown: ``overlay`` (``"none"`` default, ``"matched"``,
+        ``"all"``: predicted lines drawn over the maps and the order spectrum).
 
     Returns
     -------
@@ -571,7 +589,7 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
     if analysis is not None:
         say("run figures")
         run_html, aliases = _run_sections(analysis, lines, track_settings, sections,
-                                          criticals=criticals)
+                                          criticals=criticals, plan=plan, display=display)
         parts.append(run_html)
 
     # ---- safety and provenance ----------------------------------------------------------
@@ -701,10 +719,31 @@ def _criticals_section(crit, sections):
     return _sub("criticals", "\n".join(html), sections)
 
 
-def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
+def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, plan=None,
+                  display=None):
     """The run part of the report; returns (html, alias names or None)."""
+    from workbench.angle.validity import valid_region
     from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum,
                                  plot_rpm_frequency_map, plot_tacho_check, speed_check_options)
+
+    display = dict(display or {})
+    overlay = display.get("overlay", "none")
+    scaling = display.get("scaling")
+    db = scaling is not None and scaling.db_ref is not None
+    # the plan's filter is the acquisition's: it bounds what the run measured faithfully
+    valid = valid_region(analysis.rate_hz, None if plan is None else plan.filter)
+
+    def shown_analysis(a):
+        """A channel's analysis with the roll-off correction and the scaling asked for."""
+        if display.get("correct_rolloff") and plan is not None:
+            from workbench.runs.scaled import rolloff_corrected
+
+            a = rolloff_corrected(a, plan.filter)
+        if scaling is not None:
+            from workbench.runs.scaled import scaled_analysis
+
+            a = scaled_analysis(a, scaling)
+        return a
 
     sa = analysis.shaft_angle
     run_sections: list[str] = []
@@ -721,6 +760,10 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
         ("samples per rev", str(analysis.samples_per_rev)),
         ("revs per block", f"{float(analysis.revs_per_block):g}"),
     ]
+    if scaling is not None:
+        unit0 = getattr(getattr(analysis, "first", analysis), "unit", "") or ""
+        pairs.append(("amplitudes shown as", scaling.label(unit0) + (
+            f", integrated from {scaling.min_hz:g} Hz" if scaling.integrate else "")))
     for k, v in (track_settings or {}).items():
         if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
             pairs.append((k.replace("_", " "), v if isinstance(v, str) else repr(v)))
@@ -752,9 +795,13 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
     any_ident = False
 
     def channel_parts(analysis, sfx):
-        """One channel's spectrum, map, cuts, rpm-frequency map and identification."""
+        """One channel's spectrum, map, cuts, overall level, rpm-frequency map, identification
+        and unmatched lines."""
         nonlocal any_ident
+        analysis = shown_analysis(analysis)
         unit = analysis.unit or ""
+        label = None if scaling is None else scaling.label(analysis.channel_unit or "")
+        shown = {"amplitude_label": label}
 
         def sub(sid, inner):
             if not sfx:
@@ -769,10 +816,15 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
         peaks = analysis.peaks.copy()
         peaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in peaks["order"]]
         peaks = peaks.sort_values("amplitude", ascending=False)
-        fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit)
-        spec_html = figure_svg(fig, key="order-spectrum" + sfx, caption="Order spectrum averaged over the run "
-                               "(peak amplitudes, window-corrected) with the predicted direct line "
-                               "orders dotted.", alt="order spectrum")
+        ident = getattr(analysis, "identification", None)
+        fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit,
+                                  overlay=overlay, identification=ident, valid=valid,
+                                  rpm_range=(float(sa.rpm_min), float(sa.rpm_max)), log=not db,
+                                  **shown)
+        spec_html = figure_svg(fig, key="order-spectrum" + sfx, caption="Order spectrum averaged over "
+                               "the run (peak amplitudes, window-corrected)" + (
+                                   "." if overlay == "none" else " with the predicted direct line "
+                                   "orders dotted."), alt="order spectrum")
         _close(fig)
         spec_html += table_html(peaks, _PEAK_COLUMNS, css_class="peaks",
                                 caption="Peaks of the order spectrum (largest first)", empty="no peaks")
@@ -782,7 +834,8 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
             epeaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in epeaks["order"]]
             epeaks = epeaks.sort_values("amplitude", ascending=False)
             fig = plot_order_spectrum(env, peaks=analysis.envelope_peaks, lines=lines, unit=unit,
-                                      title="Envelope order spectrum")
+                                      title="Envelope order spectrum", overlay=overlay,
+                                      identification=ident)
             spec_html += figure_svg(fig, key="envelope-spectrum" + sfx, caption="Envelope order spectrum.",
                                     alt="envelope order spectrum")
             _close(fig)
@@ -790,20 +843,37 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
                                     caption="Peaks of the envelope order spectrum", empty="no peaks")
         run_sections.append(sub("order-spectrum", spec_html))
 
-        ident = getattr(analysis, "identification", None)
+        unmatched = getattr(analysis, "unmatched", None)
         fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
-                             identification=ident, unit=unit)
+                             identification=ident, unit=unit, overlay=overlay, unmatched=unmatched,
+                             valid=valid, db=db, **shown)
+        caption = ("Order map as measured" if overlay == "none" else
+                   "Order map with the predicted lines ("
+                   + ("those matched to measured ridges" if overlay == "matched" else "all") +
+                   "): direct lines solid, folded lines (aliases, moving in order with speed) dashed; "
+                   "identified aliases numbered, with the key below the map")
+        caption += ("; measured lines no prediction explains are tagged U1, U2, ..."
+                    if unmatched is not None and len(unmatched) else "")
+        caption += ". Shaded: orders beyond the " + valid.describe() + "."
         run_sections.append(sub("order-map", figure_svg(
-            fig, key="order-map" + sfx, caption="Order map with the predicted lines: direct lines solid, "
-            "folded lines (aliases, moving in order with speed) dashed; identified aliases labelled.",
-            alt="order map")))
+            fig, key="order-map" + sfx, caption=caption, alt="order map")))
         _close(fig)
 
         cuts = tuple(getattr(analysis, "cuts", ()) or ())
         if cuts:
-            fig = plot_order_cuts(cuts, unit=unit)
-            cut_html = figure_svg(fig, key="order-cuts" + sfx, caption="Amplitude of chosen orders against "
-                                  "speed (energy sum over the band of each cut).", alt="order cuts")
+            fig = plot_order_cuts(cuts, unit=unit, valid=valid, log=not db, **shown)
+            cut_html = figure_svg(fig, key="order-cuts" + sfx, caption="Amplitude of chosen orders "
+                                  "against speed (energy sum over the band of each cut); dotted where "
+                                  "the cut's band lies beyond the " + valid.describe() + "; grey "
+                                  "above Nyquist, where the order is folded and not measured.",
+                                  alt="order cuts")
+            shared = tuple(getattr(analysis, "cut_band_lines", ()) or ())
+            lasting = [d for d in shared if d["rpm_max"] > d["rpm_min"]]
+            if lasting:
+                cut_html += ('<p class="warning">Other predicted lines inside a cut\'s band (the cut '
+                             "sums them there and beats between them): " + esc("; ".join(
+                                 f"order {d['cut_order']:g}: {d['line']} at {d['rpm_min']:.0f}-"
+                                 f"{d['rpm_max']:.0f} rpm" for d in lasting)) + ".</p>")
             _close(fig)
             cut_html += table_html(_cut_records(cuts, lines, res), _CUT_COLUMNS, css_class="cuts",
                                    caption="Order cuts and the predicted line at each order")
@@ -811,27 +881,66 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None):
             cut_html = '<p class="empty">no order cuts were asked for</p>'
         run_sections.append(sub("order-cuts", cut_html))
 
+        overall = getattr(analysis, "overall", None)
+        if overall is not None:
+            from workbench.plots import plot_overall_level
+
+            fig = plot_overall_level(overall, unit=analysis.channel_unit or unit,
+                                     cuts=None if scaling else cuts)
+            band = overall.band_hz
+            run_sections.append(sub("overall-level", figure_svg(
+                fig, key="overall-level" + sfx, caption="Overall RMS of the channel against speed "
+                f"(time domain, blocks of {overall.block_s:.3g} s averaged on mean square in the "
+                "order map's speed rows"
+                + (f", {band[0]:g}-{band[1]:g} Hz only" if band else ", whole band, DC removed")
+                + "), with the order cuts as RMS: where the overall level rises and no order does, "
+                "the energy is in something the cuts do not follow.",
+                alt="overall level against speed")))
+            _close(fig)
+
         rf = getattr(analysis, "rf_map", None)
         if rf is not None:
-            names = None if ident is None or not len(ident.table) else set(ident.table["line"])
-            fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit, names=names)
+            fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit,
+                                         overlay=overlay, identification=ident, valid=valid, db=db,
+                                         **shown)
             run_sections.append(sub("rpm-frequency-map", figure_svg(
-                fig, key="rpm-frequency-map" + sfx, caption="Time-domain spectra against speed with the "
-                "apparent frequency of each identified line.", alt="rpm-frequency map")))
+                fig, key="rpm-frequency-map" + sfx, caption="Time-domain spectra against speed" + (
+                    "." if overlay == "none" else " with the apparent frequency of each "
+                    + ("identified" if overlay == "matched" else "predicted") + " line."),
+                alt="rpm-frequency map")))
             _close(fig)
 
         if ident is not None:
             aliases.extend(str(n) for n in ident.aliases["line"])
             n_unexpl = len(ident.unexplained)
+            below = tuple(getattr(ident, "below_resolution", ()) or ())
             intro = ("<p>Ridges of the order map matched to the machine's predicted lines. A line in "
-                     "zone 1 or above is an <b>alias</b>: it was above Nyquist when sampled and shows at "
-                     "an order that moves with speed, so it is not a fault line at that order. "
-                     f"{n_unexpl} ridge point(s) match no predicted line.</p>")
+                     "zone 1 or above is an <b>alias</b>: it was above Nyquist when sampled and shows "
+                     "at an order that moves with speed, so it is not a fault line at that order. "
+                     f"{n_unexpl} ridge point(s) match no predicted line; those that form lines are "
+                     "listed in the next table.</p>")
+            if below:
+                intro += (f"<p>Below two bins of the order map (order {float(ident.min_order):.3g}) "
+                          "a line is not resolved from its neighbours and DC, so it is neither matched "
+                          f"nor given an amplitude: {esc(', '.join(below))}. A longer block (more "
+                          "revolutions per block) resolves them.</p>")
             run_sections.append(sub("identification", intro + table_html(
                 ident.table, _IDENT_COLUMNS, css_class="identification",
                 caption="Identified lines (aliases first, then by amplitude)",
                 empty="no ridge matched a predicted line")))
         any_ident = any_ident or ident is not None
+        if unmatched is not None:
+            what = ("match no predicted line" if ident is not None else
+                    "were measured (no machine file, so nothing was predicted)")
+            um_intro = (f"<p>Lines of the order map that {what}: an <b>order</b> line keeps its "
+                        "order as the speed changes (its frequency moves with speed); a <b>fixed</b> "
+                        "line keeps its frequency (a resonance, an electrical line, a neighbouring "
+                        "machine); <b>unclear</b>: seen over less than 10 % of speed. Tags U1, U2, "
+                        "... are those of the order map.</p>")
+            run_sections.append(sub("unmatched", um_intro + table_html(
+                unmatched, _UNMATCHED_COLUMNS, css_class="unmatched",
+                caption="Measured lines no prediction explains (strongest first)",
+                empty="every measured line is explained by a predicted line")))
 
     if len(chans) == 1:
         channel_parts(chans[0], "")
@@ -915,7 +1024,7 @@ def _run_criticals(run_path, machine, settings):
 
 
 def write_report(machine_path, plan_path, run_path=None, *, out, force=False, track_options=None,
-                 analysis=None, progress=None) -> Report:
+                 analysis=None, progress=None, display=None) -> Report:
     """Read the inputs, track the run (when given), build the report and write it to ``out``.
 
     Parameters
@@ -937,6 +1046,8 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         shown).
     progress : callable, optional
         Called with a short text as each part is built.
+    display : mapping, optional
+        How the run's results are shown (see :func:`build_report`).
 
     Returns
     -------
@@ -990,7 +1101,7 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
             progress("order tracks with phase and critical speeds")
         crit = _run_criticals(run_path, machine, settings)
     report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
-                          progress=progress, criticals=crit)
+                          progress=progress, criticals=crit, display=display)
     with atomic_output(out, force=force) as tmp:
         Path(tmp).write_text(report.html, encoding="utf-8")
     return report

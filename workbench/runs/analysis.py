@@ -24,7 +24,7 @@ from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_
                              find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
                              tacho_angle)
 from workbench.angle.tracking import iter_order_track_channels, resolve_threads
-from workbench.angle.matching import identify_order_map
+from workbench.angle.matching import identify_order_map, unmatched_ridges
 from workbench.angle.tacho import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
@@ -92,6 +92,22 @@ class RunAnalysis:
     identification : Identification or None
     lines : tuple of Line
         The machine's predicted lines the identification used (empty without a machine).
+    unmatched : pandas.DataFrame or None
+        Measured ridges no predicted line explains, joined into lines
+        (:func:`~workbench.angle.ridges.group_ridges`); without a machine, every measured line.
+    overall : OverallLevel or None
+        Overall RMS of the channel against speed, in the order map's rpm rows
+        (:func:`~workbench.angle.overall.overall_level`).
+    valid : ValidRegion or None
+        The frequencies measured faithfully (:func:`~workbench.angle.validity.valid_region`:
+        the plan's filter's usable edge, or Nyquist).
+    cut_band_lines : tuple of dict
+        Predicted lines other than a cut's own inside its band (``cut_order, line, order,
+        zone, rpm_min, rpm_max``): the cut sums them.
+    scaling : AmplitudeScaling or None
+        Set by :func:`~workbench.runs.scaled.scaled_analysis` when the amplitudes are shown
+        RMS, in dB or integrated (``unit`` is then the shown unit, ``channel_unit`` the
+        channel's own).
     doubted : pandas.DataFrame
         Tacho pulses the processing doubted (time_s, reason).
     log : tuple of str
@@ -123,6 +139,12 @@ class RunAnalysis:
     protect: bool = True
     log: tuple = field(default_factory=tuple)
     speed_estimate: object = None
+    unmatched: object = None
+    overall: object = None
+    valid: object = None
+    cut_band_lines: tuple = ()
+    scaling: object = None
+    channel_unit: str | None = None
 
     @property
     def rpm_min(self) -> float:
@@ -143,9 +165,11 @@ class RunAnalysis:
         """This channel's entry of the multi-channel JSON (:data:`CHANNEL_KEYS`); keys whose
         analysis was not asked for (envelope, identification) are null."""
         d = self.to_dict()
-        return {"channel": d["channel"], "unit": d["unit"], "order_spectrum": d["order_spectrum"],
-                "peaks": d["peaks"], "envelope_peaks": d.get("envelope_peaks"),
-                "identified": d.get("identified")}
+        out = {"channel": d["channel"], "unit": d["unit"], "order_spectrum": d["order_spectrum"],
+               "peaks": d["peaks"], "envelope_peaks": d.get("envelope_peaks"),
+               "identified": d.get("identified")}
+        out.update({k: d[k] for k in _CHANNEL_EXTRA if k in d})
+        return out
 
     def to_dict(self) -> dict:
         """The JSON contract of ``foldline track``."""
@@ -185,11 +209,23 @@ class RunAnalysis:
                 }
                 for r in t.itertuples()
             ]
+        if self.unmatched is not None:
+            out["unmatched"] = unmatched_records(self.unmatched)
+        if self.overall is not None:
+            out["overall"] = self.overall.to_dict()
+        if self.valid is not None:
+            out["valid_region"] = self.valid.to_dict()
+        if self.cut_band_lines:
+            out["cut_band_lines"] = [dict(d) for d in self.cut_band_lines]
+        if self.scaling is not None:
+            out["scaling"] = self.scaling.to_dict(self.channel_unit or "")
         return out
 
 
 #: Keys of each entry of ``"channels"`` in the multi-channel JSON of ``foldline track``.
 CHANNEL_KEYS = ("channel", "unit", "order_spectrum", "peaks", "envelope_peaks", "identified")
+#: Per-channel keys added to an entry when present (each channel has its own).
+_CHANNEL_EXTRA = ("unmatched", "overall", "cut_band_lines", "scaling")
 
 
 @dataclass(frozen=True, eq=False)
@@ -243,7 +279,7 @@ class MultiRunAnalysis:
         ``"channels": [{"channel", "unit", "order_spectrum", "peaks", "envelope_peaks",
         "identified"}]``."""
         top = self.channels[0].to_dict()
-        for k in ("channel", "unit", "order_spectrum", "peaks", "envelope_peaks", "identified"):
+        for k in CHANNEL_KEYS + _CHANNEL_EXTRA:
             top.pop(k, None)
         top["channels"] = [a.channel_dict() for a in self.channels]
         return top
@@ -251,6 +287,23 @@ class MultiRunAnalysis:
 
 _PER_CHANNEL = frozenset({"channel", "unit", "spectrum", "peaks", "envelope", "envelope_peaks",
                           "order_map", "cuts", "rf_map", "identification", "log"})
+
+
+def unmatched_records(table) -> list:
+    """The ``"unmatched"`` list of ``foldline track --json`` from a ridge-group table."""
+    def num(v):
+        v = float(v)
+        return v if math.isfinite(v) else None
+
+    return [
+        {"id": str(r.id), "family": str(r.family),
+         "moves_with_speed": None if r.moves_with_speed is None else bool(r.moves_with_speed),
+         "order": num(r.order), "hz": num(r.hz), "order_min": num(r.order_min),
+         "order_max": num(r.order_max), "hz_min": num(r.hz_min), "hz_max": num(r.hz_max),
+         "rpm_min": num(r.rpm_min), "rpm_max": num(r.rpm_max), "points": int(r.points),
+         "amplitude_max": num(r.amplitude_max)}
+        for r in table.itertuples()
+    ]
 
 
 def _peaks_frame(peaks) -> pd.DataFrame:
@@ -540,6 +593,8 @@ def track_run(
     rf_map=True,
     progress=None,
     threads=1,
+    overall_band_hz=None,
+    aa_filter=None,
 ) -> RunAnalysis:
     """Track one channel of a run in the angle domain and analyse it.
 
@@ -564,6 +619,7 @@ def track_run(
         missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table,
         speed_tolerance=speed_tolerance, speed_order=speed_order, speed_range=speed_range,
         speed_channel=speed_channel, speed_scale=speed_scale,
+        overall_band_hz=overall_band_hz, aa_filter=aa_filter,
     ).channels[0]
 
 
@@ -583,6 +639,8 @@ def track_channels(
     rf_map=True,
     progress=None,
     threads=None,
+    overall_band_hz=None,
+    aa_filter=None,
     **speed_options,
 ) -> MultiRunAnalysis:
     """Track one or many channels of a run in the angle domain against one speed, and analyse
@@ -631,6 +689,11 @@ def track_channels(
     **speed_options
         Keyword options of :func:`run_speed` (:data:`SPEED_OPTIONS`: ``tacho``,
         ``pulses_per_rev``, ``missing_pulses``, ``rpm``, ``speed_table``, ...).
+    overall_band_hz : (float, float), optional
+        Band of the overall level, Hz (default: the whole band, DC removed).
+    aa_filter : AntiAliasFilter, optional
+        The acquisition's anti-alias filter (a plan's ``filter``): its usable edge bounds the
+        valid region of the results (default: Nyquist of the run's rate).
 
     Returns
     -------
@@ -751,13 +814,15 @@ def track_channels(
             run, vib, run.channels[row].unit, angle, speed_source, spr, rpb, spectrum, omap, log,
             mach=mach, lines=lines, doubted=doubted, envelope_hz=envelope_hz, cut_orders=cut_orders,
             cut_bandwidth_orders=cut_bandwidth_orders, rf_map=rf_map, chunk=chunk, protect=protect,
-            source=source, estimate=estimate))
+            source=source, estimate=estimate, overall_band_hz=overall_band_hz,
+            aa_filter=aa_filter))
     return MultiRunAnalysis(tuple(out), threads=threads)
 
 
 def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, omap, log, *, mach,
                      lines, doubted, envelope_hz, cut_orders, cut_bandwidth_orders, rf_map, chunk,
-                     protect, source, estimate=None) -> RunAnalysis:
+                     protect, source, estimate=None, overall_band_hz=None,
+                     aa_filter=None) -> RunAnalysis:
     """Peaks, cuts, envelope, rpm-frequency map and identification of one tracked channel."""
     peaks = _peaks_frame(find_order_peaks(spectrum, n=10))
     orders = tuple(cut_orders) if cut_orders else tuple(
@@ -781,10 +846,18 @@ def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, om
             bins = _map_bins(angle, 2.0 * run.n_samples / nperseg)
             rfm = rpm_frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
                                     rpm_bins=bins)
+    overall = _overall(run, vib, chunk, angle, omap, rpb, overall_band_hz)
     ident = None
     if mach is not None:
-        ident = identify_order_map(omap, mach, run.rate_hz)
+        ident = identify_order_map(omap, mach, run.rate_hz, samples_per_rev=spr)
         log.append(f"identified {len(ident.table)} predicted lines, {len(ident.aliases)} of them aliases")
+        unmatched = ident.unmatched
+    else:
+        unmatched = unmatched_ridges(omap, samples_per_rev=spr)
+    from workbench.angle.validity import valid_region
+
+    valid = valid_region(run.rate_hz, aa_filter)
+    shared = _cut_band_lines(cuts, mach, run.rate_hz, log)
     return RunAnalysis(
         source=str(source),
         rate_hz=float(run.rate_hz),
@@ -809,4 +882,66 @@ def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, om
         protect=bool(protect),
         log=tuple(log),
         speed_estimate=estimate,
+        unmatched=unmatched,
+        overall=overall,
+        valid=valid,
+        cut_band_lines=shared,
     )
+
+
+def _cut_band_lines(cuts, mach, rate_hz, log) -> tuple:
+    """Predicted lines inside each cut's band; each one warned about once."""
+    if mach is None or not cuts:
+        return ()
+    from workbench.angle.validity import lines_in_cut_band
+
+    lines = mach.lines()
+    found = []
+    for cut in cuts:
+        # a line within 1/16 of the band of the centre is the cut's own (cut orders are rounded)
+        here = [{"cut_order": float(cut.order), **d}
+                for d in lines_in_cut_band(lines, rate_hz, cut.order, cut.bandwidth_orders, cut.rpm,
+                                           own_tolerance=cut.bandwidth_orders / 16.0)]
+        found.extend(here)
+        brief = sum(1 for d in here if d["rpm_max"] <= d["rpm_min"])  # crossing within one row
+        here = [d for d in here if d["rpm_max"] > d["rpm_min"]]
+        if not here:
+            continue
+        here.sort(key=lambda d: d["rpm_min"] - d["rpm_max"])  # longest stay in the band first
+
+        def one(d):
+            where = f"order {d['order']:g}" if d["order"] is not None else "fixed line"
+            where += f", folded (zone {d['zone']})" if d["zone"] else ""
+            return f"'{d['line']}' ({where}) at {d['rpm_min']:.0f}-{d['rpm_max']:.0f} rpm"
+
+        more = len(here) - 3
+        msg = (f"order cut {cut.order:g} (band +-{cut.bandwidth_orders / 2:g}): "
+               f"{len(here)} other predicted line{'s lie' if len(here) > 1 else ' lies'} inside the band: "
+               + "; ".join(one(d) for d in here[:3]) + (f"; and {more} more" if more > 0 else "")
+               + (f" (and {brief} folded line{'s' if brief > 1 else ''} crossing it within one speed row)"
+                  if brief else "")
+               + "; the cut sums them there (narrow it with --cut-bandwidth, or separate the lines "
+               "with foldline extract)")
+        warnings.warn(msg, FoldlineWarning, stacklevel=3)
+        log.append(f"warning: {msg}")
+    return tuple(found)
+
+
+def _overall(run, vib, chunk, angle, omap, rpb, band_hz):
+    """Overall RMS in the order map's rpm rows; blocks short enough that each row gets one."""
+    from workbench.angle.overall import default_block_samples, overall_level
+
+    if band_hz is not None:
+        lo, hi = (float(v) for v in band_hz)
+        if not 0 <= lo < hi <= run.rate_hz / 2:
+            raise InputError(f"--overall-band {lo:g},{hi:g}: the band must satisfy 0 <= LO < HI <= "
+                             f"Nyquist ({run.rate_hz / 2:g} Hz)")
+        band_hz = (lo, hi)
+    # rows of the map are half a block (rpb / 2 revolutions) apart; at the top speed that is
+    row_s = 0.5 * rpb * 60.0 / max(float(angle.rpm_max), 1e-9)
+    n = 1 << max(8, int(math.floor(math.log2(max(run.rate_hz * row_s, 256.0)))))
+    n = min(n, default_block_samples(run.rate_hz))
+    if run.n_samples < n:
+        return None
+    return overall_level(run.iter_chunks(vib, chunk), run.rate_hz, angle, rpm_rows=omap.rpm,
+                         band_hz=band_hz, block_samples=n)

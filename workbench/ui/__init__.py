@@ -19,3 +19,10 @@ from workbench.ui.foldmap_panel import FoldMapPanel
 from workbench.ui.source_editor import SourceEditorPanel
 
 __all__ = ["FoldMapPanel", "SourceEditorPanel", "AngleDomainPanel", "CriticalsPanel"]
+
+from workbench.ui.map_explorer import MapExplorer  # noqa: E402  (zoom, cursor read-out, markers)
+
+__all__ += ["MapExplorer"]
+from workbench.ui.compare_panel import ComparePanel  # noqa: E402  (run against run)
+
+__all__ += ["ComparePanel"]

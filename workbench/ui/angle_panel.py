@@ -32,10 +32,11 @@ import pandas as pd
 
 from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_order_peaks, order_cut,
                              order_map, order_spectrum, tacho_angle)
-from workbench.angle.matching import identify_order_map
+from workbench.angle.matching import identify_order_map, unmatched_ridges
 from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
 from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_map, plot_order_spectrum,
                              plot_tacho_check, save_figure, speed_check_options)
+from workbench.plots.angle import OVERLAYS
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
@@ -147,6 +148,7 @@ class AngleDomainPanel:
         self.refresh()
         for control in self._controls:
             control.observe(self._on_change, names="value")
+        self.overlay.observe(lambda change: self._draw_shown(), names="value")
         self.tabs.observe(lambda change: self._draw_shown(), names="selected_index")
         self.export_tables.on_click(lambda _b: self.export("tables"))
         self.export_figures.on_click(lambda _b: self.export("figures"))
@@ -170,6 +172,10 @@ class AngleDomainPanel:
                                        layout=wide)
         self.protect = widgets.Checkbox(value=True, description="alias protection (tracking low-pass)",
                                         indent=False, layout=wide)
+        self.overlay = widgets.ToggleButtons(options=OVERLAYS, value="none", description="predicted lines",
+                                             style={"description_width": "100px", "button_width": "70px"},
+                                             tooltips=("the measurement alone", "lines matched to measured ridges",
+                                                       "every predicted line"))
         self.cut_orders = widgets.Text(value=", ".join(f"{o:.4g}" for o in self.default_cut_orders(spr)),
                                        description="orders to cut", style=style, layout=wide,
                                        continuous_update=False)
@@ -209,9 +215,9 @@ class AngleDomainPanel:
         self.tabs.selected_index = 1
         controls = widgets.VBox([
             self.channel, self.channels, self.samples_per_rev, self.revs_per_block, self.window,
-            self.protect, self.cut_orders, self.speed_source, self.speed_order, self.speed_range,
-            self.speed_channel, self.speed_scale, self.progress, widgets.HTML("<hr>"), self.folder,
-            self.overwrite,
+            self.protect, self.overlay, self.cut_orders, self.speed_source, self.speed_order,
+            self.speed_range, self.speed_channel, self.speed_scale, self.progress,
+            widgets.HTML("<hr>"), self.folder, self.overwrite,
             widgets.HBox([self.export_tables, self.export_figures]), self.status,
         ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
         self.header = widgets.HTML()
@@ -331,7 +337,7 @@ class AngleDomainPanel:
             peaks = find_order_peaks(spec, n=10)
             ident = None
             if self.lines:
-                ident = identify_order_map(omap, self.lines, self.run.rate_hz)
+                ident = identify_order_map(omap, self.lines, self.run.rate_hz, samples_per_rev=key[1])
             return omap, spec, peaks, ident
 
         return self._analyses.get(key, make)
@@ -393,9 +399,37 @@ class AngleDomainPanel:
                 return ch.unit
         return ""
 
+    def valid_region(self):
+        """What the run measures faithfully: the plan's filter's usable edge, or Nyquist."""
+        from workbench.angle.validity import valid_region
+
+        return valid_region(self.run.rate_hz, None if self.plan is None else self.plan.filter)
+
+    def unmatched(self):
+        """Measured lines no predicted line explains (every measured line without a machine)."""
+        omap, _spec, _peaks, ident = self.analysis()
+        if ident is not None and ident.unmatched is not None:
+            return ident.unmatched
+        return self._cuts.get(self._analysis_key() + ("unmatched",),
+                              lambda: unmatched_ridges(omap, samples_per_rev=int(self.samples_per_rev.value)))
+
+    def _unmatched_html(self):
+        table = self.unmatched()
+        what = "match no predicted line" if self.lines else "were measured (no machine: nothing predicted)"
+        return (f"<b>Measured lines that {what}</b>: {len(table)} (tags as on the order map)" + html_table(
+            table.to_dict("records"),
+            (("id", "tag"), ("family", "family"), ("moves_with_speed", "moves with speed"), ("order", "order"),
+             ("hz", "Hz"), ("rpm_min", "from (rpm)"), ("rpm_max", "to (rpm)"), ("points", "points"),
+             ("amplitude_max", "max amplitude")),
+            css_class="foldline-unmatched",
+            formats={"order": ".3f", "hz": ".1f", "rpm_min": ".0f", "rpm_max": ".0f", "points": "d",
+                     "amplitude_max": ".3g"},
+            empty="Every measured line is explained by a predicted line."))
+
     def _identified_html(self, ident):
         if ident is None:
-            return '<div class="foldline-note">No machine: nothing predicted to identify.</div>'
+            return ('<div class="foldline-note">No machine: nothing predicted to identify.</div>'
+                    + self._unmatched_html())
         table = ident.table
         n_alias = int(table["alias"].sum()) if len(table) else 0
         head = (f"<b>Lines identified in the order map</b>: {len(table)} predicted lines found, "
@@ -409,7 +443,7 @@ class AngleDomainPanel:
             css_class="foldline-identified", changed=list(table["alias"]) if len(table) else None,
             formats={"zone": "d", "points": "d", "rpm_min": ".0f", "rpm_max": ".0f", "order_min": ".2f",
                      "order_max": ".2f", "amplitude_max": ".3g"},
-            empty="No predicted line matched the order map's ridges.")
+            empty="No predicted line matched the order map's ridges.") + self._unmatched_html()
 
     # -- figures --------------------------------------------------------------------------
     def figure(self, which: str):
@@ -428,16 +462,19 @@ class AngleDomainPanel:
                                     doubted_reasons=angle.doubted.reason, title=title, **band)
         omap, spec, peaks, ident = self.analysis()
         top = self.usable_max_order
+        valid = self.valid_region()
         if which == "map":
             return plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
-                                  max_order=top, unit=unit,
-                                  title=f"Order map, predicted lines at {self.run.rate_hz:g} Hz overlaid "
-                                        "(dashed: folded)")
+                                  max_order=top, unit=unit, overlay=self.overlay.value,
+                                  unmatched=self.unmatched(), valid=valid,
+                                  title=f"Order map at {self.run.rate_hz:g} S/s")
         if which == "cuts":
-            return plot_order_cuts(self.cuts(), unit=unit)
+            return plot_order_cuts(self.cuts(), unit=unit, valid=valid)
         if which == "spectrum":
             table = pd.DataFrame({"order": peaks.order, "amplitude": peaks.amplitude})
-            return plot_order_spectrum(spec, peaks=table, lines=self.lines or None, unit=unit, max_order=top)
+            return plot_order_spectrum(spec, peaks=table, lines=self.lines or None, unit=unit, max_order=top,
+                                       overlay=self.overlay.value, identification=ident, valid=valid,
+                                       rpm_range=(float(np.nanmin(omap.rpm)), float(np.nanmax(omap.rpm))))
         raise InputError(f"figure {which!r}: choose one of {', '.join(self.FIGURES)}")
 
     def _figure_key(self, which):
@@ -446,7 +483,7 @@ class AngleDomainPanel:
             return self._speed_key()
         if which == "cuts":
             return self._analysis_key() + (self.cut_orders.value,)
-        return self._analysis_key()
+        return self._analysis_key() + (self.overlay.value,)
 
     def _draw(self, which):
         fig = self.figure(which)
@@ -482,6 +519,7 @@ class AngleDomainPanel:
         }
         if ident is not None:
             out["identified_lines"] = ident.table
+        out["unmatched_lines"] = self.unmatched()
         return out
 
     _FIGURE_FILES = {"tacho": "tacho_check.png", "map": "order_map.png", "cuts": "order_cuts.png",

@@ -52,6 +52,10 @@ def _owners(ax, fmap, view):
         owners[artist] = frozenset(names[i] for i in rows[same])
     by_length = sorted(names, key=len, reverse=True)
     for text in ax.texts:
+        gid = text.get_gid() or ""
+        if gid.startswith("line:"):  # a numbered collision label names its line in its gid
+            owners[text] = frozenset([gid[5:]])
+            continue
         label = text.get_text()
         owner = next((n for n in by_length if label.startswith(n + " in ")), None)
         owners[text] = frozenset() if owner is None else frozenset([owner])
@@ -135,16 +139,19 @@ class FoldScene:
         self.fig = agg_figure()
         self.fig.subplots_adjust(left=0.075, right=0.985, bottom=0.115, top=0.95)
         self.ax = self.fig.add_subplot()
-        draw_fold_map(self.ax, fmap, plan, collisions=collisions, view=view, bands=bands, lines=lines)
+        # bands underneath: the picture redraws the lines over a fixed background
+        draw_fold_map(self.ax, fmap, plan, collisions=collisions, view=view, bands=bands, lines=lines,
+                      bands_above=False)
         # The legend goes to HTML beside the picture: drawing its text costs more than the lines.
         legend = self.ax.get_legend()
-        shown = [ln.kind for ln in fmap.lines if lines is None or ln.name in lines]
-        self.legend_html = legend_html(legend, shown)
+        # lines are coloured by source, and the legend names each source with its colour
+        self.legend_html = legend_html(legend)
         if legend is not None:
             legend.remove()
-        if not labels:
+        if not labels:  # band names stay: they say which band is which
             for text in list(self.ax.texts):
-                text.remove()
+                if text.get_gid() != "band-name":
+                    text.remove()
         if title:
             self.ax.set_title(title, fontsize=9)
         self._owners = _owners(self.ax, fmap, view)
