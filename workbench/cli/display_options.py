@@ -12,7 +12,7 @@ __all__ = ["add_display_options", "display_options_from_args", "analysis_options
 
 def add_display_options(p) -> None:
     """``--overlay`` (and the other display options) on a verb's parser."""
-    from workbench.plots.angle import OVERLAYS
+    from workbench.choices import OVERLAYS
 
     g = p.add_argument_group("display")
     g.add_argument("--overlay", choices=OVERLAYS, default="none",

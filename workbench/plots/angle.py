@@ -222,7 +222,7 @@ def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=
 
 #: What a map draws over the measurement: nothing (default), the predicted lines the
 #: identification matched to measured ridges, or every predicted line.
-OVERLAYS = ("none", "matched", "all")
+from workbench.choices import OVERLAYS  # noqa: E402  (one home for the choice)
 
 #: Overlay lines are thin and translucent so the measured ridges stay readable beneath them.
 OVERLAY_LW = 0.6
