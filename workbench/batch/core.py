@@ -258,7 +258,7 @@ def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> 
         row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
                     "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
         if plan is not None:
-            from workbench.batch.levels import band_levels
+            from workbench.runs.levels import band_levels
 
             for name, level in band_levels(analysis.order_map, plan.bands, lines).items():
                 row[LEVEL_PREFIX + name] = level

@@ -191,17 +191,56 @@ def cmd_track(args) -> int:
     out = Path(args.out) if args.out else None
     if out is not None:
         _check_out_folder(out, force=args.force)
+    plan = _read_limits_plan(getattr(args, "plan", None))
     analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
                          max_order=args.max_order, **opts)
     files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
     result = analysis.to_dict()
+    limits = _judge_limits(analysis, plan)
+    if limits is not None:
+        result["limits"] = [r.to_dict() for r in limits]
     if files:
         result["files"] = [str(f) for f in files]
     if args.json:
         emit_json(result)
         return 0
     _print_track(analysis, files)
+    _print_limits(limits)
     return 0
+
+
+def _read_limits_plan(path):
+    """The plan whose ``[[limit]]`` entries ``--plan`` asks to judge (None without it)."""
+    if path is None:
+        return None
+    from workbench.sampling import read_plan
+
+    return read_plan(path)
+
+
+def _judge_limits(analysis, plan):
+    """The plan's limits judged on the tracked run (None without a plan)."""
+    if plan is None:
+        return None
+    from workbench.runs.limits import evaluate_limits
+
+    if analysis.lines:
+        plan.check_against(analysis.lines)
+    return evaluate_limits(analysis, plan.limits, bands=plan.bands)
+
+
+def _print_limits(limits) -> None:
+    if limits is None:
+        return
+    from workbench.runs.limits import LIMITS_NOTE, limits_verdict
+
+    if not limits:
+        print("\nthe plan has no [[limit]] entries: nothing to judge")
+        return
+    print(f"\nacceptance limits: {limits_verdict(limits)}")
+    for r in limits:
+        print(f"  {r.describe()}")
+    print(LIMITS_NOTE)
 
 
 TRACK_FILES = (
@@ -333,6 +372,7 @@ def add_verbs(verb) -> None:
     add_track_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
     p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
+    p.add_argument("--plan", metavar="PLAN", help="plan file whose acceptance limits ([[limit]]) are judged on the run")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
     p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder")
     p.add_argument("--force", action="store_true", help="replace existing outputs in the folder")

@@ -7,7 +7,8 @@ machine layer's line objects, by duck typing).
 from workbench.sampling.filters import (ANALOG_KINDS, FILTER_KINDS, MAX_ANALOG_ORDER,
                                         TABLE_UNITS, AntiAliasFilter)
 from workbench.sampling.folding import apparent_frequency, apparent_order, fold, nyquist_zone
-from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, Band, Plan, plan_from_dict,
+from workbench.sampling.plan import (DEFAULT_THRESHOLD_DB, LIMIT_AMPLITUDES, Band, Limit, Plan,
+                                     plan_from_dict,
                                      plan_to_dict, read_plan, write_plan)
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
 from workbench.sampling.foldmap import COLLISION_COLUMNS, FoldMap, find_collisions, fold_map
@@ -29,6 +30,8 @@ __all__ = [
     "read_speed_table",
     "DEFAULT_THRESHOLD_DB",
     "Band",
+    "Limit",
+    "LIMIT_AMPLITUDES",
     "Plan",
     "read_plan",
     "plan_from_dict",
