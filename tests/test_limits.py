@@ -165,3 +165,114 @@ def test_track_and_report_commands_evaluate_the_plans_limits(tmp_path, capsys):
     assert limits["order 5 tight"]["pass"] is False
     assert limits["order 5 tight"]["rpm_at_worst"] == pytest.approx(PEAK_RPM, abs=25.0)
     assert limits["order 5 loose"]["pass"] is True
+
+
+# --------------------------------------------------------------------------------------------
+# the report and the batch summary carry the verdict, the metadata and the sign-off block
+
+
+MACHINE_TOML = ('[machine]\nname = "limit rig"\nreference = "in"\n[[shaft]]\nname = "in"\n'
+                '[[order]]\nname = "five"\nshaft = "in"\norder = 5.0\n')
+META = {"unit_under_test": "test gearbox TG-1", "serial_number": "TG1-0042", "test_id": "FAT-17",
+        "operator": "R. Okafor", "date": "2026-11-30"}
+SENSOR = {"position": "input DE bearing housing", "direction": "radial vertical",
+          "sensor_type": "accelerometer 100 mV/g"}
+
+
+def _files(folder):
+    from dataclasses import replace
+
+    from workbench.runs import SensorInfo, TestMetadata, read_sidecar, write_sidecar
+
+    run_path = write_run(_run(), folder / "run.wav")
+    side = run_path.with_suffix(".json")
+    meta = TestMetadata(**META, sensors=(SensorInfo("vibration", **SENSOR),))
+    write_sidecar(replace(read_sidecar(side), metadata=meta, source=None), side, force=True)
+    (folder / "m.toml").write_text(MACHINE_TOML)
+    plan_path = write_plan(plan_from_dict(PLAN), folder / "plan.toml")
+    return folder / "m.toml", plan_path, run_path
+
+
+def test_report_opens_with_verdict_and_metadata_and_ends_with_sign_off(tmp_path, capsys):
+    import html as html_lib
+    import re
+
+    from workbench.cli.main import main
+
+    machine, plan, run = _files(tmp_path)
+    out = tmp_path / "report.html"
+    code = main(["report", str(machine), str(plan), str(run), "--out", str(out),
+                 "--samples-per-rev", "64", "--revs-per-block", "8",
+                 "--meta", "operator=K. Lindqvist", "--meta", "vibration.direction=axial",
+                 "--json"])
+    got = json.loads(capsys.readouterr().out)
+    assert code == 0
+    assert got["verdict"] == "fail"
+    assert got["sections"][:2] == ["summary", "limits"] and got["sections"][-1] == "signoff"
+    limits = {d["name"]: d for d in got["limits"]}
+    assert limits["order 5 tight"]["pass"] is False and limits["order 5 loose"]["pass"] is True
+    assert limits["order 5 tight"]["rpm_at_worst"] == pytest.approx(PEAK_RPM, abs=25.0)
+    # Metadata: the sidecar's, with --meta overriding the operator and the sensor direction.
+    assert got["metadata"]["operator"] == "K. Lindqvist"
+    assert got["metadata"]["serial_number"] == "TG1-0042"
+    assert got["metadata"]["sensors"][0]["direction"] == "axial"
+    assert got["metadata"]["sensors"][0]["position"] == SENSOR["position"]
+    text = out.read_text(encoding="utf-8")
+    header = text[text.index("<header>"):text.index("</header>")]
+    plain = html_lib.unescape(re.sub(r"<[^>]+>", " ", header))
+    for value in ("test gearbox TG-1", "TG1-0042", "FAT-17", "K. Lindqvist", "2026-11-30",
+                  SENSOR["position"], "axial", SENSOR["sensor_type"]):
+        assert value in plain, value
+    # The verdict names the failed limits and where; beside it, who sets the limits.
+    assert "Verdict: FAILED: 2 of 6" in plain and "order 5 tight reached" in plain
+    assert LIMITS_NOTE in plain
+    # The limits are drawn (a figure in the limits section) and the page ends with sign-off.
+    limits_html = text[text.index('<section id="limits">'):text.index('<section id="machine">')]
+    assert 'data-figure="limits"' in limits_html
+    signoff = text[text.index('<section id="signoff">'):]
+    for role in ("prepared by", "checked by"):
+        assert role in signoff
+    assert signoff.count('class="blank"') >= 6
+    assert text.index('id="verdict"') < text.index('<section id="summary">')
+
+
+def test_report_meta_option_errors_are_one_line_and_name_the_key(tmp_path, capsys):
+    from workbench.cli.main import main
+
+    machine, plan, run = _files(tmp_path)
+    for meta, words in (("operater=x", "unknown key (did you mean 'operator'?)"),
+                        ("noequals", "give KEY=VALUE"),
+                        ("date=30/11/2026", "is not a date"),
+                        ("shaker.position=DE", "no channel named 'shaker'")):
+        code = main(["report", str(machine), str(plan), str(run), "--out", str(tmp_path / "r.html"),
+                     "--meta", meta])
+        err = capsys.readouterr().err
+        assert code == 2 and words in err, err
+        assert err.count("\n") == 1 and err.startswith("foldline: error: ")
+
+
+def test_batch_summary_has_metadata_and_a_pass_column_per_limit(tmp_path):
+    from workbench.batch import PASS_PREFIX, WORST_PREFIX, BatchSettings, read_summary, run_batch
+
+    machine, plan, run = _files(tmp_path)
+    settings = BatchSettings.make(track={"samples_per_rev": 64, "revs_per_block": 8},
+                                  machine_path=str(machine), plan_path=str(plan), cut_orders=(5.0,))
+    run_batch([run], tmp_path / "batch", settings=settings, workers=0)
+    for table in (read_summary(tmp_path / "batch"),
+                  read_summary_csv(tmp_path / "batch" / "summary.csv")):
+        row = table.iloc[0]
+        assert row["status"] == "ok", row["error"]
+        for key, value in META.items():
+            assert row[key] == value
+        assert row["sensor_position"] == SENSOR["position"]
+        assert row["sensor_type"] == SENSOR["sensor_type"]
+        assert bool(row[PASS_PREFIX + "order 5 tight"]) is False
+        assert bool(row[PASS_PREFIX + "order 5 loose"]) is True
+        assert row[PASS_PREFIX + "never reached"] is None or str(row[PASS_PREFIX + "never reached"]) in ("<NA>", "", "nan")
+        assert row[WORST_PREFIX + "order 5 tight"] == pytest.approx(1.0, rel=0.03)
+
+
+def read_summary_csv(path):
+    import pandas as pd
+
+    return pd.read_csv(path, keep_default_na=True).astype(object).where(lambda t: t.notna(), None)

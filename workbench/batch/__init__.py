@@ -10,11 +10,12 @@ Typical use::
     result.summary        # one row per run: levels per band, top orders, aliases, status
 """
 
-from workbench.batch.core import (BASE_COLUMNS, LEVEL_PREFIX, SUMMARY_NAME, TAIL_COLUMNS,
+from workbench.batch.core import (BASE_COLUMNS, LEVEL_PREFIX, META_COLUMNS, PASS_PREFIX,
+                                  SUMMARY_NAME, TAIL_COLUMNS, WORST_PREFIX,
                                   BatchResult, BatchSettings, process_run, read_summary,
                                   run_batch)
 from workbench.batch.levels import band_level_series, band_levels
 
 __all__ = ["BatchSettings", "BatchResult", "process_run", "run_batch", "read_summary",
            "band_levels", "band_level_series", "BASE_COLUMNS", "TAIL_COLUMNS", "LEVEL_PREFIX",
-           "SUMMARY_NAME"]
+           "SUMMARY_NAME", "PASS_PREFIX", "WORST_PREFIX", "META_COLUMNS"]
