@@ -252,8 +252,9 @@ def test_bad_values_show_an_error_and_keep_the_picture(panel):
 
 
 def test_adjusted_filter_values_are_reported(panel):
-    panel.cutoff.value = 0.6  # above Nyquist: the filter model warns
-    assert "lies above Nyquist" in panel.verdict.value
+    panel.cutoff.value = 0.6  # above Nyquist: refused, the panel says why (issue 15)
+    assert 'class="foldline-error"' in panel.verdict.value
+    assert "at or above Nyquist" in panel.verdict.value
 
 
 def test_panel_accepts_paths_and_exposes_its_widget(machine):
@@ -494,7 +495,7 @@ def test_panels_refuse_what_they_cannot_open(machine, plan):
     shafts_only = machine_from_dict({"machine": {"name": "bare", "reference": "input"},
                                      "shaft": [{"name": "input"}]})
     bare_plan = _plan_with(plan, acquisition={})
-    bare_plan = dataclasses.replace(bare_plan, bands=())
+    bare_plan = dataclasses.replace(bare_plan, bands=(), limits=())
     with pytest.raises(InputError, match="has no gear stage, planetary stage, bearing or rotor"):
         SourceEditorPanel(shafts_only, bare_plan)
 

@@ -132,7 +132,7 @@ class BatchSettings:
                                      "line; give --machine so that its frequency is known")
         n_top = int(n_top)
         if n_top < 1:
-            raise InputError(f"--top (n_top) = {n_top}: must be at least 1")
+            raise InputError(f"--top {n_top}: must be at least 1 (peaks listed per run)")
         return cls(
             track=tuple(sorted((str(k), _freeze(v)) for k, v in opts.items() if v is not None)),
             machine_path=None if machine_path is None else str(machine_path),

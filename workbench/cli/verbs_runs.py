@@ -137,6 +137,9 @@ def cmd_simulate(args) -> int:
     machine = read_machine(args.machine)
     plan = read_plan(args.plan)
     rate = _positive(args.rate, "--rate")
+    from workbench.sampling.guards import warn_implausible_rate
+
+    warn_implausible_rate(rate, lines=machine.lines(), top_rpm=plan.speed.rpm_max, name="--rate")
     out = Path(args.out)
     if out.suffix.lower() != ".wav":
         raise InputError(f"--out {args.out}: the simulated run is written as WAV; give a name ending in .wav")
@@ -194,6 +197,9 @@ def cmd_track(args) -> int:
     plan = _read_limits_plan(getattr(args, "plan", None))
     analysis = track_run(args.run, machine=args.machine, protect=not args.no_protect,
                          max_order=args.max_order, **opts)
+    from workbench.runs.tacho_checks import warn_tacho
+
+    warn_tacho(args.run, analysis, opts, plan=plan)
     files = write_track_outputs(analysis, out, force=args.force) if out is not None else []
     result = analysis.to_dict()
     limits = _judge_limits(analysis, plan)

@@ -41,7 +41,8 @@ def cmd_report(args) -> int:
     print(f"report written to {args.out} ({result['bytes'] / 1e6:.1f} MB, sha256 {report.sha256[:12]}...)")
     print(f"sections: {', '.join(report.sections)}")
     rec = report.recommended_rate_hz
-    print(f"recommended rate: {rec:g} Hz" if rec is not None else "no clean rate found")
+    print(f"recommended rate: {rec:g} Hz" if rec is not None else
+          "no rate recommended: none is both clean (no collision) and captures the highest order")
     if report.aliases is not None:
         print(f"aliases identified in the run: {', '.join(report.aliases) or 'none'}")
     if report.limits:

@@ -437,8 +437,9 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
             f'<span class="verdict good">Recommended rate: {rec:g} S/s</span> '
             f"({coll_count.get(float(rec), 0)} collisions).")
     else:
-        summary_items.append('<span class="verdict bad">No clean rate found</span> among the '
-                             "candidates or the standard rates.")
+        summary_items.append('<span class="verdict bad">No rate recommended</span>: no candidate '
+                             "or standard rate is both clean (no collision) and captures the "
+                             "highest order.")
     worst_rates = [r for r in shown_rates if coll_count.get(r, 0) > 0]
     for r in worst_rates:
         summary_items.append(
@@ -961,6 +962,9 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
             if progress:
                 progress(f"tracking {run_path}")
             analysis = track_run(run_path, machine=machine, **settings)
+            from workbench.runs.tacho_checks import warn_tacho
+
+            warn_tacho(run_path, analysis, settings, plan=plan)
     report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
                           progress=progress, metadata=metadata)
     with atomic_output(out, force=force) as tmp:

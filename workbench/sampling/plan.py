@@ -76,6 +76,7 @@ from pathlib import Path
 import numpy as np
 
 from workbench.errors import InputError, OutputExistsError, PlanFileError, where
+from workbench.machine.filekind import wrong_file_hint
 from workbench.sampling._checks import FieldError, is_number, real, real_vector, show
 from workbench.sampling._tables import read_numeric_csv
 from workbench.sampling.filters import ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter
@@ -807,11 +808,17 @@ def read_plan(path) -> Plan:
     except OSError as exc:
         raise PlanFileError(f"{name}: cannot read the plan file: {exc.strerror or exc}") from None
     except UnicodeDecodeError:
-        raise PlanFileError(f"{name}: not a text file in UTF-8; a plan file is TOML") from None
+        hint = wrong_file_hint(path, "plan")
+        raise PlanFileError(f"{name}: {hint}" if hint else
+                            f"{name}: not a text file in UTF-8; a plan file is TOML") from None
     try:
         d = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise PlanFileError(f"{name}: not valid TOML: {exc}") from None
+        hint = wrong_file_hint(path, "plan")
+        raise PlanFileError(f"{name}: {hint}" if hint else f"{name}: not valid TOML: {exc}") from None
+    hint = wrong_file_hint(path, "plan", tables=d.keys())
+    if hint:
+        raise PlanFileError(f"{name}: {hint}")
     return plan_from_dict(d, source=name, base_dir=path.parent)
 
 
@@ -964,8 +971,8 @@ def write_plan(plan: Plan, path, *, force: bool = False) -> Path:
     if not force:
         for target in files:
             if target.exists():
-                raise OutputExistsError(f"{target}: exists already; choose another name or "
-                                        "allow overwriting (force=True)")
+                raise OutputExistsError(f"{target}: exists already; pass --force to replace it, or "
+                                        "choose another name")
     for target, text in files.items():
         _write_atomic(target, text)
     return path

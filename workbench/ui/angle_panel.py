@@ -428,6 +428,7 @@ class AngleDomainPanel:
             if what == "tables":
                 items = [(folder / f"{name}.csv", table) for name, table in self.tables().items()]
             elif what == "figures":
+                self.cuts()  # a bad entry stops the export before any file is written
                 items = [(folder / self._FIGURE_FILES[w], w) for w in self.FIGURES]
             else:
                 raise InputError(f"export {what!r}: choose 'tables' or 'figures'")
@@ -446,7 +447,8 @@ class AngleDomainPanel:
                     else:
                         written.append(save_figure(self.figure(item), path, force=force))
         except (FoldlineError, OSError) as exc:
-            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.status.value = (STYLE + self._not_exported_html(what, written) + error_html(exc)
+                                 + self._written_html(written))
             self.error = exc
             return written
         self.error = None
@@ -598,12 +600,19 @@ class AngleDomainPanel:
                 written.append(write_order_waveform(ex, o, folder, force=force))
                 written.append(write_order_envelope(ex, o, folder, force=force))
         except (FoldlineError, OSError) as exc:
-            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.status.value = STYLE + self._not_exported_html("waveforms", written) + error_html(
+                exc) + self._written_html(written)
             self.error = exc
             return written
         self.error = None
         self.status.value = STYLE + self._written_html(written)
         return written
+
+    @staticmethod
+    def _not_exported_html(what, written) -> str:
+        done = f"{len(written)} file(s) written before it stopped" if written else "nothing written"
+        return (f'<div class="foldline-error"><b>{html.escape(what)} not exported ({done})</b>'
+                "</div>")
 
     # -- display --------------------------------------------------------------------------
     def show(self):

@@ -405,10 +405,15 @@ class FoldMapPanel:
         edge = plan.filter.usable_edge_hz(rate)
         captures = edge >= top_hz
         items = []
-        if len(coll) == 0 and captures:
-            head = f'<span class="foldline-ok">{fmt_rate(rate)} is clean</span>'
+        # "clean" means no collision, as in the command, the advisor and the report; whether
+        # the rate captures the highest order is said apart.
+        if len(coll) == 0:
+            head = f'<span class="foldline-ok">{fmt_rate(rate)} is clean (no collision)</span>'
         else:
-            head = f'<span class="foldline-bad">{fmt_rate(rate)} is not clean</span>'
+            head = (f'<span class="foldline-bad">{fmt_rate(rate)} is not clean: {len(coll)} '
+                    "collision(s)</span>")
+        head += ("; " + ('<span class="foldline-ok">captures the highest order</span>' if captures
+                         else '<span class="foldline-bad">does not capture the highest order</span>'))
         if len(coll):
             first = coll.iloc[0]
             items.append(f"{len(coll)} collision(s); worst: {html.escape(first['line'])} folds into "
@@ -421,7 +426,12 @@ class FoldMapPanel:
                      + f" the filter's usable band ({edge:.0f} Hz)")
         rec = advice.recommended_rate_hz
         rec_text = (f"<b>recommended rate: {fmt_rate(rec)}</b>" if rec is not None
-                    else '<b class="foldline-bad">no clean rate found</b>')
+                    else '<b class="foldline-bad">no rate is both clean and captures the highest '
+                         "order</b>")
+        if plan.filter.kind == "none":
+            from workbench.sampling.guards import NO_FILTER_NOTE
+
+            items.append(html.escape(NO_FILTER_NOTE))
         notes = "".join(f"<li>{html.escape(n)}</li>" for n in advice.notes)
         warn = "".join(f"<li>{html.escape(m)}</li>" for m in messages)
         return (STYLE + '<div class="foldline-verdict">' + head + "<ul>"
