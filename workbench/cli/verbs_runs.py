@@ -362,7 +362,7 @@ def add_verbs(verb) -> None:
     p.add_argument("--seed", type=int, default=0, help="random seed (same seed, same bytes)")
     p.add_argument("--duration", type=float, metavar="S", help="seconds to simulate (default: the profile's duration)")
     p.add_argument("--noise-db", type=float, default=-60.0, metavar="DB", help="broadband noise, dB re 1 unit RMS")
-    p.add_argument("--resonance-hz", type=float, metavar="HZ", help="structural resonance, Hz (default 0.3 x rate)")
+    p.add_argument("--resonance-hz", type=float, metavar="HZ", help="structural resonance, Hz (default 700, the same at every rate)")
     p.add_argument("--pulses-per-rev", type=int, default=1, metavar="N", help="tacho tooth positions per rev")
     p.add_argument("--missing-pulses", type=int, default=0, metavar="M", help="missing teeth of the tacho wheel")
     p.add_argument("--tacho-rise-ms", type=float, metavar="MS",
