@@ -88,8 +88,11 @@ def cmd_demo(args) -> int:
         "collisions": {f"{r:g}": _collision_records(t[t["kind"] == "collision"]) for r, t in tables.items()},
         "files": figures,
     }
+    limits = _judge_limits(analysis, plan) if analysis is not None else None
     if analysis is not None:
         result["run"] = {"file": str(run_path), **{k: v for k, v in analysis.to_dict().items() if k != "order_spectrum"}}
+        if limits is not None:
+            result["run"]["limits"] = [r.to_dict() for r in limits]
     if args.json:
         emit_json(result)
         return 0
@@ -101,6 +104,7 @@ def cmd_demo(args) -> int:
     if analysis is not None:
         print(f"\n=== recorded run {run_path.name} (made at {analysis.rate_hz:g} S/s) ===")
         _print_track(analysis, [])
+        _print_limits(limits)
     print(f"\noutputs written to {out.resolve()}:")
     for f in figures:
         print(f"  {f}")
