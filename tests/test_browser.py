@@ -90,6 +90,12 @@ def _stop(proc) -> None:
 @pytest.fixture()
 def lab(tmp_path):
     """A JupyterLab server on a copy of the notebooks folder; yields its base URL."""
+    yield from start_lab(tmp_path, NOTEBOOK)
+
+
+def start_lab(tmp_path, notebook, *, with_runs=False):
+    """Start JupyterLab on a copy of ``notebook`` and the demo files (the recorded run too with
+    ``with_runs``); yield its base URL, stop it afterwards."""
     if not CHROMIUM.exists():
         _unavailable(f"no Chromium at {CHROMIUM} (install the system package: apt-get install -y chromium)")
     try:
@@ -98,9 +104,9 @@ def lab(tmp_path):
         _unavailable("the playwright package is not installed (pip install -e '.[test]')")
     root = tmp_path / "root"
     (root / "notebooks").mkdir(parents=True)
-    shutil.copy(ROOT / "notebooks" / NOTEBOOK, root / "notebooks" / NOTEBOOK)
+    shutil.copy(ROOT / "notebooks" / notebook, root / "notebooks" / notebook)
     shutil.copytree(ROOT / "sample_runs", root / "sample_runs",
-                    ignore=shutil.ignore_patterns("*.wav", "*.json"))
+                    ignore=None if with_runs else shutil.ignore_patterns("*.wav", "*.json"))
     settings = tmp_path / "lab-settings"
     notification = settings / "@jupyterlab" / "apputils-extension" / "notification.jupyterlab-settings"
     notification.parent.mkdir(parents=True)

@@ -11,7 +11,9 @@ Steps and what each control redoes (the rest is kept):
 5. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
    filter order): envelopes against rpm, a player for one order's waveform, WAV export.
 
-Only the figure of the tab on show is drawn, and only when what it shows changed; the others
+The controls sit in a strip of three steps, left to right as the analyst works (speed,
+angle domain, results and export), each a card with its controls inline; the status line and
+the results follow at full width.  Only the figure of the tab on show is drawn, and only when what it shows changed; the others
 are drawn when their tab is opened.
 Tables (CSV) and figures (PNG) are written to a chosen folder by two buttons.
 """
@@ -45,6 +47,17 @@ WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "
            ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
 _CHUNK = 65536
 _DPI = 80
+
+
+def _step(title, children):
+    """One step of the panel's strip: a titled card holding its controls."""
+    head = widgets.HTML(f'<div class="foldline-step-title" style="font-weight: 600; '
+                        f'color: #2b5d8a; margin: 2px 0 4px">{title}</div>')
+    card = widgets.VBox([head, *children], layout=widgets.Layout(
+        flex="1 1 300px", min_width="300px", margin="0 8px 8px 0", padding="4px 8px",
+        border="1px solid #c8d0d8"))
+    card.add_class("foldline-step")
+    return card
 
 
 class AngleDomainPanel:
@@ -140,7 +153,9 @@ class AngleDomainPanel:
     # -- controls -------------------------------------------------------------------------
     def _build(self, channel, spr, rpb):
         run = self.run
-        style, wide = {"description_width": "150px"}, widgets.Layout(width="330px")
+        # Controls fill their step's card; descriptions get a fixed column that holds the
+        # longest one ("block length (revs)") without clipping.
+        style, wide = {"description_width": "140px"}, widgets.Layout(width="98%")
         names = [n for n in run.channel_names if n != run.tacho] or list(run.channel_names)
         self.channel = widgets.Dropdown(options=names, value=channel or names[0], description="vibration channel",
                                         style=style, layout=wide)
@@ -156,11 +171,15 @@ class AngleDomainPanel:
         self.cut_orders = widgets.Text(value=", ".join(f"{o:.4g}" for o in self.default_cut_orders(spr)),
                                        description="orders to cut", style=style, layout=wide,
                                        continuous_update=False)
+        self.cut_orders.add_class("foldline-cut-orders")
         self.folder = widgets.Text(value="foldline_export", description="export folder", style=style,
                                    layout=wide)
         self.overwrite = widgets.Checkbox(value=False, description="overwrite files", indent=False)
-        self.export_tables = widgets.Button(description="export tables (CSV)", icon="table")
-        self.export_figures = widgets.Button(description="export figures (PNG)", icon="image")
+        button = widgets.Layout(width="auto", min_width="190px")
+        self.export_tables = widgets.Button(description="export tables (CSV)", icon="table",
+                                            layout=button)
+        self.export_figures = widgets.Button(description="export figures (PNG)", icon="image",
+                                             layout=button)
         self.progress = widgets.IntProgress(value=0, min=0, max=max(1, run.n_samples), description="tracking",
                                             style=style, layout=wide)
         self.status = widgets.HTML()
@@ -182,13 +201,20 @@ class AngleDomainPanel:
         for i, title in enumerate(("tacho check", "order map", "order cuts", "order spectrum")):
             self.tabs.set_title(i, title)
         self.tabs.selected_index = 1
-        controls = widgets.VBox([
-            self.channel, self.samples_per_rev, self.revs_per_block, self.window, self.protect,
-            self.cut_orders, self.progress, widgets.HTML("<hr>"), self.folder, self.overwrite,
-            widgets.HBox([self.export_tables, self.export_figures]), self.status,
-        ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
+        # The analyst's steps from left to right, each with its controls inline: the speed
+        # (which channel, tracked from which tacho), the angle domain (resampling and blocks),
+        # the results (what to cut, where to export).  The results sit below at full width.
+        steps = widgets.HBox([
+            _step("1 &middot; speed", [self.channel, self.progress]),
+            _step("2 &middot; angle domain", [self.samples_per_rev, self.revs_per_block,
+                                              self.window, self.protect]),
+            _step("3 &middot; results", [self.cut_orders, self.folder, self.overwrite,
+                                         widgets.HBox([self.export_tables, self.export_figures],
+                                                      layout=widgets.Layout(flex_flow="row wrap"))]),
+        ], layout=widgets.Layout(flex_flow="row wrap", align_items="stretch", width="100%"))
+        steps.add_class("foldline-steps")
         self.header = widgets.HTML()
-        self.widget = widgets.VBox([self.header, widgets.HBox([controls, self.tabs]), self.aliases])
+        self.widget = widgets.VBox([self.header, steps, self.status, self.tabs, self.aliases])
         self.widget.add_class("foldline-angle-panel")
 
     def _on_change(self, change):

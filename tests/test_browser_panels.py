@@ -1,0 +1,77 @@
+"""The angle-domain panel in a real browser at the window widths analysts use (1280 and 1920
+pixels): no control label is clipped, and an export that cannot be done says why in the panel.
+
+JupyterLab serves a copy of notebook 03 (with the demo run), headless Chromium runs all cells;
+the server recipe is the one of ``tests/test_browser.py`` (imported from there).  A label is
+clipped when its text needs more room than its box shows (``scrollWidth > clientWidth``, the
+DOM's own measure of overflow; W3C CSSOM View Module, "scrollWidth").
+"""
+
+from __future__ import annotations
+
+import re
+
+import pytest
+
+from test_browser import CHROMIUM, FIRST_WAIT_MS, FLAGS, WAIT_MS, _local_only, start_lab
+
+pytestmark = pytest.mark.browser
+
+NOTEBOOK = "03_angle_domain_resampling.ipynb"
+
+CLIPPED_LABELS = """
+root => Array.from(root.querySelectorAll(
+        '.widget-label, .widget-label-basic, .widget-checkbox label, .widget-button, label, '
+        + '.lm-TabBar-tabLabel, .p-TabBar-tabLabel'))
+    .filter(e => e.offsetParent !== null && e.textContent.trim())
+    .filter(e => e.scrollWidth > e.clientWidth + 1)
+    .map(e => e.textContent.trim())
+"""
+
+
+@pytest.fixture()
+def lab03(tmp_path):
+    """JupyterLab serving notebook 03 with the demo run (see tests/test_browser.py)."""
+    yield from start_lab(tmp_path, NOTEBOOK, with_runs=True)
+
+
+def _open_panel(pw, url, width):
+    browser = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=FLAGS)
+    context = browser.new_context(viewport={"width": width, "height": 1000})
+    context.route("**/*", _local_only)
+    page = context.new_page()
+    page.goto(f"{url}/lab/tree/notebooks/{NOTEBOOK}")
+    page.get_by_text("Python 3 (ipykernel) | Idle", exact=True).wait_for(timeout=FIRST_WAIT_MS)
+    page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(r"^Run$")).click()
+    page.locator(".lm-Menu-itemLabel", has_text=re.compile(r"^Run All Cells$")).click()
+    page.wait_for_function(
+        """() => Array.from(document.querySelectorAll('.foldline-angle-panel img.foldline-figure'))
+                 .some(i => i.src && i.complete && i.naturalWidth > 0)""",
+        timeout=FIRST_WAIT_MS)
+    return browser, page
+
+
+def test_angle_panel_labels_fit_and_a_failed_export_says_why(lab03, tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as pw:
+        for width in (1280, 1920):
+            browser, page = _open_panel(pw, lab03, width)
+            try:
+                panel = page.locator(".foldline-angle-panel")
+                panel.scroll_into_view_if_needed()
+                page.screenshot(path=str(tmp_path / f"angle_{width}.png"))
+                clipped = panel.evaluate(CLIPPED_LABELS)
+                assert clipped == [], f"clipped at {width} px: {clipped}"
+                # An invalid "orders to cut", then "export tables": the reason is shown.
+                box = panel.locator(".foldline-cut-orders input")
+                box.fill("1, abc")
+                box.press("Enter")
+                panel.locator("button", has_text="export tables").click()
+                status = panel.locator(".foldline-status-box")
+                status.get_by_text(re.compile(r"tables not exported \(nothing written\)")).wait_for(
+                    timeout=WAIT_MS)
+                assert "orders to cut" in status.inner_text()
+                page.screenshot(path=str(tmp_path / f"angle_{width}_export.png"))
+            finally:
+                browser.close()
