@@ -35,19 +35,19 @@ def lab03(tmp_path):
     yield from start_lab(tmp_path, NOTEBOOK, with_runs=True)
 
 
-def _open_panel(pw, url, width):
+def _open_panel(pw, url, width, notebook=NOTEBOOK, panel=".foldline-angle-panel"):
     browser = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=FLAGS)
     context = browser.new_context(viewport={"width": width, "height": 1000})
     context.route("**/*", _local_only)
     page = context.new_page()
-    page.goto(f"{url}/lab/tree/notebooks/{NOTEBOOK}")
+    page.goto(f"{url}/lab/tree/notebooks/{notebook}")
     page.get_by_text("Python 3 (ipykernel) | Idle", exact=True).wait_for(timeout=FIRST_WAIT_MS)
     page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(r"^Run$")).click()
     page.locator(".lm-Menu-itemLabel", has_text=re.compile(r"^Run All Cells$")).click()
     page.wait_for_function(
-        """() => Array.from(document.querySelectorAll('.foldline-angle-panel img.foldline-figure'))
+        """sel => Array.from(document.querySelectorAll(sel + ' img.foldline-figure'))
                  .some(i => i.src && i.complete && i.naturalWidth > 0)""",
-        timeout=FIRST_WAIT_MS)
+        arg=panel, timeout=FIRST_WAIT_MS)
     return browser, page
 
 
@@ -73,5 +73,41 @@ def test_angle_panel_labels_fit_and_a_failed_export_says_why(lab03, tmp_path):
                     timeout=WAIT_MS)
                 assert "orders to cut" in status.inner_text()
                 page.screenshot(path=str(tmp_path / f"angle_{width}_export.png"))
+            finally:
+                browser.close()
+
+
+NOTEBOOK_02 = "02_gear_mesh_vs_fault_band.ipynb"
+
+
+@pytest.fixture()
+def lab02(tmp_path):
+    """JupyterLab serving notebook 02 (fold map panel and source editor)."""
+    yield from start_lab(tmp_path, NOTEBOOK_02)
+
+
+def test_fold_map_panel_and_source_editor_labels_fit(lab02, tmp_path):
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as pw:
+        for width in (1280, 1920):
+            browser, page = _open_panel(pw, lab02, width, NOTEBOOK_02, ".foldline-foldmap-panel")
+            try:
+                page.wait_for_function(
+                    """() => Array.from(document.querySelectorAll('.foldline-source-editor img'))
+                             .some(i => i.src && i.complete && i.naturalWidth > 0)""",
+                    timeout=FIRST_WAIT_MS)
+                # The bearing's fields have the longest labels ("pitch diameter (same unit)").
+                editor = page.locator(".foldline-source-editor")
+                editor.locator("select").first.select_option(label="motor DE (bearing)")
+                editor.get_by_text("pitch diameter (same unit)").wait_for(timeout=WAIT_MS)
+                page.screenshot(path=str(tmp_path / f"foldmap_{width}.png"))
+                for sel in (".foldline-foldmap-panel", ".foldline-source-editor"):
+                    panels = page.locator(sel)
+                    assert panels.count() >= 1, sel
+                    for i in range(panels.count()):
+                        panels.nth(i).scroll_into_view_if_needed()
+                        clipped = panels.nth(i).evaluate(CLIPPED_LABELS)
+                        assert clipped == [], f"{sel} clipped at {width} px: {clipped}"
             finally:
                 browser.close()
