@@ -38,7 +38,8 @@ from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_m
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
-from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
+from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
+                                  html_table, step_card)
 
 __all__ = ["AngleDomainPanel", "WINDOWS"]
 
@@ -47,17 +48,6 @@ WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "
            ("Blackman-Harris", "blackmanharris"), ("rectangular", "boxcar"))
 _CHUNK = 65536
 _DPI = 80
-
-
-def _step(title, children):
-    """One step of the panel's strip: a titled card holding its controls."""
-    head = widgets.HTML(f'<div class="foldline-step-title" style="font-weight: 600; '
-                        f'color: #2b5d8a; margin: 2px 0 4px">{title}</div>')
-    card = widgets.VBox([head, *children], layout=widgets.Layout(
-        flex="1 1 300px", min_width="300px", margin="0 8px 8px 0", padding="4px 8px",
-        border="1px solid #c8d0d8"))
-    card.add_class("foldline-step")
-    return card
 
 
 class AngleDomainPanel:
@@ -205,10 +195,10 @@ class AngleDomainPanel:
         # (which channel, tracked from which tacho), the angle domain (resampling and blocks),
         # the results (what to cut, where to export).  The results sit below at full width.
         steps = widgets.HBox([
-            _step("1 &middot; speed", [self.channel, self.progress]),
-            _step("2 &middot; angle domain", [self.samples_per_rev, self.revs_per_block,
+            step_card("1 &middot; speed", [self.channel, self.progress]),
+            step_card("2 &middot; angle domain", [self.samples_per_rev, self.revs_per_block,
                                               self.window, self.protect]),
-            _step("3 &middot; results", [self.cut_orders, self.folder, self.overwrite,
+            step_card("3 &middot; results", [self.cut_orders, self.folder, self.overwrite,
                                          widgets.HBox([self.export_tables, self.export_figures],
                                                       layout=widgets.Layout(flex_flow="row wrap"))]),
         ], layout=widgets.Layout(flex_flow="row wrap", align_items="stretch", width="100%"))
