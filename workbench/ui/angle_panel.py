@@ -13,8 +13,10 @@ Steps and what each control redoes (the rest is kept):
 
 The controls sit in a strip of three steps, left to right as the analyst works (speed,
 angle domain, results and export), each a card with its controls inline; the status line and
-the results follow at full width.  Only the figure of the tab on show is drawn, and only when what it shows changed; the others
-are drawn when their tab is opened.
+the results follow at full width.  The results are shown together on one tab: the order map,
+with the orders cut marked on it, beside the order cuts and the order spectrum; the tacho check
+and the order extraction have tabs of their own.  Only the figures of the tab on show are
+drawn, and only when what they show changed; the others are drawn when their tab is opened.
 Tables (CSV) and figures (PNG) are written to a chosen folder by two buttons.
 """
 
@@ -87,7 +89,8 @@ class AngleDomainPanel:
     progress : ipywidgets.IntProgress
         Samples tracked so far.
     tabs : ipywidgets.Tab
-        Tacho check, order map, order cuts, order spectrum.
+        0: tacho check; 1: the results together (order map with the orders cut marked, order
+        cuts, order spectrum and peaks); 2: order extraction.
     tacho_figure, map_figure, cuts_figure, spectrum_figure : ipywidgets.Image
     tacho_info : ipywidgets.HTML
     aliases : ipywidgets.HTML
@@ -179,16 +182,22 @@ class AngleDomainPanel:
         self.peaks = widgets.HTML()
         image = dict(format="png", layout=widgets.Layout(max_width="100%"))
         self.tacho_figure = widgets.Image(**image)
-        self.map_figure = widgets.Image(**image)
-        self.cuts_figure = widgets.Image(**image)
-        self.spectrum_figure = widgets.Image(**image)
+        self.map_figure = widgets.Image(format="png", layout=widgets.Layout(
+            flex="3 1 460px", min_width="420px", max_width="100%", height="auto"))
+        self.cuts_figure = widgets.Image(format="png", layout=widgets.Layout(width="100%"))
+        self.spectrum_figure = widgets.Image(format="png", layout=widgets.Layout(width="100%"))
         for w in (self.tacho_figure, self.map_figure, self.cuts_figure, self.spectrum_figure):
             w.add_class("foldline-figure")
+        # The results together: the order map with the orders cut marked on it, beside the
+        # cuts and the spectrum (they stack below the map on a narrow window).
+        side = widgets.VBox([self.cuts_figure, self.spectrum_figure, self.peaks],
+                            layout=widgets.Layout(flex="2 1 360px", min_width="340px"))
+        results = widgets.Box([self.map_figure, side], layout=widgets.Layout(
+            display="flex", flex_flow="row wrap", align_items="flex-start", width="100%"))
+        results.add_class("foldline-results")
         self.tabs = widgets.Tab(children=[
-            widgets.VBox([self.tacho_figure, self.tacho_info]),
-            self.map_figure, self.cuts_figure,
-            widgets.VBox([self.spectrum_figure, self.peaks])])
-        for i, title in enumerate(("tacho check", "order map", "order cuts", "order spectrum")):
+            widgets.VBox([self.tacho_figure, self.tacho_info]), results])
+        for i, title in enumerate(("tacho check", "results")):
             self.tabs.set_title(i, title)
         self.tabs.selected_index = 1
         # The analyst's steps from left to right, each with its controls inline: the speed
@@ -373,10 +382,12 @@ class AngleDomainPanel:
         omap, spec, peaks, ident = self.analysis()
         top = self.usable_max_order
         if which == "map":
-            return plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
-                                  max_order=top, unit=unit,
-                                  title=f"Order map, predicted lines at {self.run.rate_hz:g} Hz overlaid "
-                                        "(dashed: folded)")
+            fig = plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
+                                 max_order=top, unit=unit,
+                                 title=f"Order map, predicted lines at {self.run.rate_hz:g} Hz overlaid "
+                                       "(dashed: folded)")
+            self._mark_cut_orders(fig)
+            return fig
         if which == "cuts":
             return plot_order_cuts(self.cuts(), unit=unit)
         if which == "spectrum":
@@ -384,11 +395,27 @@ class AngleDomainPanel:
             return plot_order_spectrum(spec, peaks=table, lines=self.lines or None, unit=unit, max_order=top)
         raise InputError(f"figure {which!r}: choose one of {', '.join(self.FIGURES)}")
 
+    def _mark_cut_orders(self, fig):
+        """The orders cut, marked on the order map (links the map to the cuts beside it)."""
+        try:
+            orders = self._orders()
+        except FoldlineError:  # a bad entry is reported by the cuts; the map stays plain
+            return
+        ax = fig.axes[0]
+        for o in orders:
+            ax.axhline(o, color="white", lw=0.8, ls=":", alpha=0.9)
+            ax.annotate(f"cut {o:g}", (1.0, o), xycoords=("axes fraction", "data"),
+                        xytext=(-4, 2), textcoords="offset points", ha="right", va="bottom",
+                        color="white", fontsize=7)
+
+    #: Figures on each tab (the results tab shows the map, the cuts and the spectrum together).
+    _TAB_FIGURES = (("tacho",), ("map", "cuts", "spectrum"))
+
     def _figure_key(self, which):
         """What a figure depends on: it is redrawn only when this changes."""
         if which == "tacho":
             return ()
-        if which == "cuts":
+        if which in ("cuts", "map"):  # the map marks the orders cut
             return self._analysis_key() + (self.cut_orders.value,)
         return self._analysis_key()
 
@@ -398,17 +425,18 @@ class AngleDomainPanel:
         self._drawn[which] = self._figure_key(which)
 
     def _draw_shown(self):
-        if (self.tabs.selected_index or 0) >= len(self.FIGURES):
+        index = self.tabs.selected_index or 0
+        if index >= len(self._TAB_FIGURES):
             self._draw_extraction()
             return
-        which = self.FIGURES[self.tabs.selected_index or 0]
-        if self._drawn.get(which) != self._figure_key(which):
-            try:
-                with warnings.catch_warnings():
-                    warnings.simplefilter("ignore", FoldlineWarning)
-                    self._draw(which)
-            except FoldlineError as exc:
-                self.status.value = STYLE + error_html(exc)
+        for which in self._TAB_FIGURES[index]:
+            if self._drawn.get(which) != self._figure_key(which):
+                try:
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore", FoldlineWarning)
+                        self._draw(which)
+                except FoldlineError as exc:
+                    self.status.value = STYLE + error_html(exc)
 
     # -- export ---------------------------------------------------------------------------
     def tables(self) -> dict:
