@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from workbench.errors import FoldlineWarning, InputError, OutputExistsError, PlanFileError
+from workbench.errors import InputError, OutputExistsError, PlanFileError
 from workbench.sampling import (AntiAliasFilter, Band, Plan, SpeedProfile, plan_from_dict,
                                 plan_to_dict, read_plan, write_plan)
 

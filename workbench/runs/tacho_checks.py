@@ -20,7 +20,6 @@ The check of the spacing needs the raw pulse times, so it detects them again
 
 from __future__ import annotations
 
-import math
 
 import numpy as np
 
