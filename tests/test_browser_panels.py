@@ -13,7 +13,7 @@ import re
 
 import pytest
 
-from test_browser import CHROMIUM, FIRST_WAIT_MS, FLAGS, WAIT_MS, _local_only, start_lab
+from test_browser import CHROMIUM, FIRST_WAIT_MS, FLAGS, WAIT_MS, open_and_run_all, start_lab
 
 pytestmark = pytest.mark.browser
 
@@ -37,13 +37,7 @@ def lab03(tmp_path):
 
 def _open_panel(pw, url, width, notebook=NOTEBOOK, panel=".foldline-angle-panel"):
     browser = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=FLAGS)
-    context = browser.new_context(viewport={"width": width, "height": 1000})
-    context.route("**/*", _local_only)
-    page = context.new_page()
-    page.goto(f"{url}/lab/tree/notebooks/{notebook}")
-    page.get_by_text("Python 3 (ipykernel) | Idle", exact=True).wait_for(timeout=FIRST_WAIT_MS)
-    page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(r"^Run$")).click()
-    page.locator(".lm-Menu-itemLabel", has_text=re.compile(r"^Run All Cells$")).click()
+    page = open_and_run_all(browser, url, notebook, width=width, height=1000)
     page.wait_for_function(
         """sel => Array.from(document.querySelectorAll(sel + ' img.foldline-figure'))
                  .some(i => i.src && i.complete && i.naturalWidth > 0)""",

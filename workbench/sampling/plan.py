@@ -329,6 +329,23 @@ class Limit:
         return f"{what} <= {self.max:g} {self.amplitude}, {where_}"
 
 
+def _named_entries(owner, field_, items, cls, word) -> tuple:
+    """``items`` as a tuple of ``cls`` objects with unique names (FieldError otherwise)."""
+    if isinstance(items, (str, bytes, cls)):
+        raise FieldError(owner, field_, f"must be a sequence of {cls.__name__}")
+    items = tuple(items)
+    seen = set()
+    for item in items:
+        if not isinstance(item, cls):
+            raise FieldError(owner, field_, f"must hold {cls.__name__} objects, got "
+                             f"{type(item).__name__}")
+        if item.name in seen:
+            raise FieldError(owner, field_, f"{word} name {item.name!r} is used twice; "
+                             "names must be unique")
+        seen.add(item.name)
+    return items
+
+
 # ------------------------------------------------------------------------------------------
 # Plan
 # ------------------------------------------------------------------------------------------
@@ -387,18 +404,8 @@ class Plan:
             raise FieldError(owner, "rates_hz", f"lists {twice:g} more than once")
         object.__setattr__(self, "rates_hz", rates)
         object.__setattr__(self, "threshold_db", real(owner, "threshold_db", self.threshold_db))
-        if isinstance(self.bands, (str, bytes, Band)):
-            raise FieldError(owner, "bands", "must be a sequence of Band")
-        bands = tuple(self.bands)
-        seen = set()
-        for band in bands:
-            if not isinstance(band, Band):
-                raise FieldError(owner, "bands", f"must hold Band objects, got "
-                                 f"{type(band).__name__}")
-            if band.name in seen:
-                raise FieldError(owner, "bands", f"band name {band.name!r} is used twice; "
-                                 "names must be unique")
-            seen.add(band.name)
+        bands = _named_entries(owner, "bands", self.bands, Band, "band")
+        seen = {band.name for band in bands}
         object.__setattr__(self, "bands", bands)
         for name in ("max_order", "order_resolution"):
             value = getattr(self, name)
@@ -407,18 +414,8 @@ class Plan:
                                                     low_open=True))
         if not isinstance(self.source, str):
             raise FieldError(owner, "source", f"must be a text, got {show(self.source)}")
-        if isinstance(self.limits, (str, bytes, Limit)):
-            raise FieldError(owner, "limits", "must be a sequence of Limit")
-        limits = tuple(self.limits)
-        names = set()
+        limits = _named_entries(owner, "limits", self.limits, Limit, "limit")
         for lim in limits:
-            if not isinstance(lim, Limit):
-                raise FieldError(owner, "limits", f"must hold Limit objects, got "
-                                 f"{type(lim).__name__}")
-            if lim.name in names:
-                raise FieldError(owner, "limits", f"limit name {lim.name!r} is used twice; "
-                                 "names must be unique")
-            names.add(lim.name)
             if lim.band is not None and lim.band not in seen:
                 raise FieldError(owner, "limits", f"limit {lim.name!r}: band: the plan has no "
                                  f"band named {lim.band!r}{_close(lim.band, seen)}")
