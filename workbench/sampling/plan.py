@@ -656,30 +656,37 @@ class _Reader:
         threshold = self.number(sec, "threshold_db", entry, default=DEFAULT_THRESHOLD_DB)
         return rates, filt, threshold
 
-    def bands(self, d) -> tuple[Band, ...]:
-        if "band" not in d:
-            return ()
-        entries = d["band"]
+    def named_entries(self, d, table, keys):
+        """Each ``[[table]]`` entry as (location, keys): an array of tables, each with a
+        unique non-empty name and only the allowed keys."""
+        if table not in d:
+            return
+        entries = d[table]
         if not isinstance(entries, list):
-            self.fail(None, "[band]", "bands are an array of tables: write each as [[band]] "
-                      "(two brackets)")
-        bands, seen = [], {}
+            self.fail(None, f"[{table}]", f"{table}s are an array of tables: write each as "
+                      f"[[{table}]] (two brackets)")
+        seen = {}
         for i, sec in enumerate(entries):
-            entry = f"[[band]] #{i + 1}"
+            entry = f"[[{table}]] #{i + 1}"
             if not isinstance(sec, dict):
                 self.fail(None, entry, f"must be a table of keys, got {show(sec)}")
             name = sec.get("name")
             if isinstance(name, str) and name.strip():
-                entry = f"[[band]] {name!r}"
-            self.unknown_keys(sec, _BAND_KEYS, entry)
+                entry = f"[[{table}]] {name!r}"
+            self.unknown_keys(sec, keys, entry)
             if "name" not in sec:
                 self.fail(entry, "name", "is required")
             if not isinstance(name, str) or not name.strip():
                 self.fail(entry, "name", f"must be a non-empty text, got {show(name)}")
             if name in seen:
-                self.fail(entry, "name", f"is used by band #{seen[name]} already; band names "
-                          "must be unique")
+                self.fail(entry, "name", f"is used by {table} #{seen[name]} already; {table} "
+                          "names must be unique")
             seen[name] = i + 1
+            yield entry, sec
+
+    def bands(self, d) -> tuple[Band, ...]:
+        bands = []
+        for entry, sec in self.named_entries(d, "band", _BAND_KEYS):
             for key in ("hz", "orders"):
                 if key in sec and not isinstance(sec[key], list):
                     self.fail(entry, key, f"must be a list of two numbers [lo, hi], got "
@@ -691,31 +698,12 @@ class _Reader:
         return tuple(bands)
 
     def limits(self, d, bands) -> tuple[Limit, ...]:
-        if "limit" not in d:
-            return ()
-        entries = d["limit"]
-        if not isinstance(entries, list):
-            self.fail(None, "[limit]", "limits are an array of tables: write each as [[limit]] "
-                      "(two brackets)")
         band_names = [b.name for b in bands]
-        limits, seen = [], {}
-        for i, sec in enumerate(entries):
-            entry = f"[[limit]] #{i + 1}"
-            if not isinstance(sec, dict):
-                self.fail(None, entry, f"must be a table of keys, got {show(sec)}")
-            name = sec.get("name")
-            if isinstance(name, str) and name.strip():
-                entry = f"[[limit]] {name!r}"
-            self.unknown_keys(sec, _LIMIT_KEYS, entry)
-            for key in ("name", "max"):
-                if key not in sec:
-                    self.fail(entry, key, "is required" + (
-                        "" if key == "name" else ": the highest allowed level in the "
-                        "channel's unit, from the user, the machine maker or the standard"))
-            if name in seen:
-                self.fail(entry, "name", f"is used by limit #{seen[name]} already; limit "
-                          "names must be unique")
-            seen[name] = i + 1
+        limits = []
+        for entry, sec in self.named_entries(d, "limit", _LIMIT_KEYS):
+            if "max" not in sec:
+                self.fail(entry, "max", "is required: the highest allowed level in the "
+                          "channel's unit, from the user, the machine maker or the standard")
             if "rpm" in sec and not isinstance(sec["rpm"], list):
                 self.fail(entry, "rpm", f"must be a list of two speeds [lo, hi] in rpm, got "
                           f"{show(sec['rpm'])}")
