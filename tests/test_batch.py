@@ -284,7 +284,7 @@ def test_validation_errors(scenario, tmp_path, capsys):
         BatchSettings.make(machine_path=str(tmp_path / "missing.toml"))
     with pytest.raises(InputError, match="--speed-table .*: no such file"):
         BatchSettings.make(track={"speed_table": str(tmp_path / "none.csv")})
-    with pytest.raises(InputError, match=r"\(n_top\) = 0"):
+    with pytest.raises(InputError, match=r"--top 0: must be at least 1"):
         BatchSettings.make(n_top=0)
     with pytest.raises(InputError, match="give it as a batch setting"):
         BatchSettings.make(track={"machine": "m.toml"})

@@ -90,6 +90,12 @@ def _stop(proc) -> None:
 @pytest.fixture()
 def lab(tmp_path):
     """A JupyterLab server on a copy of the notebooks folder; yields its base URL."""
+    yield from start_lab(tmp_path, NOTEBOOK)
+
+
+def start_lab(tmp_path, notebook, *, with_runs=False):
+    """Start JupyterLab on a copy of ``notebook`` and the demo files (the recorded run too with
+    ``with_runs``); yield its base URL, stop it afterwards."""
     if not CHROMIUM.exists():
         _unavailable(f"no Chromium at {CHROMIUM} (install the system package: apt-get install -y chromium)")
     try:
@@ -98,9 +104,9 @@ def lab(tmp_path):
         _unavailable("the playwright package is not installed (pip install -e '.[test]')")
     root = tmp_path / "root"
     (root / "notebooks").mkdir(parents=True)
-    shutil.copy(ROOT / "notebooks" / NOTEBOOK, root / "notebooks" / NOTEBOOK)
+    shutil.copy(ROOT / "notebooks" / notebook, root / "notebooks" / notebook)
     shutil.copytree(ROOT / "sample_runs", root / "sample_runs",
-                    ignore=shutil.ignore_patterns("*.wav", "*.json"))
+                    ignore=None if with_runs else shutil.ignore_patterns("*.wav", "*.json"))
     settings = tmp_path / "lab-settings"
     notification = settings / "@jupyterlab" / "apputils-extension" / "notification.jupyterlab-settings"
     notification.parent.mkdir(parents=True)
@@ -132,6 +138,20 @@ def _local_only(route):
         route.abort()
 
 
+def open_and_run_all(browser, lab, notebook, *, width, height):
+    """A page of ``width`` x ``height`` px on ``notebook`` (only 127.0.0.1 reachable), all of
+    whose cells were started with Run All Cells once the kernel was idle."""
+    context = browser.new_context(viewport={"width": width, "height": height})
+    context.route("**/*", _local_only)
+    page = context.new_page()
+    page.goto(f"{lab}/lab/tree/notebooks/{notebook}")
+    # Run All only once the kernel is really idle (an early "idle" runs nothing).
+    page.get_by_text("Python 3 (ipykernel) | Idle", exact=True).wait_for(timeout=FIRST_WAIT_MS)
+    page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(r"^Run$")).click()
+    page.locator(".lm-Menu-itemLabel", has_text=re.compile(r"^Run All Cells$")).click()
+    return page
+
+
 def _src(page) -> str:
     return page.locator("img.foldline-figure").first.get_attribute("src") or ""
 
@@ -149,14 +169,7 @@ def test_rate_dropdown_changes_picture_and_table_in_jupyterlab(lab, tmp_path):
     with sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=FLAGS)
         try:
-            context = browser.new_context(viewport={"width": 1600, "height": 1100})
-            context.route("**/*", _local_only)
-            page = context.new_page()
-            page.goto(f"{lab}/lab/tree/notebooks/{NOTEBOOK}")
-            # Run All only once the kernel is really idle (an early "idle" runs nothing).
-            page.get_by_text("Python 3 (ipykernel) | Idle", exact=True).wait_for(timeout=FIRST_WAIT_MS)
-            page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(r"^Run$")).click()
-            page.locator(".lm-Menu-itemLabel", has_text=re.compile(r"^Run All Cells$")).click()
+            page = open_and_run_all(browser, lab, NOTEBOOK, width=1600, height=1100)
             page.wait_for_function(
                 """() => { const i = document.querySelector('img.foldline-figure');
                            return i && i.src && i.complete && i.naturalWidth > 0; }""",

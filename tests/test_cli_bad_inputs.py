@@ -413,7 +413,30 @@ CASES = [
         machine_file="m.toml"), "@link": symlink_out("m.toml", "m.toml")}),
           r"^run\.json: machine_file: 'm\.toml' resolves to .* through a symbolic link, outside "
           r"the sidecar's folder"),
-
+    # ---------------------------------------------------------------- a file in the wrong place
+    # Files recognised by their content and said to be what they are (issue 15, guard rails).
+    Case("machine-is-a-plan", {M: MACHINE, P: PLAN}, ["foldmap", P, M, "--rate", "5120"],
+         r"^p\.toml: this looks like a plan file \(it has \[speed\] and \[acquisition\]\), not "
+         r"the machine file .*the machine file comes first, then the plan"),
+    Case("plan-is-a-machine", {M: MACHINE, P: PLAN}, ["plan", M, M],
+         r"^m\.toml: this looks like a machine file .*, not the plan file .*the machine file "
+         r"comes first, then the plan"),
+    Case("machine-is-a-wav", {M: MACHINE, P: PLAN, "run.wav": GOOD_WAV},
+         ["foldmap", "run.wav", P, "--rate", "5120"],
+         r"^run\.wav: this looks like a run file \(recorded or simulated samples\), not the "
+         r"machine file"),
+    Case("run-is-a-machine", {M: MACHINE}, ["track", M, *TRACK_OUT, "--json"],
+         r"^m\.toml: this looks like a machine file .*, not the run file \(WAV, CSV, NPZ or MAT\); "
+         r"give the recorded run here", outputs=("result",)),
+    Case("run-is-a-sidecar", {"run.wav": GOOD_WAV, "run.json": sidecar()},
+         ["track", "run.json", *TRACK_OUT, "--json"],
+         r"^run\.json: this looks like a run's JSON sidecar, not the run file", outputs=("result",)),
+    # A cutoff at or above Nyquist protects nothing: refused, naming the file and key.
+    pcase("plan-cutoff-above-nyquist", edit(PLAN, "cutoff = 0.39", "cutoff = 0.6"),
+          r"^p\.toml: \[acquisition\]: cutoff: 0\.6 x rate lies at or above Nyquist \(0\.5 x "
+          r"rate\), where the filter protects nothing"),
+    pcase("plan-cutoff-at-nyquist", edit(PLAN, "cutoff = 0.39", "cutoff = 0.5"),
+          r"^p\.toml: \[acquisition\]: cutoff: 0\.5 x rate lies at or above Nyquist"),
 ]
 
 
@@ -520,8 +543,9 @@ def test_csv_with_units_row_is_read(tmp_path):
 
 
 def test_adjusted_value_warns_in_one_line_and_json_stays_clean(tmp_path):
-    # A cutoff above Nyquist is legal but folds everything between: a warning, not an error.
-    case = Case("warn", {M: MACHINE, P: edit(PLAN, "cutoff = 0.39", "cutoff = 0.6")},
+    # A candidate rate typed in kHz (10.24 for 10240) is legal but implausible: a warning.
+    case = Case("warn", {M: MACHINE, P: edit(PLAN, "rates_hz = [2560.0, 5120.0]",
+                                             "rates_hz = [10.24, 5120.0]")},
                 ["plan", M, P, "--json"], "")
     out = _run(case, tmp_path / "warn")
     assert out.returncode == 0, out.stderr
@@ -548,3 +572,5 @@ def test_machine_that_stalls_is_tracked_either_side_with_one_warning_line(tmp_pa
     assert any(re.search(r"the speed is unknown in 1\.\d+-[12]\.\d+ s.*stopped, slowed abruptly "
                          r"or reversed.*usable stretches 0\.\d+-1\.\d+ s, 2\.\d+-3\.\d+ s are "
                          r"tracked on their own", line) for line in lines), lines
+    assert any(re.search(r"candidate rate 10\.24 Hz is below .*did you mean 10\.24 kHz "
+                         r"\(10240 Hz\)\?", line) for line in lines)

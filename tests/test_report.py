@@ -130,8 +130,8 @@ def test_report_opens_offline_with_no_error_and_no_request(browser_page, report_
     # Fold maps (Hz and order view) of the worst candidate and the recommended rate, the
     # plan's Campbell diagram (the demo machine has resonances), then the run's tacho check,
     # order spectrum, order map, order cuts, overall level, rpm-frequency map, Bode, polar and
-    # Campbell views.
-    assert page.locator("figure.plot svg").count() == 14
+    # Campbell views, and the demo plan's acceptance limits drawn on the levels they judge.
+    assert page.locator("figure.plot svg").count() == 15
     assert page.locator("script").count() == 1
     # The sorting script ran (it marks each sortable table).
     assert page.locator("table.sortable.js").count() == page.locator("table.sortable").count()
@@ -301,7 +301,7 @@ def test_cli_json_names_sections_and_hash(tmp_path, capsys):
     assert got["out"] == str(out)
     assert got["sha256"] == hashlib.sha256(out.read_bytes()).hexdigest()
     assert got["sections"] == ["summary", "machine", "plan", "recommendation", "collisions",
-                               "fold-maps", "angle-settings", "safety", "provenance"]
+                               "fold-maps", "angle-settings", "safety", "provenance", "signoff"]
     for rate in ("1000", "5120"):
         ref = _json_of(["foldmap", str(machine), str(plan), "--rate", rate], capsys)
         assert got["collisions_by_rate"][rate] == len(ref["collisions"])

@@ -215,9 +215,10 @@ def test_usable_edge_table_and_caps():
     assert late.usable_edge_hz(RATE) == RATE / 2
     deaf = AntiAliasFilter("table", table_hz_or_fraction=[1000.0, 1e5], table_db=[2.0, 3.0])
     assert deaf.usable_edge_hz(RATE) == 0.0
-    with pytest.warns(FoldlineWarning, match="above Nyquist"):
-        wide = AntiAliasFilter("ideal", cutoff=0.8)
-    assert wide.usable_edge_hz(RATE) == RATE / 2
+    # A cutoff at or above Nyquist protects nothing: refused (issue 15).
+    for cutoff in (0.8, 0.5):
+        with pytest.raises(InputError, match="at or above Nyquist"):
+            AntiAliasFilter("ideal", cutoff=cutoff)
 
 
 def test_usable_edge_bad_arguments():
@@ -369,7 +370,7 @@ def test_property_scales_with_rate(kind, order, cutoff, rate, k):
 
 
 @settings(max_examples=60, deadline=None)
-@given(st.sampled_from(["butterworth", "bessel"]), st.integers(1, 16), st.floats(0.05, 0.6))
+@given(st.sampled_from(["butterworth", "bessel"]), st.integers(1, 16), st.floats(0.05, 0.49))
 def test_property_monotone_lowpass(kind, order, cutoff):
     # Butterworth and Bessel magnitudes fall monotonically with frequency (no ripple).
     with warnings.catch_warnings():

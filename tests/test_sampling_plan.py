@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from workbench.errors import FoldlineWarning, InputError, OutputExistsError, PlanFileError
+from workbench.errors import InputError, OutputExistsError, PlanFileError
 from workbench.sampling import (AntiAliasFilter, Band, Plan, SpeedProfile, plan_from_dict,
                                 plan_to_dict, read_plan, write_plan)
 
@@ -401,11 +401,12 @@ def test_inline_tables_and_subfolder(tmp_path):
     assert plan.filter.attenuation_db(0.6 * 1000, 1000) == 60.0
 
 
-def test_cutoff_above_nyquist_warns_but_reads():
+def test_cutoff_at_or_above_nyquist_is_refused():
+    # A filter passing Nyquist lets everything up to its cutoff fold unattenuated (issue 15).
     d = _edit(("acquisition", "cutoff"), 0.7)
-    with pytest.warns(FoldlineWarning, match="cutoff 0.7 x rate lies above Nyquist"):
-        plan = plan_from_dict(d)
-    assert plan.filter.cutoff == 0.7
+    with pytest.raises(PlanFileError, match=r"\[acquisition\]: cutoff: 0.7 x rate lies at or "
+                                            r"above Nyquist"):
+        plan_from_dict(d)
 
 
 # -- plan files on disk ------------------------------------------------------------------------

@@ -252,8 +252,9 @@ def test_bad_values_show_an_error_and_keep_the_picture(panel):
 
 
 def test_adjusted_filter_values_are_reported(panel):
-    panel.cutoff.value = 0.6  # above Nyquist: the filter model warns
-    assert "lies above Nyquist" in panel.verdict.value
+    panel.cutoff.value = 0.6  # above Nyquist: refused, the panel says why (issue 15)
+    assert 'class="foldline-error"' in panel.verdict.value
+    assert "at or above Nyquist" in panel.verdict.value
 
 
 def test_panel_accepts_paths_and_exposes_its_widget(machine):
@@ -442,7 +443,7 @@ def test_figures_are_drawn_when_their_tab_opens(angle_panel):
     shown = angle_panel.cuts_figure.value
     angle_panel.cut_orders.value = "1, 58"
     assert angle_panel.cuts_figure.value == shown  # its tab is not on show: not drawn yet
-    angle_panel.tabs.selected_index = 2
+    angle_panel.tabs.selected_index = 1  # the results: map, cuts and spectrum together
     assert angle_panel.cuts_figure.value != shown and angle_panel.cuts_figure.value[:4] == b"\x89PNG"
     assert angle_panel.tacho_figure.value[:4] == b"\x89PNG"  # drawn when its tab was opened
     assert "pulses, 0 doubted" in angle_panel.tacho_info.value
@@ -495,7 +496,7 @@ def test_panels_refuse_what_they_cannot_open(machine, plan):
     shafts_only = machine_from_dict({"machine": {"name": "bare", "reference": "input"},
                                      "shaft": [{"name": "input"}]})
     bare_plan = _plan_with(plan, acquisition={})
-    bare_plan = dataclasses.replace(bare_plan, bands=())
+    bare_plan = dataclasses.replace(bare_plan, bands=(), limits=())
     with pytest.raises(InputError, match="has no gear stage, planetary stage, bearing or rotor"):
         SourceEditorPanel(shafts_only, bare_plan)
 
@@ -527,8 +528,8 @@ def test_extraction_tab_matches_the_direct_extraction_plays_and_exports(angle_pa
     run = direct[0]
     angle_panel.extract_orders.value = "1, 29"
     angle_panel.extract_bandwidth.value = 2.0
-    assert angle_panel.tabs.get_title(4) == "order extraction"
-    angle_panel.tabs.selected_index = 4
+    assert angle_panel.tabs.get_title(2) == "order extraction"
+    angle_panel.tabs.selected_index = 2
     assert angle_panel.extract_figure.value[:4] == b"\x89PNG"
     # The same extraction by a direct call of the angle layer with the run's tacho angle.
     angle = tacho_angle(detect_pulses(run.channel(run.tacho), run.rate_hz),

@@ -29,6 +29,20 @@ SETTINGS = {
     # timing interpolates (a zero rise time would leave only whole-sample timing).
     "tacho_rise_s": 1e-3,
 }
+#: Test metadata written into the demo sidecar (invented, like the whole scenario).
+METADATA = {
+    "unit_under_test": "agitator drive AD-7 (demo)",
+    "serial_number": "AD7-DEMO-0001",
+    "test_id": "demo run-up 300-1800 rpm",
+    "operator": "demo operator",
+    "date": "2026-01-15",
+}
+SENSORS = {
+    "vibration": {"position": "motor DE bearing housing", "direction": "radial horizontal",
+                  "sensor_type": "accelerometer (simulated)"},
+    "tacho": {"position": "motor shaft", "direction": "",
+              "sensor_type": "optical tacho, 1 pulse per rev (simulated)"},
+}
 
 
 def main(argv=None) -> int:
@@ -51,9 +65,22 @@ def main(argv=None) -> int:
     machine = read_machine(machine_path)
     plan = read_plan(SAMPLE / "runup_plan.toml")
     simulate_to_wav(machine, plan, RATE_HZ, out, machine_file=machine_path, force=True, **SETTINGS)
+    _add_metadata(out.with_suffix(".json"))
     for p in (out, out.with_suffix(".json")):
         print(f"{p}  {p.stat().st_size} bytes  sha256 {hashlib.sha256(p.read_bytes()).hexdigest()}")
     return 0
+
+
+def _add_metadata(side: Path) -> None:
+    """Write the demo's test metadata into the simulator's sidecar."""
+    from dataclasses import replace
+
+    from workbench.runs import SensorInfo, TestMetadata, read_sidecar, write_sidecar
+
+    sidecar = read_sidecar(side)
+    sensors = tuple(SensorInfo(name, **fields) for name, fields in SENSORS.items())
+    write_sidecar(replace(sidecar, metadata=TestMetadata(**METADATA, sensors=sensors), source=None),
+                  side, force=True)
 
 
 if __name__ == "__main__":

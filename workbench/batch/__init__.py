@@ -14,7 +14,8 @@ import importlib
 
 # Imported on first use (PEP 562): registering the ``batch`` verb must not import pandas.
 _LAZY = {
-    "workbench.batch.core": ("BASE_COLUMNS", "LEVEL_PREFIX", "SUMMARY_NAME", "TAIL_COLUMNS",
+    "workbench.batch.core": ("BASE_COLUMNS", "LEVEL_PREFIX", "META_COLUMNS", "PASS_PREFIX",
+                             "WORST_PREFIX", "SUMMARY_NAME", "TAIL_COLUMNS",
                              "BatchResult", "BatchSettings", "process_run", "read_summary",
                              "run_batch"),
     "workbench.batch.levels": ("band_level_series", "band_levels"),
@@ -37,4 +38,4 @@ def __dir__():
 
 __all__ = ["BatchSettings", "BatchResult", "process_run", "run_batch", "read_summary",
            "band_levels", "band_level_series", "BASE_COLUMNS", "TAIL_COLUMNS", "LEVEL_PREFIX",
-           "SUMMARY_NAME"]
+           "SUMMARY_NAME", "PASS_PREFIX", "WORST_PREFIX", "META_COLUMNS"]

@@ -45,6 +45,9 @@ __all__ = [
     "BASE_COLUMNS",
     "TAIL_COLUMNS",
     "LEVEL_PREFIX",
+    "PASS_PREFIX",
+    "WORST_PREFIX",
+    "META_COLUMNS",
 ]
 
 SUMMARY_NAME = "summary"
@@ -53,6 +56,14 @@ LEVEL_PREFIX = "level: "
 #: Summary columns before the band levels, then :data:`TAIL_COLUMNS` after them.
 BASE_COLUMNS = ("file", "channel", "sha256", "sidecar_sha256", "settings", "status", "error",
                 "rpm_min", "rpm_max", "duration_s", "revolutions")
+#: Column-name prefixes of the acceptance limits (plan ``[[limit]]``): ``"pass: <limit>"``
+#: (True, False, or empty when the limit could not be judged) and ``"worst: <limit>"`` (the
+#: worst level inside the limit's speed range, in the limit's measure).
+PASS_PREFIX = "pass: "
+WORST_PREFIX = "worst: "
+#: Test metadata from each run's sidecar (the analysed channel's sensor for the last three).
+META_COLUMNS = ("unit_under_test", "serial_number", "test_id", "operator", "date",
+                "sensor_position", "sensor_direction", "sensor_type")
 TAIL_COLUMNS = ("top_orders", "aliases", "alias_lines", "warnings", "spectrum_csv", "cuts_csv",
                 "seconds")
 _WRITE_EVERY_S = 5.0
@@ -127,7 +138,7 @@ class BatchSettings:
                                      "line; give --machine so that its frequency is known")
         n_top = int(n_top)
         if n_top < 1:
-            raise InputError(f"--top (n_top) = {n_top}: must be at least 1")
+            raise InputError(f"--top {n_top}: must be at least 1 (peaks listed per run)")
         return cls(
             track=tuple(sorted((str(k), _freeze(v)) for k, v in opts.items() if v is not None)),
             machine_path=None if machine_path is None else str(machine_path),
@@ -298,10 +309,12 @@ def _channel_row(row, analysis, path, out_dir, settings, plan, lines, *, tagged)
     row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
                 "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
     if plan is not None:
-        from workbench.batch.levels import band_levels
+        from workbench.runs.levels import band_levels
 
         for name, level in band_levels(analysis.order_map, plan.bands, lines).items():
             row[LEVEL_PREFIX + name] = level
+        row.update(_limit_cells(analysis, plan, lines))
+    row.update(_meta_cells(path, analysis.channel))
     row["top_orders"] = _top_orders(analysis.peaks, settings.n_top)
     ident = analysis.identification
     if ident is not None:
@@ -313,15 +326,40 @@ def _channel_row(row, analysis, path, out_dir, settings, plan, lines, *, tagged)
     return row
 
 
+def _limit_cells(analysis, plan, lines) -> dict:
+    """``pass: <limit>`` and ``worst: <limit>`` of every plan limit judged on the run."""
+    from workbench.runs.limits import evaluate_limits
+
+    cells = {}
+    for r in evaluate_limits(analysis, plan.limits, bands=plan.bands, lines=lines):
+        cells[WORST_PREFIX + r.name] = r.worst
+        cells[PASS_PREFIX + r.name] = r.passed
+    return cells
+
+
+def _meta_cells(path: Path, channel) -> dict:
+    """The run's test metadata (sidecar) and the analysed channel's sensor."""
+    from workbench.runs import run_metadata
+
+    meta = run_metadata(path)
+    sensor = meta.sensor(str(channel))
+    cells = {k: getattr(meta, k) for k in META_COLUMNS[:5]}
+    cells.update(sensor_position=sensor.position, sensor_direction=sensor.direction,
+                 sensor_type=sensor.sensor_type)
+    return cells
+
+
 # --------------------------------------------------------------------------------------------
 # the summary table
 
 
 def _order_columns(columns) -> list:
     levels = [c for c in columns if str(c).startswith(LEVEL_PREFIX)]
-    known = set(BASE_COLUMNS) | set(TAIL_COLUMNS) | set(levels)
+    limits = [c for c in columns if str(c).startswith((PASS_PREFIX, WORST_PREFIX))]
+    meta = [c for c in META_COLUMNS if c in columns]
+    known = set(BASE_COLUMNS) | set(TAIL_COLUMNS) | set(levels) | set(limits) | set(meta)
     rest = [c for c in columns if c not in known]
-    return list(BASE_COLUMNS) + levels + list(TAIL_COLUMNS) + rest
+    return list(BASE_COLUMNS) + meta + levels + limits + list(TAIL_COLUMNS) + rest
 
 
 def _frame(rows) -> pd.DataFrame:
@@ -333,13 +371,26 @@ def _frame(rows) -> pd.DataFrame:
     for c in ("rpm_min", "rpm_max", "duration_s", "revolutions", "seconds"):
         table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
     for c in table.columns:
-        if str(c).startswith(LEVEL_PREFIX):
+        if str(c).startswith((LEVEL_PREFIX, WORST_PREFIX)):
             table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
+        elif str(c).startswith(PASS_PREFIX):
+            table[c] = table[c].map(_as_pass).astype("boolean")
+        elif c in META_COLUMNS:
+            table[c] = table[c].astype(object).where(table[c].notna(), "").astype(str)
     table["aliases"] = pd.to_numeric(table["aliases"], errors="coerce").astype("Int64")
     for c in ("file", "channel", "sha256", "sidecar_sha256", "settings", "status", "error", "top_orders",
               "alias_lines", "warnings", "spectrum_csv", "cuts_csv"):
         table[c] = table[c].astype(object).where(table[c].notna(), "").astype(str)
     return table.reset_index(drop=True)
+
+
+def _as_pass(value):
+    """A pass cell read back from Parquet or CSV: True, False or missing (not judged)."""
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, str) and value.strip().lower() in ("true", "false"):
+        return value.strip().lower() == "true"
+    return pd.NA
 
 
 def read_summary(out_dir) -> pd.DataFrame | None:

@@ -79,6 +79,9 @@ def cmd_alias(args) -> int:
     from workbench.sampling.folding import apparent_frequency, nyquist_zone
 
     rate = _positive(args.rate, "--rate")
+    from workbench.sampling.guards import warn_implausible_rate
+
+    warn_implausible_rate(rate, name="--rate")
     freqs = np.array(args.frequencies, dtype=float)
     if not np.all(np.isfinite(freqs)) or np.any(freqs < 0):
         bad = [f for f in args.frequencies if not (math.isfinite(f) and f >= 0)]
@@ -222,7 +225,8 @@ def _print_advice(machine, plan, advice):
     print(f"{machine.name}: {plan.speed.rpm_min:g}-{plan.speed.rpm_max:g} rpm, filter {plan.filter.describe()}")
     print(cand.to_string(index=False, float_format=lambda v: f"{v:.1f}"))
     rec = advice.recommended_rate_hz
-    print(f"\nrecommended rate: {rec:g} Hz" if rec is not None else "\nno clean rate found")
+    print(f"\nrecommended rate: {rec:g} Hz" if rec is not None else
+          "\nno rate recommended: none is both clean (no collision) and captures the highest order")
     rs = advice.resampling
     print(
         f"angle domain: {rs.samples_per_rev} samples/rev (max order {rs.max_order:g}), "

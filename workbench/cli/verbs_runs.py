@@ -89,8 +89,11 @@ def cmd_demo(args) -> int:
         "collisions": {f"{r:g}": _collision_records(t[t["kind"] == "collision"]) for r, t in tables.items()},
         "files": figures,
     }
+    limits = _judge_limits(analysis, plan) if analysis is not None else None
     if analysis is not None:
         result["run"] = {"file": str(run_path), **{k: v for k, v in analysis.to_dict().items() if k != "order_spectrum"}}
+        if limits is not None:
+            result["run"]["limits"] = [r.to_dict() for r in limits]
     if args.json:
         emit_json(result)
         return 0
@@ -102,6 +105,7 @@ def cmd_demo(args) -> int:
     if analysis is not None:
         print(f"\n=== recorded run {run_path.name} (made at {analysis.rate_hz:g} S/s) ===")
         _print_track(analysis, [])
+        _print_limits(limits)
     print(f"\noutputs written to {out.resolve()}:")
     for f in figures:
         print(f"  {f}")
@@ -138,6 +142,9 @@ def cmd_simulate(args) -> int:
     machine = read_machine(args.machine)
     plan = read_plan(args.plan)
     rate = _positive(args.rate, "--rate")
+    from workbench.sampling.guards import warn_implausible_rate
+
+    warn_implausible_rate(rate, lines=machine.lines(), top_rpm=plan.speed.rpm_max, name="--rate")
     out = Path(args.out)
     if out.suffix.lower() != ".wav":
         raise InputError(f"--out {args.out}: the simulated run is written as WAV; give a name ending in .wav")
@@ -198,11 +205,8 @@ def cmd_track(args) -> int:
     channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
     scaling = scaling_from_args(args)  # checked before the work
-    aa_filter = None
-    if getattr(args, "plan", None):
-        from workbench.sampling import read_plan
-
-        aa_filter = read_plan(args.plan).filter
+    plan = _read_limits_plan(getattr(args, "plan", None))   # its limits and its filter
+    aa_filter = None if plan is None else plan.filter
     if getattr(args, "correct_rolloff", False) and aa_filter is None:
         raise InputError("--correct-rolloff: give the acquisition's plan with --plan PLAN (its filter's "
                          "roll-off is what is taken out)")
@@ -230,7 +234,14 @@ def cmd_track(args) -> int:
         for a in multi.channels:
             files.extend(write_track_outputs(a, folders[a.channel], force=args.force,
                                              **display_options_from_args(args)))
+    from workbench.runs.tacho_checks import warn_tacho
+
+    warn_tacho(args.run, multi.channels[0], opts, plan=plan)
     result = multi.channels[0].to_dict() if len(multi) == 1 else multi.to_dict()
+    limits = None
+    if plan is not None:   # judged on every channel tracked
+        limits = [r for a in multi.channels for r in _judge_limits(a, plan)]
+        result["limits"] = [r.to_dict() for r in limits]
     if files:
         result["files"] = [str(f) for f in files]
     if args.json:
@@ -240,6 +251,7 @@ def cmd_track(args) -> int:
         _print_track(multi.channels[0], files)
     else:
         _print_track_channels(multi, files)
+    _print_limits(limits)
     return 0
 
 
@@ -260,6 +272,40 @@ def channel_folders(out: Path, names) -> dict:
             f = f"ch{i + 1}_{f}"
         folders[n] = out / f
     return folders
+
+
+def _read_limits_plan(path):
+    """The plan whose ``[[limit]]`` entries ``--plan`` asks to judge (None without it)."""
+    if path is None:
+        return None
+    from workbench.sampling import read_plan
+
+    return read_plan(path)
+
+
+def _judge_limits(analysis, plan):
+    """The plan's limits judged on the tracked run (None without a plan)."""
+    if plan is None:
+        return None
+    from workbench.runs.limits import evaluate_limits
+
+    if analysis.lines:
+        plan.check_against(analysis.lines)
+    return evaluate_limits(analysis, plan.limits, bands=plan.bands)
+
+
+def _print_limits(limits) -> None:
+    if limits is None:
+        return
+    from workbench.runs.limits import LIMITS_NOTE, limits_verdict
+
+    if not limits:
+        print("\nthe plan has no [[limit]] entries: nothing to judge")
+        return
+    print(f"\nacceptance limits: {limits_verdict(limits)}")
+    for r in limits:
+        print(f"  {r.describe()}")
+    print(LIMITS_NOTE)
 
 
 TRACK_FILES = (
@@ -464,7 +510,7 @@ def add_verbs(verb) -> None:
     p.add_argument("--seed", type=int, default=0, help="random seed (same seed, same bytes)")
     p.add_argument("--duration", type=float, metavar="S", help="seconds to simulate (default: the profile's duration)")
     p.add_argument("--noise-db", type=float, default=-60.0, metavar="DB", help="broadband noise, dB re 1 unit RMS")
-    p.add_argument("--resonance-hz", type=float, metavar="HZ", help="structural resonance, Hz (default 0.3 x rate)")
+    p.add_argument("--resonance-hz", type=float, metavar="HZ", help="structural resonance, Hz (default 700, the same at every rate)")
     p.add_argument("--pulses-per-rev", type=int, default=1, metavar="N", help="tacho tooth positions per rev")
     p.add_argument("--missing-pulses", type=int, default=0, metavar="M", help="missing teeth of the tacho wheel")
     p.add_argument("--tacho-rise-ms", type=float, metavar="MS",
@@ -482,8 +528,10 @@ def add_verbs(verb) -> None:
 
     add_display_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")
-    p.add_argument("--plan", metavar="PLAN", help="plan file of the acquisition: its anti-alias filter bounds the "
-                                                  "valid region of the results (default: Nyquist of the run's rate)")
+    p.add_argument("--plan", metavar="PLAN", help="plan file of the acquisition: its acceptance limits "
+                                                  "([[limit]]) are judged on the run, and its anti-alias filter "
+                                                  "bounds the valid region of the results (default: Nyquist of "
+                                                  "the run's rate)")
     p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
     p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder "

@@ -39,6 +39,7 @@ import warnings
 from collections.abc import Mapping
 from dataclasses import MISSING, fields
 
+from workbench.machine.filekind import wrong_file_hint
 from workbench.errors import FoldlineWarning, MachineFileError, where
 from workbench.machine.model import MODE_TYPES, SOURCE_TYPES, Machine, Shaft
 
@@ -217,11 +218,17 @@ def read_machine(path) -> Machine:
     except OSError as exc:
         raise MachineFileError(f"{source}: cannot read machine file: {exc.strerror}") from None
     except tomllib.TOMLDecodeError as exc:
-        raise MachineFileError(f"{source}: not valid TOML: {exc}") from None
+        hint = wrong_file_hint(source, "machine")
+        raise MachineFileError(f"{source}: {hint}" if hint else f"{source}: not valid TOML: {exc}") from None
     except UnicodeDecodeError as exc:
-        raise MachineFileError(
-            f"{source}: not UTF-8 text (byte {exc.start}); save the machine file as UTF-8"
+        hint = wrong_file_hint(source, "machine")
+        raise MachineFileError(f"{source}: {hint}" if hint else (
+            f"{source}: not UTF-8 text (byte {exc.start}); save the machine file as UTF-8")
         ) from None
+    if isinstance(d, Mapping):
+        hint = wrong_file_hint(source, "machine", tables=d.keys())
+        if hint:
+            raise MachineFileError(f"{source}: {hint}")
     return machine_from_dict(d, source=source)
 
 

@@ -21,9 +21,11 @@ def cmd_report(args) -> int:
     """Write one self-contained HTML report of a machine, a plan and optionally a run."""
     from workbench.cli.main import emit_json
     from workbench.report.document import write_report
+    from workbench.runs.metadata import parse_meta_options
 
     from workbench.cli.display_options import analysis_options_from_args
 
+    meta = parse_meta_options(getattr(args, "meta", None))
     opts = {**track_options_from_args(args), **analysis_options_from_args(args)}
     if args.run is None and opts:
         raise InputError(f"tracking options ({', '.join(option_name(k) for k in opts)}) "
@@ -35,7 +37,7 @@ def cmd_report(args) -> int:
 
     report = write_report(args.machine, args.plan, args.run, out=args.out, force=args.force,
                           track_options=opts, progress=(lambda t: _stderr(f"report: {t}")) if show else None,
-                          display=report_display_from_args(args))
+                          display=report_display_from_args(args), meta=meta)
     result = {"out": str(args.out), **report.to_dict()}
     if args.json:
         emit_json(result)
@@ -43,9 +45,15 @@ def cmd_report(args) -> int:
     print(f"report written to {args.out} ({result['bytes'] / 1e6:.1f} MB, sha256 {report.sha256[:12]}...)")
     print(f"sections: {', '.join(report.sections)}")
     rec = report.recommended_rate_hz
-    print(f"recommended rate: {rec:g} Hz" if rec is not None else "no clean rate found")
+    print(f"recommended rate: {rec:g} Hz" if rec is not None else
+          "no rate recommended: none is both clean (no collision) and captures the highest order")
     if report.aliases is not None:
         print(f"aliases identified in the run: {', '.join(report.aliases) or 'none'}")
+    if report.limits:
+        from workbench.runs.limits import LIMITS_NOTE, limits_verdict
+
+        print(f"acceptance limits: {limits_verdict(report.limits)}")
+        print(LIMITS_NOTE)
     return 0
 
 
@@ -71,6 +79,10 @@ def add_report_verb(verb) -> None:
     p.add_argument("run", metavar="RUN", nargs="?", help="recorded run to track and include")
     p.add_argument("--out", required=True, metavar="FILE.html", help="output HTML file")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    p.add_argument("--meta", action="append", metavar="KEY=VALUE",
+                   help="test metadata to add or override (repeatable): unit_under_test, "
+                        "serial_number, test_id, operator, date, or CHANNEL.position / "
+                        ".direction / .sensor_type")
     add_track_options(p)
     from workbench.cli.display_options import add_display_options
 

@@ -13,6 +13,14 @@ check); with a run, its tacho check, order spectrum and peaks, order map and ord
 the predicted lines, the identification of measured lines (aliases first), and the run-up views
 (Bode, polar, Campbell) with the critical speeds; the safety caution; and the provenance
 (foldline version, every input file with its SHA-256, the date and time in UTC).
+
+For a test lead's sign-off the page opens with the test metadata (unit under test, serial
+number, test id, operator, date, the sensors' positions, directions and types; from the run's
+sidecar and ``--meta``) and the verdict against the plan's acceptance limits (``[[limit]]``:
+all passed, or which failed and where), beside the note that the limits come from the user,
+the machine maker or the standard and that foldline only compares; the "Acceptance limits"
+section tabulates each limit and draws it on the level it judges; the page ends with a
+sign-off block (prepared by, checked by, date) left blank to fill in.
 """
 
 from __future__ import annotations
@@ -46,6 +54,7 @@ SAFETY_TEXT = (
 #: Section id -> heading, in page order (run sections appear only with a run).
 SECTION_TITLES = {
     "summary": "Job summary",
+    "limits": "Acceptance limits",
     "machine": "Machine",
     "plan": "Test plan",
     "recommendation": "Recommended rate",
@@ -65,6 +74,7 @@ SECTION_TITLES = {
     "unmatched": "Measured lines no prediction explains",
     "safety": "Safety",
     "provenance": "Provenance",
+    "signoff": "Sign-off",
 }
 
 _CHUNK = 1 << 20
@@ -136,6 +146,8 @@ class Report:
     aliases: tuple | None
     created_utc: str
     inputs: tuple = field(default=())
+    limits: tuple = field(default=())
+    metadata: object = None
 
     @property
     def collisions(self) -> int:
@@ -160,7 +172,22 @@ class Report:
             "aliases": None if self.aliases is None else list(self.aliases),
             "created_utc": self.created_utc,
             "inputs": [{"role": f.role, "name": f.name, "sha256": f.sha256} for f in self.inputs],
+            "limits": [r.to_dict() for r in self.limits],
+            "verdict": self.verdict,
+            "metadata": None if self.metadata is None else self.metadata.to_dict(),
         }
+
+    @property
+    def verdict(self) -> str:
+        """``"pass"``, ``"fail"``, ``"not judged"`` (a limit could not be judged, none failed)
+        or ``"no limits"``."""
+        if not self.limits:
+            return "no limits"
+        if any(r.passed is False for r in self.limits):
+            return "fail"
+        if any(r.passed is None for r in self.limits):
+            return "not judged"
+        return "pass"
 
 
 # --------------------------------------------------------------------------------------------
@@ -349,7 +376,7 @@ def _sub(sid, inner, sections):
 
 def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None,
                  created_utc=None, title=None, progress=None, criticals=None,
-                 display=None) -> Report:
+                 display=None, metadata=None, limits=None) -> Report:
     """Render the report of a machine under a plan, and of a tracked run when given.
 
     Parameters
@@ -376,6 +403,12 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
     display : mapping, optional
         How the run's results are shown: ``overlay`` (``"none"`` default, ``"matched"``,
         ``"all"``: predicted lines drawn over the maps and the order spectrum).
+    metadata : TestMetadata, optional
+        Test metadata shown in the header (unit under test, serial number, test id, operator,
+        date, sensors).
+    limits : sequence of LimitResult, optional
+        The plan's limits judged on the run; default: judged here on ``analysis`` with
+        :func:`workbench.runs.limits.evaluate_limits` when the plan has limits.
 
     Returns
     -------
@@ -409,6 +442,12 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
     parts: list[str] = []
     rec = advice.recommended_rate_hz
     rs = advice.resampling
+    if limits is None and analysis is not None and plan.limits:
+        from workbench.runs.limits import evaluate_limits
+
+        limits = [r for a in getattr(analysis, "channels", (analysis,))   # every channel
+                  for r in evaluate_limits(a, plan.limits, bands=plan.bands, lines=lines)]
+    limits = tuple(limits or ())
 
     # ---- summary -----------------------------------------------------------------------
     summary_items = [
@@ -424,8 +463,9 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
             f'<span class="verdict good">Recommended rate: {rec:g} S/s</span> '
             f"({coll_count.get(float(rec), 0)} collisions).")
     else:
-        summary_items.append('<span class="verdict bad">No clean rate found</span> among the '
-                             "candidates or the standard rates.")
+        summary_items.append('<span class="verdict bad">No rate recommended</span>: no candidate '
+                             "or standard rate is both clean (no collision) and captures the "
+                             "highest order.")
     worst_rates = [r for r in shown_rates if coll_count.get(r, 0) > 0]
     for r in worst_rates:
         summary_items.append(
@@ -460,6 +500,8 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         summary_items.append(f"Critical speeds in the run: {esc(found)}.")
     parts.append(_section("summary", "<ul>" + "".join(f"<li>{s}</li>" for s in summary_items)
                           + "</ul>", sections))
+    if plan.limits:
+        parts.append(_section("limits", _limits_html(plan, limits, analysis), sections))
 
     # ---- machine -----------------------------------------------------------------------
     say("machine and plan tables")
@@ -604,13 +646,15 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
                         Column("size", "bytes", str, numeric=True), Column("sha256", "SHA-256")),
                        css_class="inputs", caption="Input files", empty="no input files recorded")
     parts.append(_section("provenance", prov, sections))
+    parts.append(_section("signoff", _SIGNOFF_HTML, sections))
 
     heading = title or f"foldline report: {machine.name}"
     nav = "<nav><ol>" + "".join(
         f'<li><a href="#{esc(s)}">{esc(SECTION_TITLES[s])}</a></li>'
         for s in sections if s in _TOP_LEVEL) + "</ol></nav>"
     body = (f"<header><h1>{esc(heading)}</h1><p class=\"sub\">Made {esc(stamp)} by foldline "
-            f"{esc(__version__)}</p></header>\n{nav}\n<main>\n" + "\n".join(parts)
+            f"{esc(__version__)}</p>\n{_metadata_html(metadata, analysis)}\n"
+            f"{_verdict_html(plan, limits, analysis)}</header>\n{nav}\n<main>\n" + "\n".join(parts)
             + "\n</main>\n<footer>This file is self-contained: it loads nothing from a network. "
             "Tables sort on a header click.</footer>")
     return Report(
@@ -622,11 +666,113 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
         aliases=aliases,
         created_utc=stamp,
         inputs=tuple(inputs),
+        limits=limits,
+        metadata=metadata,
     )
 
 
-_TOP_LEVEL = {"summary", "machine", "plan", "recommendation", "collisions", "fold-maps",
-              "angle-settings", "run", "safety", "provenance"}
+_TOP_LEVEL = {"summary", "limits", "machine", "plan", "recommendation", "collisions", "fold-maps",
+              "angle-settings", "run", "safety", "provenance", "signoff"}
+
+#: The sign-off block that ends the report: left blank, to fill in on paper or in a PDF.
+_SIGNOFF_HTML = (
+    '<p>Filled in by the people who accept the test. Signing confirms the limits applied are '
+    "the agreed ones and the test was run as planned.</p>"
+    '<table class="signoff"><thead><tr><th>role</th><th>name</th><th>signature</th>'
+    "<th>date</th></tr></thead><tbody>"
+    + "".join(f'<tr><th scope="row">{role}</th><td class="blank"></td><td class="blank"></td>'
+              '<td class="blank"></td></tr>' for role in ("prepared by", "checked by", "approved by"))
+    + "</tbody></table>"
+)
+
+
+def _metadata_html(metadata, analysis) -> str:
+    """The test's identity at the top of the page: what, which serial, which test, who, when."""
+    from workbench.runs.metadata import META_KEYS, META_LABELS
+
+    meta = metadata
+    pairs = []
+    for key in META_KEYS:
+        value = getattr(meta, key, "") if meta is not None else ""
+        pairs.append((META_LABELS[key], value or "not given"))
+    html = key_value_html(pairs, css_class="test-metadata")
+    sensors = [] if meta is None else list(meta.sensors)
+    channel = None if analysis is None else str(analysis.channel)
+    if channel is not None and all(s.channel != channel for s in sensors):
+        sensors.insert(0, meta.sensor(channel) if meta is not None else None)
+    rows = [{"channel": s.channel if s is not None else channel,
+             "analysed": "yes" if (s is not None and s.channel == channel) or s is None else "",
+             "position": (s.position if s is not None else "") or "not given",
+             "direction": (s.direction if s is not None else "") or "not given",
+             "sensor_type": (s.sensor_type if s is not None else "") or "not given"}
+            for s in sensors]
+    if rows:
+        html += table_html(rows, (Column("channel", "channel"), Column("analysed", "analysed"),
+                                  Column("position", "sensor position"),
+                                  Column("direction", "direction"),
+                                  Column("sensor_type", "sensor type")),
+                           css_class="sensors", caption="Sensors")
+    return f'<div class="test-header">{html}</div>'
+
+
+def _verdict_html(plan, limits, analysis) -> str:
+    """The verdict against the acceptance limits, with who sets them, at the top of the page."""
+    from workbench.runs.limits import LIMITS_NOTE, limits_verdict
+
+    if not plan.limits:
+        text, cls = ("No acceptance limits in the plan: the report gives no pass or fail "
+                     "(add [[limit]] entries to the plan file)."), "none"
+    elif analysis is None:
+        text, cls = (f"{len(plan.limits)} acceptance limit(s) in the plan, not judged: the report "
+                     "has no recorded run."), "none"
+    else:
+        text = limits_verdict(limits)
+        cls = ("bad" if any(r.passed is False for r in limits)
+               else "none" if any(r.passed is None for r in limits) else "good")
+    return (f'<div id="verdict" class="verdict-box {cls}"><p class="verdict {cls}">'
+            f"Verdict: {esc(text)}</p><p class=\"note\">{esc(LIMITS_NOTE)}</p></div>")
+
+
+_LIMIT_COLUMNS = (
+    Column("name", "limit"),
+    Column("what", "judges"),
+    Column("max", "max", general(4), numeric=True),
+    Column("worst", "worst level", general(4), numeric=True),
+    Column("rpm_at_worst", "at (rpm)", fixed(0), numeric=True),
+    Column("verdict", "verdict"),
+    Column("note", "note"),
+)
+
+
+def _limits_html(plan, limits, analysis) -> str:
+    from workbench.runs.limits import LIMITS_NOTE
+
+    if analysis is None:
+        rows = [{"name": lim.name, "what": lim.describe(), "max": lim.max, "worst": None,
+                 "rpm_at_worst": None, "verdict": "not judged", "note": "no recorded run"}
+                for lim in plan.limits]
+        return (f"<p>{esc(LIMITS_NOTE)}</p>" + table_html(rows, _LIMIT_COLUMNS, css_class="limits",
+                                                          caption="Acceptance limits of the plan"))
+    from workbench.plots.limits import plot_limit_checks
+
+    unit = analysis.unit or ""
+    rows = [{"name": r.name, "what": r.limit.describe() + (f" ({unit})" if unit else ""),
+             "max": r.max, "worst": r.worst, "rpm_at_worst": r.rpm_at_worst,
+             "verdict": "not judged" if r.passed is None else ("pass" if r.passed else "FAIL"),
+             "note": r.note} for r in limits]
+    html = (f"<p>Each limit is judged on channel <b>{esc(analysis.channel)}</b>: the highest level "
+            "inside the limit's speed range and the speed where it occurred. A band's level is the "
+            "energy sum of the order map's bins inside the band (the batch summary's band level); "
+            "an order's level is its order cut over the limit's bandwidth; both are peak "
+            "amplitudes (a sinusoid of amplitude A reads A), divided by \u221a2 for a limit given "
+            f"as RMS. {esc(LIMITS_NOTE)}</p>")
+    html += table_html(rows, _LIMIT_COLUMNS, css_class="limits", caption="Acceptance limits")
+    fig = plot_limit_checks(limits)
+    html += figure_svg(fig, key="limits", caption="Each limit drawn on the order cut or band "
+                       "level it judges (dashed: the maximum over the limit's speed range; dot: "
+                       "the worst level).", alt="levels against speed with the acceptance limits")
+    _close(fig)
+    return html
 
 
 _CROSSING_COLUMNS = (
@@ -1024,7 +1170,7 @@ def _run_criticals(run_path, machine, settings):
 
 
 def write_report(machine_path, plan_path, run_path=None, *, out, force=False, track_options=None,
-                 analysis=None, progress=None, display=None) -> Report:
+                 analysis=None, progress=None, display=None, meta=()) -> Report:
     """Read the inputs, track the run (when given), build the report and write it to ``out``.
 
     Parameters
@@ -1048,6 +1194,9 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         Called with a short text as each part is built.
     display : mapping, optional
         How the run's results are shown (see :func:`build_report`).
+    meta : sequence of (str, str)
+        Test metadata added to or overriding the run sidecar's (``("operator", "A. Test")``,
+        ``("vibration.position", "motor DE")``); see :mod:`workbench.runs.metadata`.
 
     Returns
     -------
@@ -1070,6 +1219,16 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
     plan = read_plan(plan_path)
     plan.check_against(machine.lines())
     inputs = [InputFile.of("machine", machine_path), InputFile.of("plan", plan_path)]
+    from workbench.runs import TestMetadata, run_metadata
+
+    metadata = run_metadata(run_path) if run_path is not None else TestMetadata()
+    channels = ()
+    if run_path is not None:
+        from workbench.runs import read_sidecar, sidecar_path as _side
+
+        if _side(run_path).is_file():
+            channels = tuple(c.name for c in read_sidecar(_side(run_path)).channels)
+    metadata = metadata.with_overrides(meta, channels=channels)
     settings = None
     crit = None
     if analysis is not None and run_path is None:
@@ -1097,11 +1256,15 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
                 progress(f"tracking {run_path}")
             multi = track_channels(run_path, machine=machine, **settings)
             analysis = multi.channels[0] if len(multi) == 1 else multi
+            from workbench.runs.tacho_checks import warn_tacho
+
+            warn_tacho(run_path, multi.channels[0], settings, plan=plan)
         if progress:
             progress("order tracks with phase and critical speeds")
         crit = _run_criticals(run_path, machine, settings)
     report = build_report(machine, plan, analysis=analysis, inputs=inputs, track_settings=settings,
-                          progress=progress, criticals=crit, display=display)
+                          progress=progress, criticals=crit, display=display,
+                          metadata=metadata)
     with atomic_output(out, force=force) as tmp:
         Path(tmp).write_text(report.html, encoding="utf-8")
     return report

@@ -221,6 +221,15 @@ figcaption { color: var(--muted); font-size: .86rem; }
 .verdict { font-weight: 600; }
 .bad { color: var(--bad); }
 .good { color: var(--good); }
+.verdict-box { border: 2px solid var(--rule); border-left-width: 8px; padding: .5rem 1rem;
+               margin: .8rem 0; }
+.verdict-box.good { border-color: var(--good); }
+.verdict-box.bad { border-color: var(--bad); }
+.verdict-box p { margin: .2rem 0; }
+.verdict-box p.note { color: var(--muted); font-size: .86rem; }
+.test-header dl.kv { margin-bottom: .4rem; }
+table.signoff { width: 100%; margin-top: .6rem; }
+table.signoff td.blank { height: 2.6rem; min-width: 10rem; }
 .safety { background: var(--warn-bg); border-left: 4px solid var(--warn-rule); padding: .6rem 1rem; }
 p.empty { color: var(--muted); font-style: italic; }
 details > summary { cursor: pointer; font-weight: 600; margin: .4rem 0; }

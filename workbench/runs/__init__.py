@@ -14,8 +14,9 @@ from workbench.runs.files import (RUN_EXTENSIONS, check_finite, read_run, sideca
                                   write_run)
 from workbench.runs.output import atomic_output, check_writable
 from workbench.runs.run import Channel, LogEntry, Run, full_scale
-from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, sidecar_from_dict,
-                                    sidecar_path, write_sidecar)
+from workbench.runs.metadata import SensorInfo, TestMetadata
+from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, run_metadata,
+                                    sidecar_from_dict, sidecar_path, write_sidecar)
 from workbench.runs.simulate import (TACHO_HIGH_V, VIBRATION_UNIT, resonance_gain, simulate_run,
                                      simulate_to_wav)
 from workbench.runs.wav import SAMPLE_FORMATS, WavInfo, WavWriter, read_wav, read_wav_info
@@ -38,6 +39,9 @@ __all__ = [
     "sidecar_from_dict",
     "sidecar_path",
     "resolve_inside",
+    "run_metadata",
+    "TestMetadata",
+    "SensorInfo",
     "SAMPLE_FORMATS",
     "WavInfo",
     "WavWriter",

@@ -715,7 +715,7 @@ def track_channels(
                          f"{MIN_SAMPLES_PER_REV} to {MAX_SAMPLES_PER_REV}")
     rpb = DEFAULT_REVS_PER_BLOCK if revs_per_block is None else float(revs_per_block)
     if not math.isfinite(rpb) or rpb <= 0:
-        raise InputError(f"revs_per_block {revs_per_block!r}: must be a positive number of revolutions")
+        raise InputError(f"--revs-per-block {revs_per_block!r}: must be a positive number of revolutions")
     top = spr / 2.56 if max_order is None else float(max_order)
     if envelope_hz is not None:
         lo, hi = (float(v) for v in envelope_hz)

@@ -454,8 +454,11 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
     path = Path(path)
     ext = path.suffix.lower()
     if ext not in RUN_EXTENSIONS:
-        raise RunFileError(f"{path}: extension {ext or '(none)'!r} is not a run file format; "
-                           f"allowed: {', '.join(RUN_EXTENSIONS)}")
+        from workbench.machine.filekind import wrong_file_hint
+
+        hint = wrong_file_hint(path, "run") if path.is_file() else ""
+        raise RunFileError(f"{path}: " + (hint or f"extension {ext or '(none)'!r} is not a run "
+                                          f"file format; allowed: {', '.join(RUN_EXTENSIONS)}"))
     if path.is_dir():
         raise RunFileError(f"{path}: is a folder; give a run file ({', '.join(RUN_EXTENSIONS)})")
     if not path.is_file():

@@ -57,8 +57,8 @@ def check_writable(path: str | os.PathLike, *, force: bool = False) -> Path:
     if not folder.is_dir():
         raise InputError(f"{path}: output folder {folder} does not exist; create it first")
     if path.exists() and not force:
-        raise OutputExistsError(f"{path}: exists already; pass --force (force=True) to overwrite "
-                                "it, or choose another name")
+        raise OutputExistsError(f"{path}: exists already; pass --force to replace it, or "
+                                "choose another name")
     return path
 
 
@@ -97,7 +97,7 @@ def atomic_output(path: str | os.PathLike, *, force: bool = False) -> Iterator[P
         yield tmp
         if path.exists() and not force:
             raise OutputExistsError(f"{path}: was created by someone else while writing; pass "
-                                    "--force (force=True) to overwrite it, or choose another name")
+                                    "--force to replace it, or choose another name")
         os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:

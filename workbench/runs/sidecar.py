@@ -10,8 +10,14 @@
       "pulses_per_rev": 60,
       "missing_pulses": 2,
       "machine_file": "gearbox.toml",
-      "notes": "free-form: any JSON value"
+      "notes": "free-form: any JSON value",
+      "unit_under_test": "gearbox GB-7", "serial_number": "GB7-0042", "test_id": "FAT-12",
+      "operator": "A. Test", "date": "2026-11-30"
     }
+
+Test metadata (:mod:`workbench.runs.metadata`): ``unit_under_test``, ``serial_number``,
+``test_id``, ``operator``, ``date`` (ISO 8601) at the top level, and per channel the sensor's
+``position``, ``direction`` and ``sensor_type``; all optional text.
 
 Every key is optional.  ``tacho_channel`` is a channel name or a 1-based index.
 ``sensitivity`` is in raw units per physical unit (see :mod:`workbench.runs.run`).
@@ -32,14 +38,16 @@ from pathlib import Path, PurePosixPath, PureWindowsPath
 from typing import Any
 
 from workbench.errors import InputError, RunFileError, where
+from workbench.runs.metadata import META_KEYS, SENSOR_KEYS, SensorInfo, TestMetadata
 from workbench.runs.output import atomic_output
 from workbench.runs.run import Channel
 
-__all__ = ["Sidecar", "read_sidecar", "write_sidecar", "sidecar_path", "resolve_inside"]
+__all__ = ["Sidecar", "read_sidecar", "write_sidecar", "sidecar_path", "resolve_inside",
+           "run_metadata"]
 
 _KEYS = ("rate_hz", "channels", "tacho_channel", "pulses_per_rev", "missing_pulses",
-         "machine_file", "notes")
-_CHANNEL_KEYS = ("name", "unit", "sensitivity")
+         "machine_file", "notes") + META_KEYS
+_CHANNEL_KEYS = ("name", "unit", "sensitivity") + SENSOR_KEYS
 
 
 def sidecar_path(run_path: str | os.PathLike) -> Path:
@@ -133,6 +141,9 @@ class Sidecar:
         Free-form notes (the simulator records its settings here).
     source : str, optional
         The sidecar file, when read from one.
+    metadata : TestMetadata
+        Unit under test, serial number, test id, operator, date, and each channel's sensor
+        position, direction and type (all optional).
     """
 
     channels: tuple[Channel, ...] = ()
@@ -143,6 +154,7 @@ class Sidecar:
     machine_file: str | None = None
     notes: Any = None
     source: str | None = None
+    metadata: TestMetadata = TestMetadata()
 
     def __post_init__(self) -> None:
         loc = self.source or "<sidecar>"
@@ -198,6 +210,15 @@ class Sidecar:
             d["machine_file"] = self.machine_file
         if self.notes is not None:
             d["notes"] = self.notes
+        meta = self.metadata
+        for key in META_KEYS:
+            if getattr(meta, key):
+                d[key] = getattr(meta, key)
+        for entry in d.get("channels", ()):
+            sensor = meta.sensor(entry["name"])
+            for key in SENSOR_KEYS:
+                if getattr(sensor, key):
+                    entry[key] = getattr(sensor, key)
         return d
 
 
@@ -234,6 +255,32 @@ def _channel(entry: Any, i: int, loc: str) -> Channel:
     return Channel(name, unit, float(sens))
 
 
+def _metadata(d: dict, chans: list, loc: str) -> TestMetadata:
+    """The test metadata of a sidecar object (top-level keys and channel sensor keys)."""
+    try:
+        sensors = []
+        for i, entry in enumerate(chans):
+            cloc = where(loc, f"channels[{i + 1}]")
+            for key in SENSOR_KEYS:
+                if key in entry and not isinstance(entry[key], str):
+                    raise InputError(f"{where(cloc, None, key)}: {entry[key]!r} is not valid; "
+                                     "allowed: a text in quotes")
+            sensors.append(SensorInfo(entry["name"], **{k: entry[k] for k in SENSOR_KEYS
+                                                        if k in entry}))
+        for key in META_KEYS:
+            if key in d and not isinstance(d[key], str):
+                raise InputError(f"{where(loc, None, key)}: {d[key]!r} is not valid; allowed: "
+                                 + ("an ISO 8601 date in quotes, e.g. \"2026-11-30\""
+                                    if key == "date" else "a text in quotes"))
+        if "date" in d:
+            from workbench.runs.metadata import check_date
+
+            check_date(d["date"], where(loc, None, "date"))
+        return TestMetadata(**{k: d[k] for k in META_KEYS if k in d}, sensors=tuple(sensors))
+    except InputError as exc:
+        raise RunFileError(str(exc)) from None
+
+
 def sidecar_from_dict(d: Any, source: str = "<dict>") -> Sidecar:
     """Validate a sidecar object (as parsed from JSON).
 
@@ -264,6 +311,7 @@ def sidecar_from_dict(d: Any, source: str = "<dict>") -> Sidecar:
         raise RunFileError(f"{where(source, None, 'channels')}: {chans!r} is not valid; allowed: "
                            "a list of {\"name\", \"unit\", \"sensitivity\"} objects")
     channels = tuple(_channel(c, i, source) for i, c in enumerate(chans))
+    metadata = _metadata(d, chans, source)
     machine = d.get("machine_file")
     if machine is not None and source != "<dict>":
         resolve_inside(Path(source).parent, machine, where(source, None, "machine_file"))
@@ -272,7 +320,8 @@ def sidecar_from_dict(d: Any, source: str = "<dict>") -> Sidecar:
                        tacho_channel=d.get("tacho_channel"),
                        pulses_per_rev=d.get("pulses_per_rev", 1),
                        missing_pulses=d.get("missing_pulses", 0), machine_file=machine,
-                       notes=d.get("notes"), source=None if source == "<dict>" else source)
+                       notes=d.get("notes"), source=None if source == "<dict>" else source,
+                       metadata=metadata)
     except InputError as exc:  # from Channel; re-raised as a file error
         raise RunFileError(f"{source}: {exc}") from exc
 
@@ -344,3 +393,17 @@ def write_sidecar(sidecar: Sidecar, path: str | os.PathLike, *, force: bool = Fa
     with atomic_output(path, force=force) as tmp:
         tmp.write_text(text, encoding="utf-8")
     return path
+
+
+def run_metadata(run_path: str | os.PathLike) -> TestMetadata:
+    """The test metadata in the sidecar of run file ``run_path`` (empty without a sidecar).
+
+    Raises
+    ------
+    RunFileError
+        The sidecar exists but is not valid.
+    """
+    side = sidecar_path(run_path)
+    if not side.is_file():
+        return TestMetadata()
+    return read_sidecar(side).metadata

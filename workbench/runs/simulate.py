@@ -8,7 +8,10 @@ The model follows the hardware chain, line by line:
    (:meth:`SpeedProfile.shaft_angle_rev`); a fixed line's is ``2 pi hz t + phi``.  The start
    phases ``phi`` are drawn uniformly from the seed.
 2. **Structure.**  The amplitude is multiplied by :func:`resonance_gain` at the line's *true*
-   frequency (one structural resonance on top of a flat transmission path).  A machine with
+   frequency (one structural resonance on top of a flat transmission path).  The resonance is
+   a property of the structure, never of the sample rate: ``resonance_hz`` when given, else
+   :data:`DEFAULT_RESONANCE_HZ`, so runs simulated at two candidate rates show the same
+   structure and their band levels compare like with like.  A machine with
    ``[[resonance]]`` entries is shaped by them instead of the default resonance (an explicit
    ``resonance_hz`` still applies): each line is multiplied by the complex gain
    :func:`mode_gain` at its true frequency, ``G = 1 + sum_i (Q_i - 1) 2 zeta_i r_i H(r_i)``,
@@ -59,13 +62,19 @@ from workbench.runs.sidecar import Sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter
 
 __all__ = ["resonance_gain", "mode_gain", "unbalance_gain", "simulate_run", "simulate_to_wav",
-           "VIBRATION_UNIT", "TACHO_HIGH_V"]
+           "VIBRATION_UNIT", "TACHO_HIGH_V", "DEFAULT_RESONANCE_HZ"]
 
 #: Unit of the simulated vibration channel (levels are dB re 1 m/s^2 peak).
 VIBRATION_UNIT = "m/s^2"
 #: High level of the simulated tacho, in V.
 TACHO_HIGH_V = 5.0
 _ENVELOPE_S = 1e-3
+#: Structural resonance of the simulated machine when none is given, Hz.  Fixed (not a
+#: fraction of the rate) so that simulations at different rates model the same structure.
+#: Housing and bearing-pedestal modes of gearboxes, motors and pumps commonly lie between a
+#: few hundred Hz and a few kHz (common practice, no source); 700 Hz lies inside the usable band
+#: of every standard rate from 2560 S/s up.
+DEFAULT_RESONANCE_HZ = 700.0
 
 
 def resonance_gain(f_hz, resonance_hz: float, q: float, gain_db: float) -> np.ndarray:
@@ -241,7 +250,7 @@ def _settings(plan: Any, rate_hz: float, seed: int, duration_s: float | None, no
         raise InputError(f"tacho_channel {tacho_channel!r} is not valid; allowed: True or False")
     return _Settings(rate, n, max(1, int(round(chunk * rate))), int(seed),
                      0.0 if noise == -math.inf else 10.0 ** (noise / 20.0),
-                     0.3 * rate if fn is None else fn, q, gain, int(pulses_per_rev),
+                     DEFAULT_RESONANCE_HZ if fn is None else fn, q, gain, int(pulses_per_rev),
                      int(missing_pulses), tacho_channel, rise)
 
 
@@ -362,7 +371,7 @@ def _generate(machine: Any, plan: Any, s: _Settings) -> Iterator[np.ndarray]:
 
 def _machine_modes(machine: Any, s: _Settings, resonance_hz) -> _Settings:
     """Without an explicit ``resonance_hz``, a machine's [[resonance]] entries replace the
-    default structural resonance (0.3 x rate)."""
+    default structural resonance (DEFAULT_RESONANCE_HZ)."""
     if resonance_hz is None and tuple(getattr(machine, "resonances", ())):
         from dataclasses import replace
 
@@ -447,9 +456,9 @@ def simulate_run(machine: Any, plan: Any, rate_hz: float, *, seed: int = 0,
     noise_db : float, optional
         Broadband noise RMS in dB re 1 m/s^2; ``-inf`` for none.  Default -60.
     resonance_hz : float, optional
-        Structural resonance in Hz; default ``0.3 * rate_hz`` (inside the usable band, so its
-        effect shows; give a fixed value when comparing rates).  For a machine with
-        ``[[resonance]]`` entries the default is none: its own resonances shape the lines.
+        Structural resonance in Hz; default :data:`DEFAULT_RESONANCE_HZ` (700 Hz), the same
+        at every rate.  For a machine with ``[[resonance]]`` entries the default is none: its
+        own resonances shape the lines.
     resonance_q : float, optional
         Quality factor of the resonance (bandwidth ``resonance_hz / Q``).  Default 8.
     resonance_gain_db : float, optional

@@ -294,7 +294,11 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
     rows, tables, notes = [], {}, []
 
     exact = plan.filter.kind in MONOTONE_FILTERS
-    grid = None if exact else fold_map(lines, plan, float(rates[0]), n_speeds=n_speeds)
+    grid = None
+    if not exact:
+        with warnings.catch_warnings():  # each candidate's rate is judged (and warned) below
+            warnings.simplefilter("ignore", FoldlineWarning)
+            grid = fold_map(lines, plan, float(rates[0]), n_speeds=n_speeds)
 
     def judge(rate):
         if exact:
@@ -313,7 +317,13 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
         captures = plan.filter.usable_edge_hz(rate) >= top_hz
         return table, coll, worst, captures
 
+    from workbench.sampling.guards import NO_FILTER_NOTE, warn_implausible_rate
+
+    if plan.filter.kind == "none":
+        notes.append(NO_FILTER_NOTE)
     for rate in sorted(float(r) for r in rates):
+        warn_implausible_rate(rate, lines=lines, top_rpm=settings.top_speed_rpm,
+                              name="candidate rate")
         table, coll, worst, captures = judge(rate)
         tables[rate] = table
         rows.append(
@@ -351,15 +361,18 @@ def advise(machine, plan, *, rates_hz=None, n_speeds=1000) -> Advice:
             if len(coll) == 0 and captures:
                 recommended = rate
                 tables[rate] = table
-                notes.append(f"no candidate rate is clean; {rate:g} Hz (a standard rate, not among the candidates) is")
+                notes.append(f"no candidate rate is both clean and captures order {settings.max_order:g}; "
+                             f"{rate:g} Hz (a standard rate, not among the candidates) is")
                 warnings.warn(
-                    f"no candidate rate is clean; recommending {rate:g} Hz, which is not a plan candidate",
+                    f"no candidate rate is both clean and captures order {settings.max_order:g}; "
+                    f"recommending {rate:g} Hz, which is not a plan candidate",
                     FoldlineWarning,
                     stacklevel=2,
                 )
                 break
         else:
-            notes.append("no candidate or standard rate is clean: change the filter, the bands or the threshold")
+            notes.append("no candidate or standard rate is both clean (no collision) and captures "
+                         f"order {settings.max_order:g}: change the filter, the bands or the threshold")
     crossings = _crossings(machine, lines, plan, notes)
     return Advice(
         candidates=cand,

@@ -41,7 +41,7 @@ import numpy as np
 
 from workbench.errors import InputError
 from workbench.sampling._checks import (FieldError, freq_array, one_of, positive_int,
-                                        rate_array, real, real_vector, warn)
+                                        rate_array, real, real_vector)
 
 __all__ = ["FILTER_KINDS", "ANALOG_KINDS", "TABLE_UNITS", "MAX_ANALOG_ORDER", "AntiAliasFilter"]
 
@@ -181,10 +181,13 @@ class AntiAliasFilter:
                                  "(a fraction of the sample rate, e.g. 0.4)")
             cutoff = real(_OWNER, "cutoff", self.cutoff, low=0.0, high=1.0, low_open=True,
                           high_open=True)
-            if cutoff > 0.5:
-                warn(f"{_OWNER}: cutoff {cutoff:g} x rate lies above Nyquist (0.5 x rate); "
-                     "everything between Nyquist and the cutoff folds unattenuated",
-                     stacklevel=3)
+            if cutoff >= 0.5:
+                # An anti-alias filter passing Nyquist lets everything between Nyquist and
+                # its cutoff fold unattenuated: it protects nothing (common practice, no
+                # source: the cutoff sits well below Nyquist, about 0.4 x rate).
+                raise FieldError(_OWNER, "cutoff", f"{cutoff:g} x rate lies at or above Nyquist "
+                                 "(0.5 x rate), where the filter protects nothing; give a cutoff "
+                                 "below 0.5 (about 0.4 is usual), or filter \"none\" for no filter")
             self._set("cutoff", cutoff)
         elif self.cutoff is not None:
             raise FieldError(_OWNER, "cutoff", f"is not used by filter kind {kind!r}; "

@@ -202,6 +202,10 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true
         lines = lines.lines()
     lines = tuple(lines)
     rate = _check_rate(rate_hz)
+    if true_hz is None:  # the advisor, which passes true_hz, warns once per candidate itself
+        from workbench.sampling.guards import warn_implausible_rate
+
+        warn_implausible_rate(rate, lines=lines, top_rpm=plan.speed.rpm_max)
     if rpm is None:
         if int(n_speeds) < 2:
             raise InputError(f"n_speeds = {n_speeds!r}: need at least 2 speeds on the grid")

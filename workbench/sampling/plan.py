@@ -36,6 +36,18 @@ Plan file (TOML)
     max_order = 50
     order_resolution = 0.05
 
+    [[limit]]                   # acceptance limits, from the user, maker or standard
+    name = "outer race band"
+    band = "outer race"         # the level of a [[band]] of this plan ...
+    max = 2.0                   # ... may not exceed this, in the channel's unit (peak)
+    [[limit]]
+    name = "mesh order"
+    order = 29                  # or one order, summed over a band of
+    bandwidth = 0.5             # this many orders (total width)
+    max = 0.5
+    amplitude = "rms"           # max is RMS (default "peak")
+    rpm = [600, 1800]           # only judged between these speeds (default: whole run)
+
 ``threshold_db``: a folded line collides with a band when its residual -- its ``level_db``
 minus the filter's attenuation at its true frequency -- is above this value.  With the default
 -60 dB a line at its 0 dB reference level needs more than 60 dB of attenuation to be harmless.
@@ -64,12 +76,13 @@ from pathlib import Path
 import numpy as np
 
 from workbench.errors import InputError, OutputExistsError, PlanFileError, where
+from workbench.machine.filekind import wrong_file_hint
 from workbench.sampling._checks import FieldError, is_number, real, real_vector, show
 from workbench.sampling._tables import read_numeric_csv
 from workbench.sampling.filters import ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
 
-__all__ = ["Band", "Plan", "DEFAULT_THRESHOLD_DB", "read_plan", "plan_from_dict",
+__all__ = ["Band", "Limit", "LIMIT_AMPLITUDES", "Plan", "DEFAULT_THRESHOLD_DB", "read_plan", "plan_from_dict",
            "plan_to_dict", "write_plan"]
 
 DEFAULT_THRESHOLD_DB = -60.0
@@ -219,6 +232,121 @@ def _find_line(lines, name):
 
 
 # ------------------------------------------------------------------------------------------
+# Limit
+# ------------------------------------------------------------------------------------------
+#: How a limit's ``max`` is expressed: peak amplitude (default) or RMS (peak / sqrt 2).
+LIMIT_AMPLITUDES = ("peak", "rms")
+
+
+@dataclass(frozen=True)
+class Limit:
+    """An acceptance limit: the highest level a band or an order may reach during the run.
+
+    Limits come from the user, the machine maker or the standard that applies; foldline
+    compares the measured level with them, it does not set acceptance criteria.
+
+    Parameters
+    ----------
+    name : str
+        Unique name within the plan.
+    max : float
+        Highest allowed level, > 0, in the vibration channel's unit (peak amplitude unless
+        `amplitude` is ``"rms"``).
+    band : str, optional
+        Name of a ``[[band]]`` of the plan; its level is the band level of
+        :mod:`workbench.runs.levels` (energy sum of the order map's bins inside the band).
+    order : float, optional
+        An order of the reference shaft, > 0; its level is the order cut over `bandwidth`.
+    bandwidth : float, optional
+        With `order` only (and required there): total width of the order cut, orders, > 0.
+    amplitude : str
+        ``"peak"`` (default) or ``"rms"``: how `max` is expressed.  A sinusoid of peak
+        amplitude A has RMS A / sqrt(2).
+    rpm : (float, float), optional
+        Speed range, rpm, ``0 <= lo < hi``, where the limit applies; default the whole run.
+
+    Exactly one of `band` and `order` is given.
+    """
+
+    name: str
+    max: float
+    band: str | None = None
+    order: float | None = None
+    bandwidth: float | None = None
+    amplitude: str = "peak"
+    rpm: tuple[float, float] | None = None
+
+    def __post_init__(self):
+        owner = "Limit"
+        if not isinstance(self.name, str) or not self.name.strip():
+            raise FieldError(owner, "name", f"must be a non-empty text, got {show(self.name)}")
+        owner = f"Limit {self.name!r}"
+        object.__setattr__(self, "max", real(owner, "max", self.max, low=0.0, low_open=True))
+        if (self.band is None) == (self.order is None):
+            got = "both" if self.band is not None else "neither"
+            raise FieldError(owner, "band/order", "give exactly one of band = BAND NAME or "
+                             f"order = K (with bandwidth in orders); got {got}")
+        if self.band is not None:
+            if not isinstance(self.band, str) or not self.band.strip():
+                raise FieldError(owner, "band", f"must be the name of a [[band]] of the plan, "
+                                 f"got {show(self.band)}")
+            if self.bandwidth is not None:
+                raise FieldError(owner, "bandwidth", "is only used with order, not with band "
+                                 "(the band gives the width; remove it)")
+        else:
+            object.__setattr__(self, "order", real(owner, "order", self.order, low=0.0,
+                                                   low_open=True))
+            if self.bandwidth is None:
+                raise FieldError(owner, "bandwidth", "is required with order: the total width "
+                                 "of the order cut in orders, e.g. 0.5")
+            object.__setattr__(self, "bandwidth", real(owner, "bandwidth", self.bandwidth,
+                                                       low=0.0, low_open=True))
+        if self.amplitude not in LIMIT_AMPLITUDES:
+            raise FieldError(owner, "amplitude", f"must be one of {', '.join(LIMIT_AMPLITUDES)};"
+                             f" got {show(self.amplitude)}{_close(self.amplitude, LIMIT_AMPLITUDES)}")
+        if self.rpm is not None:
+            limits = real_vector(owner, "rpm", self.rpm, min_len=2)
+            if len(limits) != 2:
+                raise FieldError(owner, "rpm", f"must be two speeds [lo, hi] in rpm, got "
+                                 f"{len(limits)} numbers")
+            lo, hi = limits
+            if lo < 0 or not lo < hi:
+                raise FieldError(owner, "rpm", f"must satisfy 0 <= lo < hi (rpm), got "
+                                 f"[{lo:g}, {hi:g}]")
+            object.__setattr__(self, "rpm", limits)
+
+    @property
+    def kind(self) -> str:
+        """``"band"`` or ``"order"``: what the limit judges."""
+        return "band" if self.band is not None else "order"
+
+    def describe(self) -> str:
+        """One line: what is judged, against what, where (for reports and tables)."""
+        what = (f"band {self.band!r}" if self.band is not None
+                else f"order {self.order:g} (+-{self.bandwidth / 2:g})")
+        where_ = ("whole run" if self.rpm is None
+                  else f"{self.rpm[0]:g} to {self.rpm[1]:g} rpm")
+        return f"{what} <= {self.max:g} {self.amplitude}, {where_}"
+
+
+def _named_entries(owner, field_, items, cls, word) -> tuple:
+    """``items`` as a tuple of ``cls`` objects with unique names (FieldError otherwise)."""
+    if isinstance(items, (str, bytes, cls)):
+        raise FieldError(owner, field_, f"must be a sequence of {cls.__name__}")
+    items = tuple(items)
+    seen = set()
+    for item in items:
+        if not isinstance(item, cls):
+            raise FieldError(owner, field_, f"must hold {cls.__name__} objects, got "
+                             f"{type(item).__name__}")
+        if item.name in seen:
+            raise FieldError(owner, field_, f"{word} name {item.name!r} is used twice; "
+                             "names must be unique")
+        seen.add(item.name)
+    return items
+
+
+# ------------------------------------------------------------------------------------------
 # Plan
 # ------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
@@ -244,6 +372,8 @@ class Plan:
         Wanted order resolution, positive; None lets the advisor choose.
     source : str
         Where the plan came from (file name or ``"<dict>"``), for messages; not compared.
+    limits : tuple of Limit
+        Acceptance limits (unique names; a band limit names one of `bands`); may be empty.
     """
 
     speed: SpeedProfile
@@ -254,6 +384,7 @@ class Plan:
     max_order: float | None = None
     order_resolution: float | None = None
     source: str = field(default="<dict>", compare=False)
+    limits: tuple[Limit, ...] = ()
 
     def __post_init__(self):
         owner = "Plan"
@@ -273,18 +404,8 @@ class Plan:
             raise FieldError(owner, "rates_hz", f"lists {twice:g} more than once")
         object.__setattr__(self, "rates_hz", rates)
         object.__setattr__(self, "threshold_db", real(owner, "threshold_db", self.threshold_db))
-        if isinstance(self.bands, (str, bytes, Band)):
-            raise FieldError(owner, "bands", "must be a sequence of Band")
-        bands = tuple(self.bands)
-        seen = set()
-        for band in bands:
-            if not isinstance(band, Band):
-                raise FieldError(owner, "bands", f"must hold Band objects, got "
-                                 f"{type(band).__name__}")
-            if band.name in seen:
-                raise FieldError(owner, "bands", f"band name {band.name!r} is used twice; "
-                                 "names must be unique")
-            seen.add(band.name)
+        bands = _named_entries(owner, "bands", self.bands, Band, "band")
+        seen = {band.name for band in bands}
         object.__setattr__(self, "bands", bands)
         for name in ("max_order", "order_resolution"):
             value = getattr(self, name)
@@ -293,6 +414,12 @@ class Plan:
                                                     low_open=True))
         if not isinstance(self.source, str):
             raise FieldError(owner, "source", f"must be a text, got {show(self.source)}")
+        limits = _named_entries(owner, "limits", self.limits, Limit, "limit")
+        for lim in limits:
+            if lim.band is not None and lim.band not in seen:
+                raise FieldError(owner, "limits", f"limit {lim.name!r}: band: the plan has no "
+                                 f"band named {lim.band!r}{_close(lim.band, seen)}")
+        object.__setattr__(self, "limits", limits)
 
     def band(self, name: str) -> Band:
         """The band called `name` (InputError naming close matches if there is none)."""
@@ -328,12 +455,13 @@ class Plan:
 # ------------------------------------------------------------------------------------------
 # Reading
 # ------------------------------------------------------------------------------------------
-_SECTIONS = ("speed", "acquisition", "band", "resampling")
+_SECTIONS = ("speed", "acquisition", "band", "resampling", "limit")
 _SPEED_KEYS = ("profile", "start_rpm", "end_rpm", "duration_s", "table")
 _ACQ_KEYS = ("rates_hz", "filter", "filter_order", "cutoff", "passband_ripple_db",
              "stopband_db", "passband_edge", "stopband_edge", "table", "threshold_db")
 _BAND_KEYS = ("name", "hz", "orders", "around", "width_pct")
 _RESAMPLING_KEYS = ("max_order", "order_resolution")
+_LIMIT_KEYS = ("name", "band", "order", "bandwidth", "max", "amplitude", "rpm")
 
 # Plan-file key -> AntiAliasFilter field, and which filter kinds use the key.
 _FILTER_FIELDS = {"filter_order": "order", "cutoff": "cutoff",
@@ -528,30 +656,37 @@ class _Reader:
         threshold = self.number(sec, "threshold_db", entry, default=DEFAULT_THRESHOLD_DB)
         return rates, filt, threshold
 
-    def bands(self, d) -> tuple[Band, ...]:
-        if "band" not in d:
-            return ()
-        entries = d["band"]
+    def named_entries(self, d, table, keys):
+        """Each ``[[table]]`` entry as (location, keys): an array of tables, each with a
+        unique non-empty name and only the allowed keys."""
+        if table not in d:
+            return
+        entries = d[table]
         if not isinstance(entries, list):
-            self.fail(None, "[band]", "bands are an array of tables: write each as [[band]] "
-                      "(two brackets)")
-        bands, seen = [], {}
+            self.fail(None, f"[{table}]", f"{table}s are an array of tables: write each as "
+                      f"[[{table}]] (two brackets)")
+        seen = {}
         for i, sec in enumerate(entries):
-            entry = f"[[band]] #{i + 1}"
+            entry = f"[[{table}]] #{i + 1}"
             if not isinstance(sec, dict):
                 self.fail(None, entry, f"must be a table of keys, got {show(sec)}")
             name = sec.get("name")
             if isinstance(name, str) and name.strip():
-                entry = f"[[band]] {name!r}"
-            self.unknown_keys(sec, _BAND_KEYS, entry)
+                entry = f"[[{table}]] {name!r}"
+            self.unknown_keys(sec, keys, entry)
             if "name" not in sec:
                 self.fail(entry, "name", "is required")
             if not isinstance(name, str) or not name.strip():
                 self.fail(entry, "name", f"must be a non-empty text, got {show(name)}")
             if name in seen:
-                self.fail(entry, "name", f"is used by band #{seen[name]} already; band names "
-                          "must be unique")
+                self.fail(entry, "name", f"is used by {table} #{seen[name]} already; {table} "
+                          "names must be unique")
             seen[name] = i + 1
+            yield entry, sec
+
+    def bands(self, d) -> tuple[Band, ...]:
+        bands = []
+        for entry, sec in self.named_entries(d, "band", _BAND_KEYS):
             for key in ("hz", "orders"):
                 if key in sec and not isinstance(sec[key], list):
                     self.fail(entry, key, f"must be a list of two numbers [lo, hi], got "
@@ -561,6 +696,27 @@ class _Reader:
             except FieldError as exc:
                 self.fail(entry, exc.field, exc.problem)
         return tuple(bands)
+
+    def limits(self, d, bands) -> tuple[Limit, ...]:
+        band_names = [b.name for b in bands]
+        limits = []
+        for entry, sec in self.named_entries(d, "limit", _LIMIT_KEYS):
+            if "max" not in sec:
+                self.fail(entry, "max", "is required: the highest allowed level in the "
+                          "channel's unit, from the user, the machine maker or the standard")
+            if "rpm" in sec and not isinstance(sec["rpm"], list):
+                self.fail(entry, "rpm", f"must be a list of two speeds [lo, hi] in rpm, got "
+                          f"{show(sec['rpm'])}")
+            band = sec.get("band")
+            if isinstance(band, str) and band not in band_names:
+                self.fail(entry, "band", f"the plan has no [[band]] named {band!r}"
+                          f"{_close(band, band_names)}; known bands: "
+                          f"{', '.join(band_names) or 'none'}")
+            try:
+                limits.append(Limit(**sec))
+            except FieldError as exc:
+                self.fail(entry, exc.field, exc.problem)
+        return tuple(limits)
 
     def resampling(self, d) -> tuple[float | None, float | None]:
         entry = "[resampling]"
@@ -577,15 +733,16 @@ class _Reader:
             if key not in _SECTIONS:
                 self.fail(None, f"[{key}]" if isinstance(d[key], dict) else key,
                           f"unknown table or key{_close(key, _SECTIONS)}; a plan has "
-                          "[speed], [acquisition], [[band]] and [resampling]")
+                          "[speed], [acquisition], [[band]], [resampling] and [[limit]]")
         speed = self.speed(d)
         rates, filt, threshold = self.acquisition(d)
         bands = self.bands(d)
         max_order, resolution = self.resampling(d)
+        limits = self.limits(d, bands)
         try:
             return Plan(speed=speed, rates_hz=rates, filter=filt, threshold_db=threshold,
                         bands=bands, max_order=max_order, order_resolution=resolution,
-                        source=self.source)
+                        source=self.source, limits=limits)
         except FieldError as exc:  # checks that live on Plan itself (rates_hz)
             self.fail(_PLAN_ENTRY.get(exc.field), exc.field, exc.problem)
 
@@ -596,7 +753,7 @@ def plan_from_dict(d: dict, source: str = "<dict>", *, base_dir=None) -> Plan:
     Parameters
     ----------
     d : dict
-        Sections ``speed``, ``acquisition`` (required), ``band`` (a list), ``resampling``.
+        Sections ``speed``, ``acquisition`` (required), ``band`` (a list), ``resampling``, ``limit`` (a list).
         Not modified.
     source : str
         Name used in error messages (the file name when read from a file).
@@ -636,11 +793,17 @@ def read_plan(path) -> Plan:
     except OSError as exc:
         raise PlanFileError(f"{name}: cannot read the plan file: {exc.strerror or exc}") from None
     except UnicodeDecodeError:
-        raise PlanFileError(f"{name}: not a text file in UTF-8; a plan file is TOML") from None
+        hint = wrong_file_hint(path, "plan")
+        raise PlanFileError(f"{name}: {hint}" if hint else
+                            f"{name}: not a text file in UTF-8; a plan file is TOML") from None
     try:
         d = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise PlanFileError(f"{name}: not valid TOML: {exc}") from None
+        hint = wrong_file_hint(path, "plan")
+        raise PlanFileError(f"{name}: {hint}" if hint else f"{name}: not valid TOML: {exc}") from None
+    hint = wrong_file_hint(path, "plan", tables=d.keys())
+    if hint:
+        raise PlanFileError(f"{name}: {hint}")
     return plan_from_dict(d, source=name, base_dir=path.parent)
 
 
@@ -687,6 +850,21 @@ def plan_to_dict(plan: Plan) -> dict:
     resampling = {k: getattr(plan, k) for k in _RESAMPLING_KEYS if getattr(plan, k) is not None}
     if resampling:
         out["resampling"] = resampling
+    if plan.limits:
+        limits = []
+        for lim in plan.limits:
+            entry = {"name": lim.name}
+            if lim.band is not None:
+                entry["band"] = lim.band
+            else:
+                entry.update(order=lim.order, bandwidth=lim.bandwidth)
+            entry["max"] = lim.max
+            if lim.amplitude != "peak":
+                entry["amplitude"] = lim.amplitude
+            if lim.rpm is not None:
+                entry["rpm"] = list(lim.rpm)
+            limits.append(entry)
+        out["limit"] = limits
     return out
 
 
@@ -778,8 +956,8 @@ def write_plan(plan: Plan, path, *, force: bool = False) -> Path:
     if not force:
         for target in files:
             if target.exists():
-                raise OutputExistsError(f"{target}: exists already; choose another name or "
-                                        "allow overwriting (force=True)")
+                raise OutputExistsError(f"{target}: exists already; pass --force to replace it, or "
+                                        "choose another name")
     for target, text in files.items():
         _write_atomic(target, text)
     return path

@@ -25,6 +25,7 @@ __all__ = [
     "png_bytes",
     "html_table",
     "STYLE",
+    "step_card",
     "Cache",
     "collect_warnings",
     "fmt_rate",
@@ -50,6 +51,23 @@ STYLE = """<style>
 .foldline-error {color: #b00020; white-space: pre-wrap;}
 .foldline-note {color: #555; font-size: 12px;}
 </style>"""
+
+
+def step_card(title, children):
+    """One step of a panel's strip of steps: a titled card holding its controls inline.
+
+    The panels lay their controls out as the analyst's steps from left to right (cards that
+    wrap on a narrow window), with the results below at full width.
+    """
+    import ipywidgets as widgets
+
+    head = widgets.HTML(f'<div class="foldline-step-title" style="font-weight: 600; '
+                        f'color: #2b5d8a; margin: 2px 0 4px">{title}</div>')
+    card = widgets.VBox([head, *children], layout=widgets.Layout(
+        flex="1 1 300px", min_width="300px", margin="0 8px 8px 0", padding="4px 8px",
+        border="1px solid #c8d0d8"))
+    card.add_class("foldline-step")
+    return card
 
 
 def as_machine(machine):

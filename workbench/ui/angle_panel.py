@@ -14,8 +14,12 @@ Steps and what each control redoes (the rest is kept):
 5. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
    filter order): envelopes against rpm, a player for one order's waveform, WAV export.
 
-Only the figure of the tab on show is drawn, and only when what it shows changed; the others
-are drawn when their tab is opened.
+The controls sit in a strip of three steps, left to right as the analyst works (speed,
+angle domain, results and export), each a card with its controls inline; the status line and
+the results follow at full width.  The results are shown together on one tab: the order map,
+with the orders cut marked on it, beside the order cuts and the order spectrum; the tacho check
+and the order extraction have tabs of their own.  Only the figures of the tab on show are
+drawn, and only when what they show changed; the others are drawn when their tab is opened.
 Tables (CSV) and figures (PNG) are written to a chosen folder by two buttons.
 """
 
@@ -40,7 +44,8 @@ from workbench.plots.angle import OVERLAYS
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
 from workbench.sampling import angle_settings
-from workbench.ui._common import STYLE, Cache, as_machine, as_plan, collect_warnings, error_html, html_table
+from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
+                                  html_table, step_card)
 
 __all__ = ["AngleDomainPanel", "WINDOWS", "SPEED_SOURCES"]
 
@@ -98,7 +103,8 @@ class AngleDomainPanel:
     progress : ipywidgets.IntProgress
         Samples tracked so far.
     tabs : ipywidgets.Tab
-        Tacho check, order map, order cuts, order spectrum.
+        0: tacho check; 1: the results together (order map with the orders cut marked, order
+        cuts, order spectrum and peaks); 2: order extraction.
     tacho_figure, map_figure, cuts_figure, spectrum_figure : ipywidgets.Image
     tacho_info : ipywidgets.HTML
     aliases : ipywidgets.HTML
@@ -156,7 +162,9 @@ class AngleDomainPanel:
     # -- controls -------------------------------------------------------------------------
     def _build(self, channel, spr, rpb):
         run = self.run
-        style, wide = {"description_width": "150px"}, widgets.Layout(width="330px")
+        # Controls fill their step's card; descriptions get a fixed column that holds the
+        # longest one ("block length (revs)") without clipping.
+        style, wide = {"description_width": "140px"}, widgets.Layout(width="98%")
         names = [n for n in run.channel_names if n != run.tacho] or list(run.channel_names)
         self.channel = widgets.Dropdown(options=names, value=channel or names[0], description="vibration channel",
                                         style=style, layout=wide)
@@ -187,11 +195,15 @@ class AngleDomainPanel:
         self.speed_channel = widgets.Dropdown(options=list(run.channel_names), description="speed channel",
                                               style=style, layout=wide)
         self.speed_scale = widgets.FloatText(value=1.0, description="rpm per unit", style=style, layout=wide)
+        self.cut_orders.add_class("foldline-cut-orders")
         self.folder = widgets.Text(value="foldline_export", description="export folder", style=style,
                                    layout=wide)
         self.overwrite = widgets.Checkbox(value=False, description="overwrite files", indent=False)
-        self.export_tables = widgets.Button(description="export tables (CSV)", icon="table")
-        self.export_figures = widgets.Button(description="export figures (PNG)", icon="image")
+        button = widgets.Layout(width="auto", min_width="190px")
+        self.export_tables = widgets.Button(description="export tables (CSV)", icon="table",
+                                            layout=button)
+        self.export_figures = widgets.Button(description="export figures (PNG)", icon="image",
+                                             layout=button)
         self.progress = widgets.IntProgress(value=0, min=0, max=max(1, run.n_samples), description="tracking",
                                             style=style, layout=wide)
         self.status = widgets.HTML()
@@ -201,27 +213,42 @@ class AngleDomainPanel:
         self.peaks = widgets.HTML()
         image = dict(format="png", layout=widgets.Layout(max_width="100%"))
         self.tacho_figure = widgets.Image(**image)
-        self.map_figure = widgets.Image(**image)
-        self.cuts_figure = widgets.Image(**image)
-        self.spectrum_figure = widgets.Image(**image)
+        self.map_figure = widgets.Image(format="png", layout=widgets.Layout(
+            flex="3 1 460px", min_width="420px", max_width="100%", height="auto"))
+        self.cuts_figure = widgets.Image(format="png", layout=widgets.Layout(width="100%"))
+        self.spectrum_figure = widgets.Image(format="png", layout=widgets.Layout(width="100%"))
         for w in (self.tacho_figure, self.map_figure, self.cuts_figure, self.spectrum_figure):
             w.add_class("foldline-figure")
+        # The results together: the order map with the orders cut marked on it, beside the
+        # cuts and the spectrum (they stack below the map on a narrow window).
+        side = widgets.VBox([self.cuts_figure, self.spectrum_figure, self.peaks],
+                            layout=widgets.Layout(flex="2 1 360px", min_width="340px"))
+        results = widgets.Box([self.map_figure, side], layout=widgets.Layout(
+            display="flex", flex_flow="row wrap", align_items="flex-start", width="100%"))
+        results.add_class("foldline-results")
         self.tabs = widgets.Tab(children=[
-            widgets.VBox([self.tacho_figure, self.tacho_info]),
-            self.map_figure, self.cuts_figure,
-            widgets.VBox([self.spectrum_figure, self.peaks])])
-        for i, title in enumerate(("tacho check", "order map", "order cuts", "order spectrum")):
+            widgets.VBox([self.tacho_figure, self.tacho_info]), results])
+        for i, title in enumerate(("tacho check", "results")):
             self.tabs.set_title(i, title)
         self.tabs.selected_index = 1
-        controls = widgets.VBox([
-            self.channel, self.channels, self.samples_per_rev, self.revs_per_block, self.window,
-            self.protect, self.overlay, self.cut_orders, self.speed_source, self.speed_order,
-            self.speed_range, self.speed_channel, self.speed_scale, self.progress,
-            widgets.HTML("<hr>"), self.folder, self.overwrite,
-            widgets.HBox([self.export_tables, self.export_figures]), self.status,
-        ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
+        # The analyst's steps from left to right, each with its controls inline: the speed
+        # (which channels, the speed from where), the angle domain (resampling and blocks),
+        # the results (what to draw and cut, where to export).  The results sit below at full
+        # width.
+        steps = widgets.HBox([
+            step_card("1 &middot; speed", [self.channel, self.channels, self.speed_source,
+                                           self.speed_order, self.speed_range, self.speed_channel,
+                                           self.speed_scale, self.progress]),
+            step_card("2 &middot; angle domain", [self.samples_per_rev, self.revs_per_block,
+                                              self.window, self.protect]),
+            step_card("3 &middot; results", [self.overlay, self.cut_orders, self.folder,
+                                         self.overwrite,
+                                         widgets.HBox([self.export_tables, self.export_figures],
+                                                      layout=widgets.Layout(flex_flow="row wrap"))]),
+        ], layout=widgets.Layout(flex_flow="row wrap", align_items="stretch", width="100%"))
+        steps.add_class("foldline-steps")
         self.header = widgets.HTML()
-        self.widget = widgets.VBox([self.header, widgets.HBox([controls, self.tabs]), self.aliases])
+        self.widget = widgets.VBox([self.header, steps, self.status, self.tabs, self.aliases])
         self.widget.add_class("foldline-angle-panel")
 
     def _on_change(self, change):
@@ -464,10 +491,12 @@ class AngleDomainPanel:
         top = self.usable_max_order
         valid = self.valid_region()
         if which == "map":
-            return plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
-                                  max_order=top, unit=unit, overlay=self.overlay.value,
-                                  unmatched=self.unmatched(), valid=valid,
-                                  title=f"Order map at {self.run.rate_hz:g} S/s")
+            fig = plot_order_map(omap, lines=self.lines or None, rate_hz=self.run.rate_hz, identification=ident,
+                                 max_order=top, unit=unit, overlay=self.overlay.value,
+                                 unmatched=self.unmatched(), valid=valid,
+                                 title=f"Order map at {self.run.rate_hz:g} S/s")
+            self._mark_cut_orders(fig)
+            return fig
         if which == "cuts":
             return plot_order_cuts(self.cuts(), unit=unit, valid=valid)
         if which == "spectrum":
@@ -477,11 +506,27 @@ class AngleDomainPanel:
                                        rpm_range=(float(np.nanmin(omap.rpm)), float(np.nanmax(omap.rpm))))
         raise InputError(f"figure {which!r}: choose one of {', '.join(self.FIGURES)}")
 
+    def _mark_cut_orders(self, fig):
+        """The orders cut, marked on the order map (links the map to the cuts beside it)."""
+        try:
+            orders = self._orders()
+        except FoldlineError:  # a bad entry is reported by the cuts; the map stays plain
+            return
+        ax = fig.axes[0]
+        for o in orders:
+            ax.axhline(o, color="white", lw=0.8, ls=":", alpha=0.9)
+            ax.annotate(f"cut {o:g}", (1.0, o), xycoords=("axes fraction", "data"),
+                        xytext=(-4, 2), textcoords="offset points", ha="right", va="bottom",
+                        color="white", fontsize=7)
+
+    #: Figures on each tab (the results tab shows the map, the cuts and the spectrum together).
+    _TAB_FIGURES = (("tacho",), ("map", "cuts", "spectrum"))
+
     def _figure_key(self, which):
         """What a figure depends on: it is redrawn only when this changes."""
         if which == "tacho":
             return self._speed_key()
-        if which == "cuts":
+        if which in ("cuts", "map"):  # the map marks the orders cut
             return self._analysis_key() + (self.cut_orders.value,)
         return self._analysis_key() + (self.overlay.value,)
 
@@ -491,17 +536,18 @@ class AngleDomainPanel:
         self._drawn[which] = self._figure_key(which)
 
     def _draw_shown(self):
-        if (self.tabs.selected_index or 0) >= len(self.FIGURES):
+        index = self.tabs.selected_index or 0
+        if index >= len(self._TAB_FIGURES):
             self._draw_extraction()
             return
-        which = self.FIGURES[self.tabs.selected_index or 0]
-        if self._drawn.get(which) != self._figure_key(which):
-            try:
-                with warnings.catch_warnings():
-                    warnings.simplefilter("ignore", FoldlineWarning)
-                    self._draw(which)
-            except FoldlineError as exc:
-                self.status.value = STYLE + error_html(exc)
+        for which in self._TAB_FIGURES[index]:
+            if self._drawn.get(which) != self._figure_key(which):
+                try:
+                    with warnings.catch_warnings():
+                        warnings.simplefilter("ignore", FoldlineWarning)
+                        self._draw(which)
+                except FoldlineError as exc:
+                    self.status.value = STYLE + error_html(exc)
 
     # -- export ---------------------------------------------------------------------------
     def tables(self) -> dict:
@@ -538,6 +584,7 @@ class AngleDomainPanel:
             if what == "tables":
                 items = [(folder / f"{name}.csv", table) for name, table in self.tables().items()]
             elif what == "figures":
+                self.cuts()  # a bad entry stops the export before any file is written
                 items = [(folder / self._FIGURE_FILES[w], w) for w in self.FIGURES]
             else:
                 raise InputError(f"export {what!r}: choose 'tables' or 'figures'")
@@ -556,7 +603,8 @@ class AngleDomainPanel:
                     else:
                         written.append(save_figure(self.figure(item), path, force=force))
         except (FoldlineError, OSError) as exc:
-            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.status.value = (STYLE + self._not_exported_html(what, written) + error_html(exc)
+                                 + self._written_html(written))
             self.error = exc
             return written
         self.error = None
@@ -708,12 +756,19 @@ class AngleDomainPanel:
                 written.append(write_order_waveform(ex, o, folder, force=force))
                 written.append(write_order_envelope(ex, o, folder, force=force))
         except (FoldlineError, OSError) as exc:
-            self.status.value = STYLE + error_html(exc) + self._written_html(written)
+            self.status.value = STYLE + self._not_exported_html("waveforms", written) + error_html(
+                exc) + self._written_html(written)
             self.error = exc
             return written
         self.error = None
         self.status.value = STYLE + self._written_html(written)
         return written
+
+    @staticmethod
+    def _not_exported_html(what, written) -> str:
+        done = f"{len(written)} file(s) written before it stopped" if written else "nothing written"
+        return (f'<div class="foldline-error"><b>{html.escape(what)} not exported ({done})</b>'
+                "</div>")
 
     # -- display --------------------------------------------------------------------------
     def show(self):

@@ -32,7 +32,7 @@ from workbench.errors import FoldlineError, InputError
 from workbench.sampling import (ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter, SpeedProfile, advise,
                                 find_collisions, fold_map)
 from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
-                                  fmt_rate, html_table)
+                                  fmt_rate, html_table, step_card)
 from workbench.ui.scene import FoldScene
 
 __all__ = ["FoldMapPanel", "narrowed_speed", "COLLISION_TABLE_COLUMNS"]
@@ -197,7 +197,7 @@ class FoldMapPanel:
     # -- controls -------------------------------------------------------------------------
     def _build_controls(self, rate_hz):
         plan, style = self.plan, {"description_width": "118px"}
-        wide = widgets.Layout(width="330px")
+        wide = widgets.Layout(width="98%")
         with collect_warnings():
             advice = self._advice_for(plan)
         recommended = advice.recommended_rate_hz
@@ -262,11 +262,17 @@ class FoldMapPanel:
         self.verdict.add_class("foldline-verdict-box")
         hint = widgets.HTML('<span class="foldline-note">Ctrl/Shift-click to pick several '
                             'sources or bands.</span>')
-        controls = widgets.VBox([
-            self.rate_choice, self.rate_hz, self.filter_kind, self.filter_order, self.cutoff,
-            self.speed_range, self.threshold_db, self.sources, self.bands, hint, self.view,
-        ], layout=widgets.Layout(width="345px", flex="0 0 345px"))
-        body = widgets.HBox([controls, widgets.VBox([self.figure, self.legend, self.verdict])])
+        # The planner's steps from left to right, each a card with its controls inline: how the
+        # run is acquired (rate, anti-alias filter), what the test does (speed range, what
+        # counts), what to look at; the fold map, its verdict and the table follow below.
+        steps = widgets.HBox([
+            step_card("1 &middot; acquisition", [self.rate_choice, self.rate_hz, self.filter_kind,
+                                             self.filter_order, self.cutoff]),
+            step_card("2 &middot; test", [self.speed_range, self.threshold_db]),
+            step_card("3 &middot; what to show", [self.sources, self.bands, hint, self.view]),
+        ], layout=widgets.Layout(flex_flow="row wrap", align_items="stretch", width="100%"))
+        steps.add_class("foldline-steps")
+        body = widgets.VBox([steps, self.verdict, self.figure, self.legend])
         self.widget = widgets.VBox([self.header, body, self.table])
         self.widget.add_class("foldline-foldmap-panel")
 
@@ -405,10 +411,15 @@ class FoldMapPanel:
         edge = plan.filter.usable_edge_hz(rate)
         captures = edge >= top_hz
         items = []
-        if len(coll) == 0 and captures:
-            head = f'<span class="foldline-ok">{fmt_rate(rate)} is clean</span>'
+        # "clean" means no collision, as in the command, the advisor and the report; whether
+        # the rate captures the highest order is said apart.
+        if len(coll) == 0:
+            head = f'<span class="foldline-ok">{fmt_rate(rate)} is clean (no collision)</span>'
         else:
-            head = f'<span class="foldline-bad">{fmt_rate(rate)} is not clean</span>'
+            head = (f'<span class="foldline-bad">{fmt_rate(rate)} is not clean: {len(coll)} '
+                    "collision(s)</span>")
+        head += ("; " + ('<span class="foldline-ok">captures the highest order</span>' if captures
+                         else '<span class="foldline-bad">does not capture the highest order</span>'))
         if len(coll):
             first = coll.iloc[0]
             items.append(f"{len(coll)} collision(s); worst: {html.escape(first['line'])} folds into "
@@ -421,7 +432,12 @@ class FoldMapPanel:
                      + f" the filter's usable band ({edge:.0f} Hz)")
         rec = advice.recommended_rate_hz
         rec_text = (f"<b>recommended rate: {fmt_rate(rec)}</b>" if rec is not None
-                    else '<b class="foldline-bad">no clean rate found</b>')
+                    else '<b class="foldline-bad">no rate is both clean and captures the highest '
+                         "order</b>")
+        if plan.filter.kind == "none":
+            from workbench.sampling.guards import NO_FILTER_NOTE
+
+            items.append(html.escape(NO_FILTER_NOTE))
         notes = "".join(f"<li>{html.escape(n)}</li>" for n in advice.notes)
         warn = "".join(f"<li>{html.escape(m)}</li>" for m in messages)
         return (STYLE + '<div class="foldline-verdict">' + head + "<ul>"

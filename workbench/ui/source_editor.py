@@ -109,8 +109,10 @@ class SourceEditorPanel:
         if entry is not None and entry not in names:
             raise InputError(f"entry {entry!r}: not an editable source of {self.original.name!r}; "
                              f"choose one of {', '.join(repr(n) for n in names)}")
-        style = {"description_width": "150px"}
-        wide = widgets.Layout(width="320px")
+        # The description column holds the longest field label ("pitch diameter (same unit)")
+        # without clipping (checked in a browser at 1280 and 1920 px).
+        style = {"description_width": "200px"}
+        wide = widgets.Layout(width="370px")
         self.entry = widgets.Dropdown(options=[(f"{s.name} ({_TYPE_LABELS[type(s)]})", s.name) for s in editable],
                                       value=entry if entry is not None else editable[0].name,
                                       description="source", style=style, layout=wide)
@@ -134,7 +136,7 @@ class SourceEditorPanel:
         self.lines_table = widgets.HTML()
         self.collisions = widgets.HTML()
         controls = widgets.VBox([self.entry, self.rate, self._fields_box, self.reset_button, self.message],
-                                layout=widgets.Layout(width="335px", flex="0 0 335px"))
+                                layout=widgets.Layout(width="385px", flex="0 0 385px"))
         self.widget = widgets.VBox([
             self.header, widgets.HBox([controls, widgets.VBox([self.figure, self.summary])]),
             self.lines_table, self.collisions])
