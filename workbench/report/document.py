@@ -697,11 +697,14 @@ def _metadata_html(metadata, analysis) -> str:
         pairs.append((META_LABELS[key], value or "not given"))
     html = key_value_html(pairs, css_class="test-metadata")
     sensors = [] if meta is None else list(meta.sensors)
-    channel = None if analysis is None else str(analysis.channel)
-    if channel is not None and all(s.channel != channel for s in sensors):
-        sensors.insert(0, meta.sensor(channel) if meta is not None else None)
+    analysed = () if analysis is None else tuple(
+        str(a.channel) for a in getattr(analysis, "channels", (analysis,)))
+    channel = analysed[0] if analysed else None
+    for name in reversed(analysed):
+        if all(s is None or s.channel != name for s in sensors):
+            sensors.insert(0, meta.sensor(name) if meta is not None else None)
     rows = [{"channel": s.channel if s is not None else channel,
-             "analysed": "yes" if (s is not None and s.channel == channel) or s is None else "",
+             "analysed": "yes" if (s is not None and s.channel in analysed) or s is None else "",
              "position": (s.position if s is not None else "") or "not given",
              "direction": (s.direction if s is not None else "") or "not given",
              "sensor_type": (s.sensor_type if s is not None else "") or "not given"}
