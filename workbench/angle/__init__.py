@@ -20,7 +20,7 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
 from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
                                    detect_pulses, tacho_angle)
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
-import importlib
+from workbench._lazy import lazy_names
 
 # Order extraction, the speed from the vibration and order tracks with phase are imported on
 # first use (PEP 562): they need scipy.signal and scipy.ndimage, which the tracking path does
@@ -34,20 +34,7 @@ _LAZY = {
                                      "RejectedPeak", "find_criticals", "find_track_criticals",
                                      "order_tracks"),
 }
-_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
-
-
-def __getattr__(name):
-    mod = _HOME.get(name)
-    if mod is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(mod), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_HOME))
+__getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
 
 
 __all__ = [

@@ -10,7 +10,7 @@ Typical use::
     result.summary        # one row per run: levels per band, top orders, aliases, status
 """
 
-import importlib
+from workbench._lazy import lazy_names
 
 # Imported on first use (PEP 562): registering the ``batch`` verb must not import pandas.
 _LAZY = {
@@ -20,20 +20,7 @@ _LAZY = {
                              "run_batch"),
     "workbench.batch.levels": ("band_level_series", "band_levels"),
 }
-_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
-
-
-def __getattr__(name):
-    mod = _HOME.get(name)
-    if mod is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(mod), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_HOME))
+__getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
 
 
 __all__ = ["BatchSettings", "BatchResult", "process_run", "run_batch", "read_summary",

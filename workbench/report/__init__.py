@@ -8,25 +8,12 @@ Typical use::
     report.sections, report.sha256
 """
 
-import importlib
+from workbench._lazy import lazy_names
 
 # Imported on first use (PEP 562): registering the ``report`` verb must not load numpy.
-_HOME = {name: "workbench.report.document" for name in (
+__getattr__, __dir__ = lazy_names(__name__, {"workbench.report.document": (
     "SAFETY_TEXT", "SECTION_TITLES", "InputFile", "Report", "build_report", "default_cut_orders",
-    "file_sha256", "write_report")}
-
-
-def __getattr__(name):
-    mod = _HOME.get(name)
-    if mod is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(mod), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_HOME))
+    "file_sha256", "write_report")}, globals())
 
 
 __all__ = ["Report", "InputFile", "build_report", "write_report", "default_cut_orders",

@@ -4,7 +4,7 @@ Pure math of acquisition.  Imports only numpy, scipy, pandas and the standard li
 machine layer's line objects, by duck typing).
 """
 
-import importlib
+from workbench._lazy import lazy_names
 
 # Names are imported on first use (PEP 562), so that a verb needing only the folding rule
 # (``foldline alias``) does not pay for pandas and the fold-map machinery.
@@ -24,20 +24,7 @@ _LAZY = {
     "workbench.sampling.advisor": ("STANDARD_RATES_HZ", "Advice", "AngleSettings", "advise",
                                    "angle_settings", "min_rate_for"),
 }
-_HOME = {name: mod for mod, names in _LAZY.items() for name in names}
-
-
-def __getattr__(name):
-    mod = _HOME.get(name)
-    if mod is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(mod), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return sorted(set(globals()) | set(_HOME))
+__getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
 
 
 __all__ = [
