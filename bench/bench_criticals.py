@@ -1,7 +1,7 @@
 """Benchmark: order tracks with phase and critical speeds of a run, and the planner's crossings.
 
 Figures: order tracks (orders 1 and 2) and criticals of the bundled demo run (60 s at 2560 S/s)
-without the rpm-frequency map; crossings of a 200-line machine with 5 resonances.
+without the frequency map; crossings of a 200-line machine with 5 resonances.
 """
 
 from __future__ import annotations

@@ -9,7 +9,7 @@ enough that the quasi-steady response is the signal (an analytic signal whose tr
 import numpy as np
 import pytest
 
-from workbench.angle import ShaftAngle, order_track, tacho_angle
+from workbench.angle import ShaftAngle, resample_to_angle, tacho_angle
 from workbench.angle.order_tracks import (AngleSignal, OrderTrack, find_criticals,
                                           find_track_criticals, order_tracks,
                                           required_margin_pct, sdof_unbalance,
@@ -66,7 +66,7 @@ def sdof_track():
     t, revs, rpm, acc = _runup()
     x = _rotor(rpm, revs, [(1.0, 1500.0, 0.05)]) + 0.3 * np.cos(2 * np.pi * 2 * revs + 1.0)
     angle = tacho_angle(_tacho_1ppr(acc, revs[-1]), pulses_per_rev=1)
-    sig = order_track(x, RATE, angle, samples_per_rev=32)
+    sig = resample_to_angle(x, RATE, angle, samples_per_rev=32)
     return order_tracks(sig, [1, 2], once_per_rev=True)
 
 
@@ -129,7 +129,7 @@ def test_phase_through_a_tacho_in_the_time_domain():
     theta = (t - t0) * rpm / 60.0
     x = np.cos(2 * np.pi * theta - np.deg2rad(60)) + 0.5 * np.cos(4 * np.pi * theta - np.deg2rad(200))
     pulses = t0 + np.arange(0, 150) * 60.0 / rpm
-    sig = order_track(x, rate, tacho_angle(pulses, pulses_per_rev=1), samples_per_rev=64)
+    sig = resample_to_angle(x, rate, tacho_angle(pulses, pulses_per_rev=1), samples_per_rev=64)
     one, two = order_tracks(sig, [1, 2], once_per_rev=True)
     mid = slice(3, -3)
     assert np.allclose(one.phase_deg[mid], 60.0, atol=0.1)
@@ -142,7 +142,7 @@ def test_two_mode_rotor_gives_two_criticals():
     modes = [(1.0, 1200.0, 0.04), (0.6, 2400.0, 0.05)]
     x = _rotor(rpm, revs, modes)
     angle = ShaftAngle.from_speed_table([0.0, T], [N0, N1])
-    tracks = order_tracks(order_track(x, RATE, angle, samples_per_rev=32), [1, 2])
+    tracks = order_tracks(resample_to_angle(x, RATE, angle, samples_per_rev=32), [1, 2])
     res = find_track_criticals(tracks)
     assert [c.order for c in res.criticals] == [1.0, 1.0]
     g, amp = _closed_form_peak(modes)
@@ -163,7 +163,7 @@ def test_line_passing_through_the_order_is_not_a_critical():
     x = 0.2 * np.cos(2 * np.pi * revs + 0.3) + 0.2 * np.cos(4 * np.pi * revs) \
         + 1.0 * np.cos(2 * np.pi * 25.0 * t)
     angle = ShaftAngle.from_speed_table([0.0, T], [N0, N1])
-    tracks = order_tracks(order_track(x, RATE, angle, samples_per_rev=32), [1, 2])
+    tracks = order_tracks(resample_to_angle(x, RATE, angle, samples_per_rev=32), [1, 2])
     res = find_track_criticals(tracks)
     assert res.criticals == ()
     assert any(abs(p.rpm - 750.0) < 30 for p in res.rejected)
@@ -175,7 +175,7 @@ def test_a_step_and_noise_are_not_criticals():
     x = np.where(rpm > 1500, 1.0, 0.2) * np.cos(2 * np.pi * revs) \
         + 0.3 * rng.standard_normal(len(t))
     angle = ShaftAngle.from_speed_table([0.0, T], [N0, N1])
-    res = find_track_criticals(order_tracks(order_track(x, RATE, angle, samples_per_rev=32),
+    res = find_track_criticals(order_tracks(resample_to_angle(x, RATE, angle, samples_per_rev=32),
                                             [1, 2]))
     assert res.criticals == ()
 

@@ -15,10 +15,10 @@ from scipy.signal import get_window
 
 from workbench.angle.spectra import (OrderAnalysis, OrderMap, OrderSpectrum,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
-                                     order_map, order_spectrum, rpm_frequency_map,
+                                     order_map, order_spectrum, frequency_map,
                                      window_gains)
 from workbench.angle.tacho import ShaftAngle
-from workbench.angle.tracking import AngleSignal, iter_order_track, order_track
+from workbench.angle.tracking import AngleSignal, iter_resample_to_angle, resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
 
 SHARED = Path(__file__).resolve().parents[2] / "shared"
@@ -163,15 +163,15 @@ def test_order_map_binned_while_streaming_equals_binned_afterwards():
         acc.order_map(rpm_bins=3)
 
 
-def test_rpm_frequency_map_binned_while_streaming():
+def test_frequency_map_binned_while_streaming():
     # Binned rows are the power average of the unbinned rows whose speed falls in each bin.
     rate = 1024.0
     t = np.arange(int(8 * rate)) / rate
     angle = ShaftAngle.from_speed_table([0.0, 8.0], [600.0, 1200.0])
     x = 2.0 * np.sin(2 * np.pi * 100.0 * t) + np.sin(2 * np.pi * 37.0 * t * (1 + t / 16))
-    full = rpm_frequency_map(x, rate, angle, nperseg=512, max_hz=200.0)
+    full = frequency_map(x, rate, angle, nperseg=512, max_hz=200.0)
     edges = np.linspace(600.0, 1200.0, 4)
-    binned = rpm_frequency_map(x, rate, angle, nperseg=512, max_hz=200.0, rpm_bins=edges)
+    binned = frequency_map(x, rate, angle, nperseg=512, max_hz=200.0, rpm_bins=edges)
     idx = np.searchsorted(edges, full.rpm, side="right") - 1
     for b in range(3):
         rows = full.amplitude[idx == b]
@@ -204,9 +204,9 @@ def test_order_map_from_the_tracking_stream_equals_the_whole_signal():
     angle = ShaftAngle.from_speed_table([0.0, 6.0], [600.0, 900.0])
     x = np.cos(2 * np.pi * 3 * angle.revs_at(t))
     chunks = lambda: (x[i:i + 5000] for i in range(0, len(x), 5000))  # noqa: E731
-    streamed = order_map(iter_order_track(chunks, rate, angle, samples_per_rev=32),
+    streamed = order_map(iter_resample_to_angle(chunks, rate, angle, samples_per_rev=32),
                          revs_per_block=4)
-    whole = order_map(order_track(x, rate, angle, samples_per_rev=32), revs_per_block=4)
+    whole = order_map(resample_to_angle(x, rate, angle, samples_per_rev=32), revs_per_block=4)
     assert np.array_equal(streamed.amplitude, whole.amplitude)
     assert np.array_equal(streamed.rpm, whole.rpm)
 
@@ -221,26 +221,26 @@ def test_order_tracking_removes_sweep_smearing():
     t = np.arange(int(dur * rate)) / rate
     angle = ShaftAngle.from_speed_table([0.0, dur], [600.0, 600.0 + 60 * accel * dur])
     x = np.cos(2 * np.pi * k * angle.revs_at(t))
-    fm = rpm_frequency_map(x, rate, angle, nperseg=4096, overlap=0.0, window="boxcar")
+    fm = frequency_map(x, rate, angle, nperseg=4096, overlap=0.0, window="boxcar")
     expected_bins = k * accel * (4096 / rate) ** 2       # 40 bins of 1 Hz
     for row in fm.amplitude[2:-2]:
         p = row ** 2
         mean = np.sum(p * np.arange(len(p))) / p.sum()
         std = math.sqrt(np.sum(p * (np.arange(len(p)) - mean) ** 2) / p.sum())
         assert math.sqrt(12) * std == pytest.approx(expected_bins, rel=0.1)
-    s = order_spectrum(order_track(x, rate, angle, samples_per_rev=64), revs_per_block=8)
+    s = order_spectrum(resample_to_angle(x, rate, angle, samples_per_rev=64), revs_per_block=8)
     p = s.amplitude ** 2
     near = np.abs(s.order - k) <= 2 / 8
     assert p[near].sum() / p.sum() > 0.999
     assert s.amplitude[np.argmin(np.abs(s.order - k))] == pytest.approx(1.0, abs=0.01)
 
 
-def test_rpm_frequency_map_amplitude_and_speed():
+def test_frequency_map_amplitude_and_speed():
     rate = 1024.0
     t = np.arange(int(8 * rate)) / rate
     angle = ShaftAngle.from_speed_table([1.0, 7.0], [600.0, 1200.0])
     x = 2.0 * np.sin(2 * np.pi * 100.0 * t)                # on a bin of 0.25 Hz
-    fm = rpm_frequency_map(x, rate, angle, nperseg=4096, overlap=0.5, max_hz=200.0)
+    fm = frequency_map(x, rate, angle, nperseg=4096, overlap=0.5, max_hz=200.0)
     assert fm.hz[-1] == 200.0
     assert np.allclose(fm.amplitude[:, 400], 2.0, rtol=1e-12)
     assert np.allclose(fm.rpm, angle.rpm_at(fm.time_s))
@@ -400,15 +400,15 @@ def test_envelope_and_rpm_map_options_are_checked():
     with pytest.raises(InputError, match="at least 64"):
         envelope_order_spectrum(x[:10], 1000.0, angle, band_hz=(100, 200))
     with pytest.raises(InputError, match="ShaftAngle"):
-        rpm_frequency_map(x, 1000.0, None)
+        frequency_map(x, 1000.0, None)
     with pytest.raises(InputError, match="nperseg"):
-        rpm_frequency_map(x, 1000.0, angle, nperseg=4)
+        frequency_map(x, 1000.0, angle, nperseg=4)
     with pytest.raises(InputError, match="max_hz"):
-        rpm_frequency_map(x, 1000.0, angle, nperseg=64, max_hz=0.0)
+        frequency_map(x, 1000.0, angle, nperseg=64, max_hz=0.0)
     with pytest.raises(InputError, match="shorter than one block"):
-        rpm_frequency_map(x, 1000.0, angle, nperseg=4096)
+        frequency_map(x, 1000.0, angle, nperseg=4096)
     with pytest.raises(InputError, match="no block centre"):
-        rpm_frequency_map(x, 1000.0, ShaftAngle.from_rpm(600.0, 1.0, start_s=9.0), nperseg=64)
+        frequency_map(x, 1000.0, ShaftAngle.from_rpm(600.0, 1.0, start_s=9.0), nperseg=64)
 
 
 def test_peak_options_are_checked():

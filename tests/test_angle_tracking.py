@@ -16,8 +16,8 @@ from hypothesis import strategies as st
 
 from workbench.angle.spectra import order_map, order_spectrum
 from workbench.angle.tacho import ShaftAngle, detect_pulses, tacho_angle
-from workbench.angle.tracking import (AngleSignal, OrderTracker, iter_order_track,
-                                      order_track)
+from workbench.angle.tracking import (AngleSignal, OrderTracker, iter_resample_to_angle,
+                                      resample_to_angle)
 from workbench.errors import FoldlineWarning, InputError
 
 F0, F1, DUR = 10.0, 60.0, 12.0          # rev/s, rev/s, s: 600 -> 3600 rpm
@@ -55,7 +55,7 @@ def test_pure_order_tone_within_minus_80_db_of_the_exact_angle_signal():
     angle = runup_angle()
     for order in (1.0, 12.5, 25.6):
         # 25.6 x 60 rev/s = 1536 Hz, below 0.4 x rate = 1638 Hz
-        sig = order_track(tone(t, order), rate, angle, samples_per_rev=SPR)
+        sig = resample_to_angle(tone(t, order), rate, angle, samples_per_rev=SPR)
         keep = slice(2 * SPR, -2 * SPR)
         exact = np.cos(2 * np.pi * order * sig.revs + 0.3)
         assert rel_rms_db(sig.data[keep] - exact[keep], np.sqrt(0.5)) < -80.0, order
@@ -73,7 +73,7 @@ def test_order_amplitudes_within_0_1_db_on_a_run_up_from_a_tacho():
     orders = (1.0, 7.2, 16.0, 25.6)
     amps = (1.0, 0.5, 0.25, 2.0)
     x = sum(a * tone(t, k, phase=k) for k, a in zip(orders, amps))
-    sig = order_track(x, rate, angle, samples_per_rev=SPR)
+    sig = resample_to_angle(x, rate, angle, samples_per_rev=SPR)
     m = order_map(sig, revs_per_block=5, overlap=0.0)           # bins every 0.2 orders
     rows = slice(1, -1)                                          # whole blocks inside
     for k, a in zip(orders, amps):
@@ -97,7 +97,7 @@ def test_content_above_the_order_nyquist_is_80_db_down_anywhere(alias_case):
     # least 80 dB below its level anywhere in the order spectrum (here: in every block of the
     # order map, at every order).
     x, rate = alias_case
-    sig = order_track(x, rate, runup_angle(), samples_per_rev=SPR)
+    sig = resample_to_angle(x, rate, runup_angle(), samples_per_rev=SPR)
     m = order_map(sig, revs_per_block=8)
     worst_db = 20 * np.log10(np.max(m.amplitude[1:-1]))
     assert worst_db < -80.0
@@ -107,7 +107,7 @@ def test_without_protection_the_same_content_folds(alias_case):
     # Control for the test above: plain resampling at the target grid lets order 40 fold to
     # order 64 - 40 = 24 at full level (folding, common practice).
     x, rate = alias_case
-    sig = order_track(x, rate, runup_angle(), samples_per_rev=SPR, protect=False)
+    sig = resample_to_angle(x, rate, runup_angle(), samples_per_rev=SPR, protect=False)
     s = order_spectrum(sig, revs_per_block=8)
     assert 20 * np.log10(np.max(s.amplitude)) > -20.0
     i24 = int(np.argmin(np.abs(s.order - 24.0)))
@@ -120,7 +120,7 @@ def test_order_just_above_the_nyquist_is_removed_too():
     t = np.arange(int(6.0 * rate)) / rate
     angle = runup_angle(6.0, 10.0, 20.0)
     x = np.cos(2 * np.pi * 33.0 * theta_of(t, 6.0, 10.0, 20.0))
-    m = order_map(order_track(x, rate, angle, samples_per_rev=SPR), revs_per_block=8)
+    m = order_map(resample_to_angle(x, rate, angle, samples_per_rev=SPR), revs_per_block=8)
     assert 20 * np.log10(np.max(m.amplitude[1:-1])) < -80.0
 
 
@@ -128,7 +128,7 @@ def test_rpm_and_grid_follow_the_angle():
     rate = 2048.0
     t = np.arange(int(4.0 * rate)) / rate
     angle = runup_angle(4.0, 10.0, 15.0)
-    sig = order_track(np.zeros_like(t), rate, angle, samples_per_rev=32)
+    sig = resample_to_angle(np.zeros_like(t), rate, angle, samples_per_rev=32)
     assert sig.revs_start == 0.0 and sig.samples_per_rev == 32
     assert np.allclose(sig.revs, np.arange(sig.n_samples) / 32)
     times = angle.time_at_revs(sig.revs)
@@ -142,11 +142,11 @@ def test_grid_starts_at_the_first_whole_step_inside_the_angle():
     rate = 2048.0
     angle = ShaftAngle.from_rpm(600.0, 3.0, start_s=0.5013)
     x = np.zeros(int(4 * rate))
-    sig = order_track(x, rate, angle, samples_per_rev=16)
+    sig = resample_to_angle(x, rate, angle, samples_per_rev=16)
     assert sig.revs_start == 0.0
     assert sig.revs[-1] == pytest.approx(30.0)
     late = ShaftAngle.from_speed_table([-1.0, 2.0], [600.0, 600.0])     # starts before t = 0
-    sig = order_track(x, rate, late, samples_per_rev=16)
+    sig = resample_to_angle(x, rate, late, samples_per_rev=16)
     assert sig.revs_start == pytest.approx(10.0)
 
 
@@ -157,12 +157,12 @@ def test_chunked_tracking_equals_whole_record(cuts):
     t = np.arange(8192) / rate
     angle = runup_angle(4.0, 10.0, 14.0)
     x = np.cos(2 * np.pi * 5 * theta_of(t, 4.0, 10.0, 14.0)) + 0.1 * np.sin(2 * np.pi * 300 * t)
-    whole = order_track(x, rate, angle, samples_per_rev=32)
+    whole = resample_to_angle(x, rate, angle, samples_per_rev=32)
     pieces = np.split(x, sorted(set(cuts)))
-    chunked = order_track(iter(pieces), rate, angle, samples_per_rev=32)
+    chunked = resample_to_angle(iter(pieces), rate, angle, samples_per_rev=32)
     assert np.array_equal(chunked.data, whole.data)
     assert np.array_equal(chunked.rpm, whole.rpm)
-    streamed = list(iter_order_track(lambda: iter(pieces), rate, angle, samples_per_rev=32))
+    streamed = list(iter_resample_to_angle(lambda: iter(pieces), rate, angle, samples_per_rev=32))
     joined = AngleSignal.concatenate(streamed)
     assert np.array_equal(joined.data, whole.data)
     assert streamed[-1].log == whole.log
@@ -189,7 +189,7 @@ def test_fast_speed_change_narrows_the_passband_with_a_warning():
     x = np.random.default_rng(1).standard_normal(int(2 * rate))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        sig = order_track(x, rate, angle, samples_per_rev=16)
+        sig = resample_to_angle(x, rate, angle, samples_per_rev=16)
     assert any(issubclass(w.category, FoldlineWarning) and "narrowed" in str(w.message)
                for w in caught)
     assert any("passband narrowed" in line for line in sig.log)
@@ -214,15 +214,15 @@ def test_tracker_arguments_are_checked(kwargs, match):
 def test_bad_inputs_are_refused():
     angle = ShaftAngle.from_rpm(600.0, 1.0)
     with pytest.raises(InputError, match="ShaftAngle"):
-        order_track(np.zeros(100), 100.0, np.arange(10.0))
+        resample_to_angle(np.zeros(100), 100.0, np.arange(10.0))
     with pytest.raises(InputError, match="1-D"):
-        order_track(np.zeros((2, 100)), 100.0, angle)
+        resample_to_angle(np.zeros((2, 100)), 100.0, angle)
     with pytest.raises(InputError, match="NaN"):
-        order_track(np.array([0.0, np.nan] * 100), 100.0, angle)
+        resample_to_angle(np.array([0.0, np.nan] * 100), 100.0, angle)
     with pytest.raises(InputError, match="empty"):
-        order_track(np.empty(0), 100.0, angle)
+        resample_to_angle(np.empty(0), 100.0, angle)
     with pytest.raises(InputError, match="share no complete angle step"):
-        order_track(np.zeros(1000), 1000.0, ShaftAngle.from_rpm(600.0, 1.0, start_s=5.0))
+        resample_to_angle(np.zeros(1000), 1000.0, ShaftAngle.from_rpm(600.0, 1.0, start_s=5.0))
     with pytest.raises(InputError, match="before the record starts"):
         OrderTracker(100.0, ShaftAngle.from_rpm(600.0, 1.0, start_s=-5.0))
     with pytest.raises(InputError, match="not consecutive"):

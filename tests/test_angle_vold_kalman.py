@@ -22,7 +22,7 @@ import pytest
 import scipy.sparse as sp
 from scipy.sparse.linalg import spsolve
 
-from workbench.angle import ShaftAngle, order_spectrum, order_track
+from workbench.angle import ShaftAngle, order_spectrum, resample_to_angle
 from workbench.angle.vold_kalman import (extract_orders, vk_bandwidth_hz, vk_response,
                                          vk_weighting)
 from workbench.errors import FoldlineWarning, InputError
@@ -243,7 +243,7 @@ def test_steady_order_agrees_with_computed_order_tracking():
     rng = np.random.default_rng(3)
     x = 0.7 * np.cos(2 * np.pi * 3 * revs + 0.2) + 0.2 * np.cos(2 * np.pi * 7 * revs) \
         + 0.05 * rng.standard_normal(len(t))
-    sig = order_track(x, rate, angle, samples_per_rev=64)
+    sig = resample_to_angle(x, rate, angle, samples_per_rev=64)
     spec = order_spectrum(sig, revs_per_block=32, window="flattop")
     cot = float(spec.amplitude[np.argmin(np.abs(spec.order - 3.0))])
     ex = extract_orders(x, rate, angle, (3, 7), bandwidth_hz=1.0)

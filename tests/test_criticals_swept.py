@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from workbench.angle import order_track, tacho_angle
+from workbench.angle import resample_to_angle, tacho_angle
 from workbench.angle.order_tracks import find_criticals, order_tracks
 from workbench.sampling.resonance import passage_loss_db
 
@@ -47,7 +47,7 @@ def _swept_rotor(zeta, n0, n1, t_end, revs_per_block=8.0):
     angle = tacho_angle(pulses, pulses_per_rev=1)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")     # a fast sweep narrows the tracker's passband
-        sig = order_track(sol.sol(t)[0], RATE, angle, samples_per_rev=16)
+        sig = resample_to_angle(sol.sol(t)[0], RATE, angle, samples_per_rev=16)
         track, = order_tracks(sig, [1], once_per_rev=True, revs_per_block=revs_per_block)
         return find_criticals(track)
 

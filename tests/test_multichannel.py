@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from workbench.angle import ShaftAngle
-from workbench.angle.tracking import OrderTracker, iter_order_track_channels, order_track
+from workbench.angle.tracking import OrderTracker, iter_resample_to_angle_channels, resample_to_angle
 from workbench.cli.main import main
 from workbench.cli.options import parse_channels
 from workbench.errors import InputError, RunFileError
@@ -108,14 +108,14 @@ def test_tracker_on_a_2d_chunk_stream_equals_one_channel_at_a_time():
     x = np.vstack([np.cos(2 * np.pi * 3 * th), 0.5 * np.sin(2 * np.pi * 11 * th),
                    np.cos(2 * np.pi * 40 * th)])
     chunks = [x[:, i:i + 5000] for i in range(0, x.shape[1], 5000)]
-    pieces = list(iter_order_track_channels(chunks, RATE, angle, samples_per_rev=32, threads=2))
+    pieces = list(iter_resample_to_angle_channels(chunks, RATE, angle, samples_per_rev=32, threads=2))
     for r in range(3):
-        alone = order_track(x[r], RATE, angle, samples_per_rev=32)
+        alone = resample_to_angle(x[r], RATE, angle, samples_per_rev=32)
         joined = np.concatenate([p[r].data for p in pieces])
         assert np.array_equal(joined, alone.data)
     # One channel on a thread pool: the serial result exactly.
-    sig = order_track(x[0], RATE, angle, samples_per_rev=32)
-    assert np.array_equal(order_track(x[0], RATE, angle, samples_per_rev=32, threads=3).data,
+    sig = resample_to_angle(x[0], RATE, angle, samples_per_rev=32)
+    assert np.array_equal(resample_to_angle(x[0], RATE, angle, samples_per_rev=32, threads=3).data,
                           sig.data)
     # Check against the analytic angle-domain signal (order 3, amplitude 1) away from the ends.
     inner = slice(200, -200)

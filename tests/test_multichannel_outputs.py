@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from test_multichannel import DURATION, RATE, RPM0, RPM1, _run
-from workbench.angle.tracking import order_track
+from workbench.angle.tracking import resample_to_angle
 from workbench.cli.main import main
 from workbench.runs import write_run
 
@@ -30,7 +30,7 @@ def test_cli_out_writes_one_folder_per_channel(run_file, tmp_path, capsys):
     d = json.loads(capsys.readouterr().out)
     for name in ("acc_1", "acc_2"):
         assert (out / name / "order_spectrum.csv").is_file()
-        assert (out / name / "rpm_frequency_map.png").is_file()   # written, so computed
+        assert (out / name / "frequency_map.png").is_file()   # written, so computed
     assert all(str(out) in f for f in d["files"])
     # Again without --force: refused before any work, one line.
     assert main(["track", str(run_file), "--channel", "1,2", "--out", str(out), "--json"]) == 2
@@ -73,5 +73,5 @@ def test_angle_panel_tracks_ticked_channels_together(tmp_path):
     panel.samples_per_rev.value = 32        # acc 1 shown; acc 3 tracked in the same pass
     assert ("acc 3", 32, True) in panel._tracks._items and panel.error is None
     panel.channel.value = "acc 3"           # a cache hit: nothing tracked again
-    alone = order_track(run.channel("acc 3"), RATE, panel.tacho()[1], samples_per_rev=32)
+    alone = resample_to_angle(run.channel("acc 3"), RATE, panel.tacho()[1], samples_per_rev=32)
     assert np.array_equal(panel.track().data, alone.data)

@@ -124,7 +124,7 @@ def test_without_machine_every_measured_line_is_listed(unmodelled_run):
 # -- figures: measurement first ----------------------------------------------------------------
 
 def test_overlay_is_off_by_default_and_thin_when_on(tracked):
-    from workbench.plots import plot_order_map, plot_rpm_frequency_map
+    from workbench.plots import plot_order_map, plot_frequency_map
     from workbench.plots.angle import OVERLAY_ALPHA
 
     m, a = _machine(), tracked
@@ -138,7 +138,7 @@ def test_overlay_is_off_by_default_and_thin_when_on(tracked):
     ax = fig.axes[0]
     assert len(ax.lines) > 0 and "overlaid" in ax.get_title()
     assert all(ln.get_linewidth() <= 0.6 and ln.get_alpha() <= OVERLAY_ALPHA for ln in ax.lines)
-    fig = plot_rpm_frequency_map(a.rf_map, lines=m.lines(), rate_hz=RATE, title="rf")
+    fig = plot_frequency_map(a.rf_map, lines=m.lines(), rate_hz=RATE, title="rf")
     assert len(fig.axes[0].lines) == 0 and fig.axes[0].get_title() == "rf"
 
 

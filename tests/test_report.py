@@ -129,7 +129,7 @@ def test_report_opens_offline_with_no_error_and_no_request(browser_page, report_
     assert events["requests"] == [out.as_uri()]
     # Fold maps (Hz and order view) of the worst candidate and the recommended rate, the
     # plan's Campbell diagram (the demo machine has resonances), then the run's tacho check,
-    # order spectrum, order map, order cuts, overall level, rpm-frequency map, Bode, polar and
+    # order spectrum, order map, order cuts, overall level, frequency map, Bode, polar and
     # Campbell views, and the demo plan's acceptance limits drawn on the levels they judge.
     assert page.locator("figure.plot svg").count() == 15
     assert page.locator("script").count() == 1

@@ -24,7 +24,7 @@ from workbench.machine import machine_from_dict, machine_to_dict, read_machine  
 from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
                                 read_plan)
 from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_map,  # noqa: E402
-                             order_spectrum, order_track, tacho_angle)
+                             order_spectrum, resample_to_angle, tacho_angle)
 from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
 from workbench.runs import read_run, simulate_run  # noqa: E402
 from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
@@ -393,7 +393,7 @@ def direct(run_path, machine):
     pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
     angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
                         sample_rate_hz=run.rate_hz)
-    sig = order_track(run.channel("vibration"), run.rate_hz, angle, samples_per_rev=256)
+    sig = resample_to_angle(run.channel("vibration"), run.rate_hz, angle, samples_per_rev=256)
     omap = order_map(sig, revs_per_block=20, max_order=100.0)
     # The identification settings of the command-line tracking (track_run): 20 dB floor, 60
     # ridge points per block, 1.5 bins of tolerance.

@@ -6,20 +6,20 @@ Typical flow::
 
     pulses = detect_pulses(tacho, rate_hz)
     angle = tacho_angle(pulses, pulses_per_rev=60, missing_pulses=2)
-    sig = order_track(x, rate_hz, angle, samples_per_rev=256)
+    sig = resample_to_angle(x, rate_hz, angle, samples_per_rev=256)
     spec = order_spectrum(sig, revs_per_block=32)
 
 For records larger than memory, feed chunks to :func:`detect_pulses` and stream the tracked
-signal into :func:`order_map` with :func:`iter_order_track`.
+signal into :func:`order_map` with :func:`iter_resample_to_angle`.
 """
 
 from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPeaks,
                                      OrderSpectrum, RpmFrequencyMap, WindowGains,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
-                                     order_map, order_spectrum, rpm_frequency_map, window_gains)
+                                     order_map, order_spectrum, frequency_map, window_gains)
 from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
                                    detect_pulses, tacho_angle)
-from workbench.angle.tracking import AngleSignal, OrderTracker, iter_order_track, order_track
+from workbench.angle.tracking import AngleSignal, OrderTracker, iter_resample_to_angle, resample_to_angle
 from workbench._lazy import lazy_names
 
 # Order extraction, the speed from the vibration and order tracks with phase are imported on
@@ -39,10 +39,10 @@ __getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
-    "AngleSignal", "OrderTracker", "order_track", "iter_order_track",
+    "AngleSignal", "OrderTracker", "resample_to_angle", "iter_resample_to_angle",
     "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
-    "envelope_order_spectrum", "rpm_frequency_map", "find_order_peaks",
+    "envelope_order_spectrum", "frequency_map", "find_order_peaks",
     "OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",
     "SpeedEstimate", "speed_from_vibration", "speed_from_channel",
     "CriticalSearch", "CriticalSpeed", "OrderTrack", "RejectedPeak", "find_criticals",

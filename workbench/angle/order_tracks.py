@@ -201,7 +201,7 @@ def order_tracks(sig, orders=DEFAULT_TRACK_ORDERS, *, once_per_rev: bool = False
     ----------
     sig : AngleSignal or iterable of AngleSignal
         The tracked signal, whole or as consecutive pieces (e.g. from
-        :func:`~workbench.angle.tracking.iter_order_track`); angle 0 of its shaft angle is the
+        :func:`~workbench.angle.tracking.iter_resample_to_angle`); angle 0 of its shaft angle is the
         phase reference.
     orders : sequence of float
         Orders to track (> 0, below the order Nyquist); default 1 and 2.

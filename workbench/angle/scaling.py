@@ -154,7 +154,7 @@ def integrate_order_map(order_map, *, to="velocity", unit="m/s^2", min_hz=DEFAUL
 
 
 def integrate_frequency_map(rf_map, *, to="velocity", unit="m/s^2", min_hz=DEFAULT_MIN_HZ):
-    """An rpm-frequency map of acceleration integrated to velocity (mm/s) or displacement (um)."""
+    """A frequency map of acceleration integrated to velocity (mm/s) or displacement (um)."""
     if to not in INTEGRATIONS:
         raise InputError(f"integrate to {to!r}: allowed: " + ", ".join(INTEGRATIONS))
     power = 1 if to == "velocity" else 2

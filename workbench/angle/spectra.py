@@ -1,4 +1,4 @@
-"""Order spectra, order maps, order cuts, envelope order spectra and rpm-frequency maps.
+"""Order spectra, order maps, order cuts, envelope order spectra and frequency maps.
 
 All spectra are block FFTs with a window, amplitude-corrected for the window's coherent gain
 (a sinusoid centred on a bin shows its own amplitude), averaged over blocks on power (RMS
@@ -7,7 +7,7 @@ amplitudes, ``"rms"`` RMS amplitudes (peak / sqrt 2; the DC bin is the same in b
 
 Order spectra and maps are computed from the angle signal block by block
 (:class:`OrderAnalysis`), so they accept the pieces streamed by
-:func:`~workbench.angle.tracking.iter_order_track` as well as a whole
+:func:`~workbench.angle.tracking.iter_resample_to_angle` as well as a whole
 :class:`~workbench.angle.tracking.AngleSignal`: memory is the output plus one block.
 
 References
@@ -33,7 +33,7 @@ from numpy.lib.stride_tricks import sliding_window_view
 
 from workbench.angle._common import finite_real, iter_chunks, one_d, positive_int, positive_rate
 from workbench.angle.tacho import ShaftAngle
-from workbench.angle.tracking import AngleSignal, iter_order_track
+from workbench.angle.tracking import AngleSignal, iter_resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = [
@@ -41,7 +41,7 @@ __all__ = [
     "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "OrderAnalysis",
     "order_spectrum", "order_map", "order_cut", "envelope_order_spectrum",
-    "rpm_frequency_map", "find_order_peaks", "peak_amplitude",
+    "frequency_map", "find_order_peaks", "peak_amplitude",
     "DEFAULT_REVS_PER_BLOCK", "SCALINGS",
 ]
 
@@ -555,7 +555,7 @@ class OrderAnalysis:
         gap in the angle (blocks then start afresh: none spans the gap)."""
         if not isinstance(sig, AngleSignal):
             raise InputError(f"piece of type {type(sig).__name__} is not valid; allowed: "
-                             "AngleSignal pieces (from order_track / iter_order_track)")
+                             "AngleSignal pieces (from resample_to_angle / iter_resample_to_angle)")
         if self._blocks is None:
             self._spr = sig.samples_per_rev
             rpb, n = _revs_per_block(*self._rpb_args, self._spr)
@@ -677,7 +677,7 @@ def order_spectrum(sig, *, revs_per_block=None, order_resolution=None, window="h
     ----------
     sig : AngleSignal or iterable of AngleSignal
         The tracked signal, whole or as consecutive pieces (e.g. from
-        :func:`~workbench.angle.tracking.iter_order_track`).
+        :func:`~workbench.angle.tracking.iter_resample_to_angle`).
     revs_per_block : float, optional
         Revolutions per block (order resolution 1 / revs_per_block); default 32.
     order_resolution : float, optional
@@ -848,7 +848,7 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     revs_per_block, order_resolution, window, overlap, scaling
         As for :func:`order_spectrum`.
     protect : bool
-        Alias protection of the tracking (see :func:`~workbench.angle.tracking.order_track`).
+        Alias protection of the tracking (see :func:`~workbench.angle.tracking.resample_to_angle`).
 
     Returns
     -------
@@ -878,13 +878,13 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     band = sosfiltfilt(sos, xa)
     env = np.abs(hilbert(band, sfft.next_fast_len(len(band)))[:len(band)])
     env -= env.mean()
-    sig = iter_order_track(env, rate_hz, angle, samples_per_rev=samples_per_rev,
+    sig = iter_resample_to_angle(env, rate_hz, angle, samples_per_rev=samples_per_rev,
                            protect=protect)     # pieces: an angle with gaps is fine
     return order_spectrum(sig, revs_per_block=revs_per_block, order_resolution=order_resolution,
                           window=window, overlap=overlap, scaling=scaling)
 
 
-def rpm_frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
+def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
                       overlap: float = 0.5, window="hann", scaling: str = "peak",
                       max_hz: float | None = None, rpm_bins=None) -> RpmFrequencyMap:
     """Spectra of fixed-length time blocks against speed (no angle resampling).

@@ -94,8 +94,8 @@ from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, on
 from workbench.angle.tacho import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
-__all__ = ["AngleSignal", "OrderTracker", "order_track", "iter_order_track",
-           "iter_order_track_channels", "kaiser_lowpass", "resolve_threads",
+__all__ = ["AngleSignal", "OrderTracker", "resample_to_angle", "iter_resample_to_angle",
+           "iter_resample_to_angle_channels", "kaiser_lowpass", "resolve_threads",
            "PROTECTION_DB", "DEFAULT_MAX_ORDER_FRACTION"]
 
 #: Stopband attenuation and passband ripple (as -20 log10) of the alias-protection low-pass, dB.
@@ -829,7 +829,7 @@ def _merge_spans(spans):
     return out
 
 
-def iter_order_track_channels(x, rate_hz: float, angle: ShaftAngle, *,
+def iter_resample_to_angle_channels(x, rate_hz: float, angle: ShaftAngle, *,
                               samples_per_rev: int = 256, protect: bool = True,
                               max_order: float | None = None, threads: int | None = 1
                               ) -> Iterator[tuple[AngleSignal, ...]]:
@@ -844,7 +844,7 @@ def iter_order_track_channels(x, rate_hz: float, angle: ShaftAngle, *,
     x : array_like, shape (n_channels, n); or iterable of 2-D chunks; or callable returning one
         The channels, sampled at ``rate_hz`` from time 0 (chunks cut along time).
     rate_hz, angle, samples_per_rev, protect, max_order
-        As for :func:`order_track`.
+        As for :func:`resample_to_angle`.
     threads : int or None
         Threads filtering and interpolating consecutive blocks (None: the machine's cores);
         the result does not depend on it.
@@ -859,8 +859,8 @@ def iter_order_track_channels(x, rate_hz: float, angle: ShaftAngle, *,
     last = None
     for pieces in tracker.stream(x):
         if not isinstance(pieces, tuple):
-            raise InputError("iter_order_track_channels needs 2-D chunks (channels x samples); "
-                             "for one 1-D channel use iter_order_track")
+            raise InputError("iter_resample_to_angle_channels needs 2-D chunks (channels x samples); "
+                             "for one 1-D channel use iter_resample_to_angle")
         if last is not None:
             yield last
         last = pieces
@@ -869,13 +869,13 @@ def iter_order_track_channels(x, rate_hz: float, angle: ShaftAngle, *,
                     for p in last)
 
 
-def iter_order_track(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 256,
+def iter_resample_to_angle(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 256,
                      protect: bool = True, max_order: float | None = None,
                      threads: int | None = 1) -> Iterator[AngleSignal]:
     """Computed order tracking as a stream of consecutive angle-domain pieces.
 
-    Same parameters as :func:`order_track` (and ``threads``, as for
-    :func:`iter_order_track_channels`); use it (with :func:`order_spectrum` /
+    Same parameters as :func:`resample_to_angle` (and ``threads``, as for
+    :func:`iter_resample_to_angle_channels`); use it (with :func:`order_spectrum` /
     :func:`order_map`, which accept the stream) when the angle signal need not be held whole.
 
     Yields
@@ -895,7 +895,7 @@ def iter_order_track(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: i
                           tracker.log)
 
 
-def order_track(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 256,
+def resample_to_angle(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 256,
                 protect: bool = True, max_order: float | None = None,
                 threads: int | None = 1) -> AngleSignal:
     """Resample a channel at constant shaft-angle increments (computed order tracking).
@@ -904,7 +904,7 @@ def order_track(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 
     ----------
     x : array_like, shape (n,); or iterable of 1-D chunks; or callable returning one
         The channel, sampled at ``rate_hz`` from time 0.  Chunks let a record larger than
-        memory be tracked (the result itself is held whole; see :func:`iter_order_track`).
+        memory be tracked (the result itself is held whole; see :func:`iter_resample_to_angle`).
     rate_hz : float
         Sample rate (Hz).
     angle : ShaftAngle
@@ -955,7 +955,7 @@ def order_track(x, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 
     >>> rate = 4096.0
     >>> angle = ShaftAngle.from_speed_table([0.0, 4.0], [600.0, 900.0])
     >>> t = np.arange(int(4 * rate) + 1) / rate
-    >>> sig = order_track(np.sin(2 * np.pi * 2 * angle.revs_at(t)), rate, angle,
+    >>> sig = resample_to_angle(np.sin(2 * np.pi * 2 * angle.revs_at(t)), rate, angle,
     ...                   samples_per_rev=64)
     >>> sig.revolutions, float(sig.rpm[0]), float(sig.rpm[-1])
     (50.015625, 600.0, 900.0)

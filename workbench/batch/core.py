@@ -86,7 +86,7 @@ class BatchSettings:
         Keyword options of :func:`~workbench.runs.analysis.track_channels` (``channels``:
         one or several channels or ``"all"``; ``tacho``, ``rpm``, ``samples_per_rev``,
         ``threads`` (default 1 per worker), ...), as sorted pairs so the settings are
-        hashable.  The rpm-frequency map is not computed (``rf_map=False``) unless asked for
+        hashable.  The frequency map is not computed (``rf_map=False``) unless asked for
         here.
     machine_path, plan_path : str or None
         Machine file (predicted lines, alias identification) and plan file (bands whose level

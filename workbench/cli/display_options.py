@@ -16,7 +16,7 @@ def add_display_options(p) -> None:
 
     g = p.add_argument_group("display")
     g.add_argument("--overlay", choices=OVERLAYS, default="none",
-                   help="predicted lines drawn over the order map, the rpm-frequency map and the order "
+                   help="predicted lines drawn over the order map, the frequency map and the order "
                         "spectrum: none (default: the measurement alone), matched (the lines matched "
                         "to measured ridges), all")
     g.add_argument("--amplitude", choices=("peak", "rms"), default="peak",

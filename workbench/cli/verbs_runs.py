@@ -218,7 +218,7 @@ def cmd_track(args) -> int:
         folders = channel_folders(out, [run.channels[i].name for i in rows])
         for folder in folders.values():
             _check_out_folder(folder, force=args.force)
-    # The rpm-frequency map is only drawn into --out: without it, it is not computed.
+    # The frequency map is only drawn into --out: without it, it is not computed.
     multi = track_channels(run, channels=tuple(i + 1 for i in rows), machine=args.machine,
                            protect=not args.no_protect, max_order=args.max_order,
                            rf_map=out is not None, aa_filter=aa_filter, **opts,
@@ -311,9 +311,9 @@ def _print_limits(limits) -> None:
 TRACK_FILES = (
     "order_spectrum.csv", "peaks.csv", "envelope_peaks.csv", "order_cuts.csv", "identification.csv",
     "unmatched.csv", "overall_level.csv", "overall_level.png", "order_map.npz", "order_map.parquet",
-    "rpm_frequency_map.npz", "rpm_frequency_map.parquet", "order_waterfall.png",
+    "frequency_map.npz", "frequency_map.parquet", "order_waterfall.png",
     "doubted_pulses.csv", "tacho_check.png", "order_spectrum.png", "order_map.png", "order_cuts.png",
-    "rpm_frequency_map.png",
+    "frequency_map.png",
 )
 
 
@@ -338,7 +338,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     import numpy as np
     import pandas as pd
 
-    from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_rpm_frequency_map,
+    from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum, plot_frequency_map,
                                  plot_tacho_check, save_figure)
 
     out.mkdir(parents=True, exist_ok=True)
@@ -409,10 +409,10 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
                                   title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
                "overall_level.png")
     if a.rf_map is not None:
-        figure(plot_rpm_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, overlay=overlay,
+        figure(plot_frequency_map(a.rf_map, lines=lines, rate_hz=a.rate_hz, unit=a.unit, overlay=overlay,
                                       identification=a.identification, valid=valid, db=db, **shown,
-                                      title=f"rpm-frequency map: {Path(a.source).name}"),
-               "rpm_frequency_map.png")
+                                      title=f"Frequency map (Campbell diagram): {Path(a.source).name}"),
+               "frequency_map.png")
     return files
 
 
@@ -441,7 +441,7 @@ def _print_track_channels(multi, files) -> None:
 
 
 def _write_maps(a, out: Path, *, force: bool) -> list:
-    """The order map and the rpm-frequency map as data: NPZ, and Parquet when pyarrow is there."""
+    """The order map and the frequency map as data: NPZ, and Parquet when pyarrow is there."""
     import importlib.util
     import warnings as _w
 
@@ -454,7 +454,7 @@ def _write_maps(a, out: Path, *, force: bool) -> list:
         _w.warn("the maps are written as NPZ only: Parquet needs pyarrow (pip install 'foldline[batch]')",
                 FoldlineWarning, stacklevel=2)
     written = []
-    for obj, stem in ((a.order_map, "order_map"), (a.rf_map, "rpm_frequency_map")):
+    for obj, stem in ((a.order_map, "order_map"), (a.rf_map, "frequency_map")):
         if obj is None:
             continue
         d = map_data(obj, unit=a.unit, amplitude_scaling=how)

@@ -19,6 +19,7 @@ from workbench.machine.machinefile import (
 from workbench.machine.model import (
     DEFAULT_DAMPING_RATIO,
     FIXED,
+    KIND_NAMES,
     LINE_KINDS,
     MODE_TYPES,
     ROTATING_RACES,
@@ -38,6 +39,7 @@ from workbench.machine.model import (
     Shaft,
     Source,
     bearing_frequencies,
+    kind_name,
     planetary_frequencies,
 )
 
@@ -47,7 +49,9 @@ __all__ = [
     "MODE_TYPES",
     "Resonance",
     "FIXED",
+    "KIND_NAMES",
     "LINE_KINDS",
+    "kind_name",
     "ROTATING_RACES",
     "SOURCE_TYPES",
     "Bearing",

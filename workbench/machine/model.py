@@ -34,6 +34,8 @@ from workbench.errors import FoldlineWarning, InputError, MachineFileError, Trai
 __all__ = [
     "FIXED",
     "LINE_KINDS",
+    "KIND_NAMES",
+    "kind_name",
     "MODE_TYPES",
     "ROTATING_RACES",
     "SOURCE_TYPES",
@@ -80,6 +82,30 @@ LINE_KINDS = (
     "planet_fault",
     "ring_fault",
 )
+
+#: How each ``Line.kind`` reads in legends and tables (the key stays in files and JSON).
+KIND_NAMES = {
+    "shaft": "shaft",
+    "mesh": "gear mesh",
+    "sideband": "sideband",
+    "ftf": "cage (FTF)",
+    "bpfo": "outer race (BPFO)",
+    "bpfi": "inner race (BPFI)",
+    "bsf": "rolling element (BSF)",
+    "rotor": "blade or vane pass",
+    "order": "order",
+    "line": "fixed line",
+    "planet_pass": "planet pass",
+    "planet_spin": "planet spin",
+    "sun_fault": "sun fault",
+    "planet_fault": "planet fault",
+    "ring_fault": "ring fault",
+}
+
+
+def kind_name(kind: str) -> str:
+    """The readable name of a line kind ("planet_pass" -> "planet pass"); unknown keys as given."""
+    return KIND_NAMES.get(kind, str(kind).replace("_", " "))
 
 # Relative tolerance for two routes through the train giving one shaft the same speed.
 _TRAIN_RTOL = 1e-9

@@ -5,7 +5,7 @@ state), so they are safe in scripts, notebooks, threads and Dask workers.
 """
 
 from workbench.plots.angle import (plot_order_cuts, plot_order_envelopes, plot_order_map,
-                                   plot_order_spectrum, plot_rpm_frequency_map, plot_tacho_check,
+                                   plot_order_spectrum, plot_frequency_map, plot_tacho_check,
                                    speed_check_options)
 from workbench.plots.criticals import plot_bode, plot_campbell, plot_polar, run_up_figures
 from workbench.plots.common import figure_bytes, new_figure, save_figure
@@ -21,7 +21,7 @@ __all__ = [
     "plot_order_map",
     "plot_order_cuts",
     "plot_order_envelopes",
-    "plot_rpm_frequency_map",
+    "plot_frequency_map",
     "plot_bode",
     "plot_polar",
     "plot_campbell",

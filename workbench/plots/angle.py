@@ -1,4 +1,4 @@
-"""Angle-domain figures: tacho check, order spectrum, order map, order cuts, rpm-frequency map.
+"""Angle-domain figures: tacho check, order spectrum, order map, order cuts, frequency map.
 
 The machine's predicted lines are overlaid where a machine is given: direct lines at their
 order, folded lines at their apparent order (which moves with speed), identified aliases
@@ -12,6 +12,7 @@ import numpy as np
 from matplotlib.colors import LogNorm
 from matplotlib.lines import Line2D
 
+from workbench.machine.model import kind_name
 from workbench.plots.common import KIND_COLOURS, new_figure, place_labels
 
 __all__ = [
@@ -19,7 +20,7 @@ __all__ = [
     "plot_order_spectrum",
     "plot_order_map",
     "plot_order_cuts",
-    "plot_rpm_frequency_map",
+    "plot_frequency_map",
     "overlay_predicted_orders",
     "overlay_names",
     "OVERLAYS",
@@ -194,7 +195,7 @@ def plot_order_spectrum(spectrum, *, peaks=None, lines=None, unit="", max_order=
         if never < top:
             ax.axvspan(never, top, color="#999999", alpha=0.4, lw=0)
             vhandles.append(Patch(color="#999999", alpha=0.4, label=f"beyond it at every speed (orders above {never:.3g})"))
-    handles = [Line2D([], [], color=KIND_COLOURS.get(k, "#555555"), ls=":", label=f"predicted {k}")
+    handles = [Line2D([], [], color=KIND_COLOURS.get(k, "#555555"), ls=":", label=f"predicted {kind_name(k)}")
                for k in sorted(seen)] + vhandles
     if handles:  # below the axes, never over a peak
         ax.legend(handles=handles,
@@ -500,10 +501,10 @@ def plot_order_cuts(cuts, *, unit="", title=None, log=True, valid=None, amplitud
     return fig
 
 
-def plot_rpm_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db=60.0, unit="", title=None,
+def plot_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db=60.0, unit="", title=None,
                            names=None, overlay=None, identification=None, amplitude_label=None, valid=None,
                            db=False):
-    """rpm-frequency map (Campbell diagram in Hz) from the time-domain signal, measurement first.
+    """frequency map (Campbell diagram in Hz) from the time-domain signal, measurement first.
 
     Parameters
     ----------
@@ -568,7 +569,7 @@ def plot_rpm_frequency_map(rf_map, *, lines=None, rate_hz=None, dynamic_range_db
                 transform=ax.get_yaxis_transform(), ha="right", va="bottom", fontsize=7, color="white")
     ax.set_xlabel("reference shaft speed (rpm)")
     ax.set_ylabel("frequency (Hz)")
-    ax.set_title(_overlay_title(title or "rpm-frequency map (Campbell diagram)", len(chosen), overlay),
+    ax.set_title(_overlay_title(title or "Frequency map (Campbell diagram)", len(chosen), overlay),
                  fontsize=10)
     return fig
 

@@ -5,7 +5,7 @@
   half-power band shaded, the operating range drawn.
 * **Polar plot**: the complex order track (amplitude at angle -lag) with the speed written
   along it; criticals marked.
-* **Campbell diagram**: the measured rpm-frequency map (or an empty frame for a plan), with
+* **Campbell diagram**: the measured frequency map (or an empty frame for a plan), with
   order lines (true frequency against speed), the machine's resonances (horizontal lines, the
   half-power band shaded) and criticals (their natural frequency, rpm / 60 Hz), and every
   crossing of an order line with them marked.

@@ -36,6 +36,7 @@ import numpy as np
 
 from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
+from workbench.machine.model import kind_name
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
@@ -68,7 +69,7 @@ SECTION_TITLES = {
     "order-map": "Order map",
     "order-cuts": "Order cuts",
     "overall-level": "Overall level",
-    "rpm-frequency-map": "rpm-frequency map",
+    "frequency-map": "frequency map",
     "identification": "Identified lines and aliases",
     "criticals": "Critical speeds: Bode, polar and Campbell",
     "unmatched": "Measured lines no prediction explains",
@@ -201,7 +202,7 @@ def _order_text(v):
 _LINE_COLUMNS = (
     Column("name", "line"),
     Column("entry", "source"),
-    Column("kind", "kind"),
+    Column("kind", "kind", kind_name),
     Column("harmonic", "harmonic", str, numeric=True),
     Column("order", "order", _order_text, numeric=True),
     Column("hz", "fixed Hz", fixed(2), numeric=True),
@@ -248,7 +249,7 @@ _PEAK_COLUMNS = (
 
 _IDENT_COLUMNS = (
     Column("line", "predicted line"),
-    Column("kind", "kind"),
+    Column("kind", "kind", kind_name),
     Column("zone", "zone", str, numeric=True),
     Column("alias", "alias", yes_no),
     Column("points", "ridge points", str, numeric=True),
@@ -781,7 +782,7 @@ def _limits_html(plan, limits, analysis) -> str:
 _CROSSING_COLUMNS = (
     Column("line", "line"),
     Column("resonance", "resonance / critical"),
-    Column("kind", "kind"),
+    Column("kind", "kind", kind_name),
     Column("rpm", "rpm", fixed(0), numeric=True),
     Column("time_s", "time (s)", fixed(1), numeric=True),
     Column("hz", "natural frequency (Hz)", general(4), numeric=True),
@@ -845,7 +846,7 @@ def _criticals_section(crit, sections):
                      "method), half-power bands shaded."),
         "polar.png": ("polar", "Polar plot of the first order tracked: amplitude at the phase lag, "
                       "speeds written along the curve."),
-        "campbell.png": ("campbell-run", "Campbell diagram: the measured rpm-frequency map with "
+        "campbell.png": ("campbell-run", "Campbell diagram: the measured frequency map with "
                          "the order lines, the machine's resonances and criticals; circles mark "
                          "crossings."),
     }
@@ -873,7 +874,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
     """The run part of the report; returns (html, alias names or None)."""
     from workbench.angle.validity import valid_region
     from workbench.plots import (plot_order_cuts, plot_order_map, plot_order_spectrum,
-                                 plot_rpm_frequency_map, plot_tacho_check, speed_check_options)
+                                 plot_frequency_map, plot_tacho_check, speed_check_options)
 
     display = dict(display or {})
     overlay = display.get("overlay", "none")
@@ -944,7 +945,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
     any_ident = False
 
     def channel_parts(analysis, sfx):
-        """One channel's spectrum, map, cuts, overall level, rpm-frequency map, identification
+        """One channel's spectrum, map, cuts, overall level, frequency map, identification
         and unmatched lines."""
         nonlocal any_ident
         analysis = shown_analysis(analysis)
@@ -1049,14 +1050,14 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
 
         rf = getattr(analysis, "rf_map", None)
         if rf is not None:
-            fig = plot_rpm_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit,
+            fig = plot_frequency_map(rf, lines=lines, rate_hz=analysis.rate_hz, unit=unit,
                                          overlay=overlay, identification=ident, valid=valid, db=db,
                                          **shown)
-            run_sections.append(sub("rpm-frequency-map", figure_svg(
-                fig, key="rpm-frequency-map" + sfx, caption="Time-domain spectra against speed" + (
+            run_sections.append(sub("frequency-map", figure_svg(
+                fig, key="frequency-map" + sfx, caption="Time-domain spectra against speed" + (
                     "." if overlay == "none" else " with the apparent frequency of each "
                     + ("identified" if overlay == "matched" else "predicted") + " line."),
-                alt="rpm-frequency map")))
+                alt="frequency map")))
             _close(fig)
 
         if ident is not None:

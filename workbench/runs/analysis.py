@@ -3,7 +3,7 @@
 One function, :func:`track_run`, strings the angle layer together the way an analyst would:
 the speed from the tacho (or from a known speed), computed order tracking with alias
 protection, the averaged order spectrum and the order map from the same stream, order cuts,
-an envelope order spectrum on request, the rpm-frequency map, and, when the machine is known,
+an envelope order spectrum on request, the frequency map, and, when the machine is known,
 the identification of measured ridges with predicted lines (folded ones included).  The
 vibration channel is streamed chunk by chunk, so memory does not grow with the record's
 length beyond the outputs (the envelope, which needs a forward-backward filter over the whole
@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 
 from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_order_spectrum,
-                             find_order_peaks, iter_order_track, order_cut, rpm_frequency_map,
+                             find_order_peaks, iter_resample_to_angle, order_cut, frequency_map,
                              tacho_angle)
-from workbench.angle.tracking import iter_order_track_channels, resolve_threads
+from workbench.angle.tracking import iter_resample_to_angle_channels, resolve_threads
 from workbench.angle.matching import identify_order_map, unmatched_ridges
 from workbench.angle.tacho import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
@@ -45,11 +45,11 @@ MAX_SAMPLES_PER_REV = 1 << 16
 #: Revolutions per block when neither the caller nor a plan gives an order resolution.
 DEFAULT_REVS_PER_BLOCK = 16
 
-#: Most rows an order map or rpm-frequency map keeps; longer records are averaged (on power)
+#: Most rows an order map or frequency map keeps; longer records are averaged (on power)
 #: into this many rpm bins while they stream, so a map's memory does not grow with the record.
 MAX_MAP_ROWS = 800
 
-#: Longest time block of the rpm-frequency map, samples (frequency bins = half of it).
+#: Longest time block of the frequency map, samples (frequency bins = half of it).
 MAX_RF_NPERSEG = 8192
 
 
@@ -680,7 +680,7 @@ def track_channels(
     cut_bandwidth_orders : float, optional
         Band summed in each cut (default 4 bins).
     rf_map : bool
-        Also compute the rpm-frequency map (a second pass over the record).
+        Also compute the frequency map (a second pass over the record).
     progress : callable, optional
         Called with the fraction of the record tracked so far (0..1).
     threads : int, optional
@@ -788,7 +788,7 @@ def track_channels(
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", FoldlineWarning)
-            for pieces in iter_order_track_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
+            for pieces in iter_resample_to_angle_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
                                                     protect=protect, threads=threads):
                 if pool is None:
                     for acc, piece in zip(accs, pieces):
@@ -823,7 +823,7 @@ def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, om
                      lines, doubted, envelope_hz, cut_orders, cut_bandwidth_orders, rf_map, chunk,
                      protect, source, estimate=None, overall_band_hz=None,
                      aa_filter=None) -> RunAnalysis:
-    """Peaks, cuts, envelope, rpm-frequency map and identification of one tracked channel."""
+    """Peaks, cuts, envelope, frequency map and identification of one tracked channel."""
     peaks = _peaks_frame(find_order_peaks(spectrum, n=10))
     orders = tuple(cut_orders) if cut_orders else tuple(
         dict.fromkeys([1.0] + [round(float(o), 3) for o in peaks["order"].head(3) if o > 0])
@@ -844,7 +844,7 @@ def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, om
         nperseg = min(MAX_RF_NPERSEG, 1 << max(8, int(round(math.log2(max(run.rate_hz * 0.5, 256.0))))))
         if run.n_samples >= 2 * nperseg:
             bins = _map_bins(angle, 2.0 * run.n_samples / nperseg)
-            rfm = rpm_frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
+            rfm = frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
                                     rpm_bins=bins)
     overall = _overall(run, vib, chunk, angle, omap, rpb, overall_band_hz)
     ident = None

@@ -4,7 +4,7 @@
 (the one speed path), order-tracks each chosen vibration channel in the angle domain (streamed,
 alias-protected), takes the chosen orders' amplitude and phase lag against speed
 (:func:`~workbench.angle.order_tracks.order_tracks`), finds the critical speeds
-(:func:`~workbench.angle.order_tracks.find_track_criticals`), and computes the rpm-frequency
+(:func:`~workbench.angle.order_tracks.find_track_criticals`), and computes the frequency
 map of the first channel for the Campbell diagram.
 
 The phase is absolute (from a once-per-rev reference) when the speed comes from a tacho with
@@ -20,7 +20,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from workbench.angle import iter_order_track, rpm_frequency_map
+from workbench.angle import iter_resample_to_angle, frequency_map
 from workbench.angle.order_tracks import (DEFAULT_TRACK_ORDERS, DEFAULT_TRACK_REVS_PER_BLOCK,
                                           CriticalSpeed, OrderTrack, RejectedPeak,
                                           find_track_criticals, order_tracks)
@@ -185,7 +185,7 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
     protect : bool
         Alias protection of the order tracking.
     rf_map : bool
-        Also compute the rpm-frequency map of the first channel (the Campbell diagram).
+        Also compute the frequency map of the first channel (the Campbell diagram).
     **speed_opts
         The speed options of :func:`~workbench.runs.analysis.run_speed`
         (:data:`~workbench.runs.analysis.SPEED_OPTIONS`).
@@ -236,7 +236,7 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
         units[name] = run.channels[row].unit
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", FoldlineWarning)
-            pieces = iter_order_track(lambda name=name: run.iter_chunks(name, chunk),
+            pieces = iter_resample_to_angle(lambda name=name: run.iter_chunks(name, chunk),
                                       run.rate_hz, angle, samples_per_rev=spr, protect=protect)
             trs = order_tracks(pieces, orders, once_per_rev=once, offset_deg=offset_deg,
                                revs_per_block=rpb)
@@ -251,7 +251,7 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
         nperseg = min(MAX_RF_NPERSEG, 1 << max(8, int(round(math.log2(max(run.rate_hz * 0.5,
                                                                             256.0))))))
         if run.n_samples >= 2 * nperseg:
-            rfm = rpm_frequency_map(run.iter_chunks(first, chunk), run.rate_hz, angle,
+            rfm = frequency_map(run.iter_chunks(first, chunk), run.rate_hz, angle,
                                     nperseg=nperseg,
                                     rpm_bins=_map_bins(angle, 2.0 * run.n_samples / nperseg))
     mach = _machine_for(run, machine)

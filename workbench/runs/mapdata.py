@@ -1,4 +1,4 @@
-"""The order map and the rpm-frequency map written as data (NPZ and Parquet), and read back.
+"""The order map and the frequency map written as data (NPZ and Parquet), and read back.
 
 A PNG shows a map; an analyst comparing runs, or feeding another tool, needs its numbers with
 their axes and units.  Two forms:

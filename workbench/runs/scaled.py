@@ -1,7 +1,7 @@
 """A tracked run shown in another amplitude scaling: RMS, dB, velocity or displacement.
 
 :func:`scaled_analysis` converts every amplitude a :class:`~workbench.runs.analysis.RunAnalysis`
-shows (order spectrum and its peaks, order map, order cuts, rpm-frequency map, identified and
+shows (order spectrum and its peaks, order map, order cuts, frequency map, identified and
 unmatched lines) with one :class:`~workbench.angle.scaling.AmplitudeScaling`, so figures,
 tables and JSON agree.  Integration is done on the order map, bin by bin at each row's speed
 (the run-averaged spectrum cannot be integrated afterwards: its blocks ran at different

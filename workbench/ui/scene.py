@@ -14,6 +14,7 @@ import html
 import numpy as np
 from matplotlib.colors import to_hex
 
+from workbench.machine.model import kind_name
 from workbench.plots.common import KIND_COLOURS
 from workbench.plots.foldmap import draw_fold_map
 from workbench.ui._common import agg_figure, png_bytes
@@ -96,7 +97,7 @@ def legend_html(legend, kinds=()) -> str:
     colours = [(k, KIND_COLOURS[k]) for k in dict.fromkeys(kinds) if k in KIND_COLOURS]
     if colours:
         items.append('<span style="white-space: nowrap">line colours: ' + " ".join(
-            f'<span style="color: {c}; font-weight: bold">{html.escape(k)}</span>' for k, c in colours)
+            f'<span style="color: {c}; font-weight: bold">{html.escape(kind_name(k))}</span>' for k, c in colours)
             + "</span>")
     return f'<div class="foldline-legend foldline-note">{" ".join(items)}</div>'
 
