@@ -1,4 +1,4 @@
-"""Tests of workbench.runs.output: atomic_output and check_writable."""
+"""Tests of workbench.fileio: atomic_output and check_writable."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import stat
 import pytest
 
 from workbench.errors import InputError, OutputExistsError
-from workbench.runs.output import atomic_output, check_writable
+from workbench.fileio import atomic_output, check_writable
 
 
 def _leftovers(folder):

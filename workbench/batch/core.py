@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import FoldlineError, FoldlineWarning, InputError
-from workbench.report.document import file_sha256
+from workbench.fileio import file_sha256
 
 __all__ = [
     "BatchSettings",

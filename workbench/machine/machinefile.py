@@ -34,13 +34,13 @@ import contextlib
 import difflib
 import os
 import tomllib
-import uuid
 import warnings
 from collections.abc import Mapping
 from dataclasses import MISSING, fields
 
 from workbench.machine.filekind import wrong_file_hint
-from workbench.errors import FoldlineWarning, MachineFileError, where
+from workbench.errors import FoldlineWarning, InputError, MachineFileError, where
+from workbench.fileio import write_text
 from workbench.machine.model import MODE_TYPES, SOURCE_TYPES, Machine, Shaft
 
 __all__ = [
@@ -313,13 +313,9 @@ def write_machine(m: Machine, path) -> None:
     """
     path = os.fspath(path)
     text = machine_to_toml(m)
-    folder, base = os.path.split(os.path.abspath(path))
-    tmp = os.path.join(folder, f".{base}.{uuid.uuid4().hex}.tmp")
     try:
-        with open(tmp, "x", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
+        write_text(path, text, force=True)
+    except InputError as exc:   # the folder does not exist, or the path is a folder
+        raise MachineFileError(f"{path}: cannot write machine file: {exc}") from exc
     except OSError as exc:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
         raise MachineFileError(f"{path}: cannot write machine file: {exc.strerror}") from exc

@@ -36,6 +36,7 @@ import numpy as np
 
 from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
+from workbench.fileio import file_sha256
 from workbench.machine.model import kind_name
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
@@ -78,16 +79,6 @@ SECTION_TITLES = {
     "signoff": "Sign-off",
 }
 
-_CHUNK = 1 << 20
-
-
-def file_sha256(path) -> str:
-    """SHA-256 (hex) of a file's bytes, read in 1 MiB chunks."""
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(_CHUNK), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 @dataclass(frozen=True)

@@ -12,7 +12,7 @@ Typical use::
 
 from workbench.runs.files import (RUN_EXTENSIONS, check_finite, read_run, sidecar_for_run,
                                   write_run)
-from workbench.runs.output import atomic_output, check_writable
+from workbench.fileio import atomic_output, check_writable
 from workbench.runs.run import Channel, LogEntry, Run, full_scale
 from workbench.runs.metadata import SensorInfo, TestMetadata
 from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, run_metadata,

@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from workbench.runs.output import atomic_output
+from workbench.fileio import atomic_output
 from workbench.runs.wav import WavWriter
 
 __all__ = ["order_file_stem", "order_files", "write_order_waveform", "write_order_envelope"]

@@ -38,7 +38,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import FoldlineWarning, InputError, RunFileError
-from workbench.runs.output import atomic_output, check_writable
+from workbench.fileio import atomic_output, check_writable
 from workbench.runs.run import Channel, Run, full_scale, release_pages
 from workbench.runs.sidecar import Sidecar, read_sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter, read_wav

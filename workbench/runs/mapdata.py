@@ -24,7 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from workbench.errors import InputError, RunFileError
-from workbench.runs.output import atomic_output
+from workbench.fileio import atomic_output
 
 __all__ = ["MapData", "map_data", "write_map_npz", "write_map_parquet", "read_map_data", "MAP_KINDS"]
 

@@ -39,7 +39,7 @@ from typing import Any
 
 from workbench.errors import InputError, RunFileError, where
 from workbench.runs.metadata import META_KEYS, SENSOR_KEYS, SensorInfo, TestMetadata
-from workbench.runs.output import atomic_output
+from workbench.fileio import atomic_output
 from workbench.runs.run import Channel
 
 __all__ = ["Sidecar", "read_sidecar", "write_sidecar", "sidecar_path", "resolve_inside",

@@ -56,7 +56,7 @@ import numpy as np
 
 from workbench.errors import FoldlineWarning, InputError
 from workbench.runs.files import sidecar_for_run
-from workbench.runs.output import atomic_output, check_writable
+from workbench.fileio import atomic_output, check_writable
 from workbench.runs.run import Channel, Run
 from workbench.runs.sidecar import Sidecar, sidecar_path, write_sidecar
 from workbench.runs.wav import WavWriter

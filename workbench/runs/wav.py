@@ -30,7 +30,7 @@ from typing import BinaryIO
 import numpy as np
 
 from workbench.errors import InputError, RunFileError
-from workbench.runs.output import atomic_output
+from workbench.fileio import atomic_output
 from workbench.runs.run import full_scale
 
 __all__ = ["SAMPLE_FORMATS", "WavInfo", "read_wav_info", "read_wav", "WavWriter"]
@@ -254,7 +254,7 @@ class WavWriter:
     """Write a WAV file chunk by chunk, without holding the run in memory.
 
     The file is written under a temporary name through
-    :func:`~workbench.runs.output.atomic_output`; the header's sizes are patched when the context
+    :func:`~workbench.fileio.atomic_output`; the header's sizes are patched when the context
     closes and the file is then renamed into place.  If the body raises, nothing is left behind.
     The header is WAVE_FORMAT_EXTENSIBLE (as the format's documentation asks for more than two
     channels or more than 16 bits) with channel mask 0 (measurement channels, no speaker

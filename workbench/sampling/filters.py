@@ -40,7 +40,7 @@ from functools import cached_property
 import numpy as np
 
 from workbench.errors import InputError
-from workbench.sampling._checks import (FieldError, freq_array, one_of, positive_int,
+from workbench.checks import (FieldError, freq_array, one_of, positive_int,
                                         rate_array, real, real_vector)
 
 __all__ = ["FILTER_KINDS", "ANALOG_KINDS", "TABLE_UNITS", "MAX_ANALOG_ORDER", "AntiAliasFilter"]

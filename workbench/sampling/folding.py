@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 
 from workbench.errors import InputError
-from workbench.sampling._checks import freq_array, rate_array
+from workbench.checks import freq_array, rate_array
 
 __all__ = ["apparent_frequency", "nyquist_zone", "apparent_order", "fold"]
 

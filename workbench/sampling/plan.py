@@ -67,8 +67,6 @@ from __future__ import annotations
 import difflib
 import json
 import math
-import os
-import tempfile
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -76,8 +74,9 @@ from pathlib import Path
 import numpy as np
 
 from workbench.errors import InputError, OutputExistsError, PlanFileError, where
+from workbench.fileio import write_text
 from workbench.machine.filekind import wrong_file_hint
-from workbench.sampling._checks import FieldError, is_number, real, real_vector, show
+from workbench.checks import FieldError, is_number, real, real_vector, show
 from workbench.sampling._tables import read_numeric_csv
 from workbench.sampling.filters import ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter
 from workbench.sampling.profiles import PROFILE_KINDS, SpeedProfile, read_speed_table
@@ -911,17 +910,6 @@ def _csv(columns: dict) -> str:
                                             for row in rows)
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-
-
 def write_plan(plan: Plan, path, *, force: bool = False) -> Path:
     """Write `plan` as a plan file that :func:`read_plan` reads back into an equal plan.
 
@@ -959,5 +947,5 @@ def write_plan(plan: Plan, path, *, force: bool = False) -> Path:
                 raise OutputExistsError(f"{target}: exists already; pass --force to replace it, or "
                                         "choose another name")
     for target, text in files.items():
-        _write_atomic(target, text)
+        write_text(target, text, force=True)
     return path

@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from workbench.errors import InputError, where
-from workbench.sampling._checks import FieldError, is_number, one_of, real, real_vector, show
+from workbench.checks import FieldError, is_number, one_of, real, real_vector, show
 from workbench.sampling._tables import read_numeric_csv
 
 __all__ = ["PROFILE_KINDS", "SpeedProfile", "read_speed_table"]

@@ -1,4 +1,4 @@
-"""Private validation helpers shared by the sampling modules.
+"""Validation helpers on the ground floor, shared by every layer.
 
 Domain objects (filters, speed profiles, bands, plans) validate their own fields and raise
 :class:`FieldError`, an :class:`~workbench.errors.InputError` that remembers which field was bad.

@@ -1,13 +1,15 @@
-"""Safe output files: write to a temporary name in the same folder, then rename into place.
+"""Files on the ground floor: safe output files and file digests, for every layer.
 
-Every writer in foldline goes through :func:`atomic_output`, so an interrupted or failed write
-never leaves a partial file under the requested name, and an existing file is overwritten only
-when asked.
+Every writer in foldline goes through :func:`atomic_output` (or :func:`write_text`, built on
+it), so an interrupted or failed write never leaves a partial file under the requested name, and
+an existing file is overwritten only when asked.  :func:`file_sha256` is the digest the report's
+provenance table and the batch summary record.
 """
 
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import os
 import tempfile
 import threading
@@ -16,7 +18,7 @@ from pathlib import Path
 
 from workbench.errors import InputError, OutputExistsError
 
-__all__ = ["atomic_output", "check_writable"]
+__all__ = ["atomic_output", "check_writable", "write_text", "file_sha256"]
 
 _UMASK_LOCK = threading.Lock()
 
@@ -104,3 +106,26 @@ def atomic_output(path: str | os.PathLike, *, force: bool = False) -> Iterator[P
         with contextlib.suppress(FileNotFoundError):
             tmp.unlink()
         raise
+
+
+def write_text(path: str | os.PathLike, text: str, *, force: bool = False) -> Path:
+    """Write `text` (UTF-8, ``\\n`` line ends) to `path` through :func:`atomic_output`.
+
+    Returns the path written; raises as :func:`atomic_output` does.
+    """
+    with atomic_output(path, force=force) as tmp:
+        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+    return Path(path)
+
+
+_CHUNK = 1 << 20
+
+
+def file_sha256(path: str | os.PathLike) -> str:
+    """SHA-256 (hex) of a file's bytes, read in 1 MiB chunks."""
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(_CHUNK), b""):
+            h.update(block)
+    return h.hexdigest()
