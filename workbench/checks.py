@@ -127,6 +127,14 @@ class FieldError(InputError):
         return describe(field or self.field, self.value, self.problem)
 
 
+def _notes(unit: str = "", value=NO_VALUE) -> str:
+    """`` (unit; got a string)``: the unit, and the kind of a value that is no number."""
+    notes = [unit] if unit else []
+    if value is not NO_VALUE and not is_number(value):
+        notes.append(f"got {kind_of(value)}")
+    return f" ({'; '.join(notes)})" if notes else ""
+
+
 # --------------------------------------------------------------------------------------------
 # Scalars
 # --------------------------------------------------------------------------------------------
@@ -139,10 +147,8 @@ def real(owner: str | None, field: str, value, *, low=None, high=None, low_open=
     ``low``/``high`` are inclusive unless ``low_open``/``high_open`` is set; `unit` (``"Hz"``)
     is named in the rule.
     """
-    what = f" ({unit})" if unit else ""
     if not is_number(value) or not math.isfinite(float(value)):
-        got = f" (got {kind_of(value)})" if not is_number(value) else ""
-        raise FieldError(owner, field, f"must be a finite number{what}{got}", value)
+        raise FieldError(owner, field, "must be a finite number" + _notes(unit, value), value)
     x = float(value)
     rules = []
     if low is not None:
@@ -151,16 +157,15 @@ def real(owner: str | None, field: str, value, *, low=None, high=None, low_open=
         rules.append(f"below {high:g}" if high_open else f"at most {high:g}")
     if ((low is not None and (x < low or (low_open and x == low)))
             or (high is not None and (x > high or (high_open and x == high)))):
-        raise FieldError(owner, field, f"must be {' and '.join(rules)}{what}", value)
+        raise FieldError(owner, field, f"must be {' and '.join(rules)}{_notes(unit)}", value)
     return x
 
 
 def positive(owner: str | None, field: str, value, *, unit: str = "") -> float:
     """Check that `value` is a finite number > 0; return it as float."""
-    what = f" ({unit})" if unit else ""
     if not is_number(value) or not math.isfinite(float(value)) or float(value) <= 0:
-        got = f" (got {kind_of(value)})" if not is_number(value) else ""
-        raise FieldError(owner, field, f"must be a positive, finite number{what}{got}", value)
+        raise FieldError(owner, field, "must be a positive, finite number" + _notes(unit, value),
+                         value)
     return float(value)
 
 
@@ -172,20 +177,24 @@ def rate_hz(owner: str | None, field: str, value) -> float:
 
 
 def positive_int(owner: str | None, field: str, value, *, low: int = 1,
-                 high: int | None = None) -> int:
+                 high: int | None = None, whole_float: bool = True, what: str = "") -> int:
     """Check that `value` is a whole number from `low` (default 1) to `high`; return it as int.
 
-    A float with a whole value (``8.0``) is accepted; bool is not.
+    A float with a whole value (``8.0``) is accepted unless `whole_float` is False; bool never
+    is.  `what` (``"samples per block"``) is added to the rule in brackets.
     """
-    ok = is_number(value) and math.isfinite(float(value)) and float(value) == int(value)
+    if whole_float:
+        ok = is_number(value) and math.isfinite(float(value)) and float(value) == int(value)
+    else:
+        ok = isinstance(value, numbers.Integral) and not isinstance(value, (bool, np.bool_))
     if not ok or int(value) < low or (high is not None and int(value) > high):
         if high is not None:
             rule = f"must be a whole number from {low} to {high}"
-        elif low == 1:
+        elif low == 1 and not what:
             rule = "must be a whole number (1, 2, 3, ...)"
         else:
             rule = f"must be a whole number >= {low}"
-        raise FieldError(owner, field, rule, value)
+        raise FieldError(owner, field, rule + _notes(what), value)
     return int(value)
 
 

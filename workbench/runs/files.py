@@ -37,7 +37,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from workbench.errors import FoldlineWarning, InputError, RunFileError
+from workbench.checks import RATE_RULE, describe, rate_hz as check_rate
+from workbench.errors import FoldlineWarning, RunFileError
 from workbench.fileio import atomic_output, check_writable
 from workbench.runs.run import Channel, Run, full_scale, release_pages
 from workbench.runs.sidecar import Sidecar, read_sidecar, sidecar_path, write_sidecar
@@ -276,7 +277,7 @@ def _read_npz(path: Path, n_expected: int | None) -> _Read:
                                    f"of shape {r.shape}")
             rate = float(r.reshape(()))
             if not (math.isfinite(rate) and rate > 0):
-                raise RunFileError(f"{path}: key 'rate_hz' is {rate}; allowed: a number > 0 (Hz)")
+                raise RunFileError(f"{path}: key {describe('rate_hz', rate, RATE_RULE)}")
         names = None
         if "channel_names" in keys:
             cn = get("channel_names")
@@ -465,9 +466,8 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
         raise RunFileError(f"{path}: no such file")
     if path.stat().st_size == 0:
         raise RunFileError(f"{path}: is empty (0 bytes)")
-    if rate_hz is not None and (isinstance(rate_hz, bool) or not isinstance(
-            rate_hz, (int, float, np.number)) or not math.isfinite(rate_hz) or rate_hz <= 0):
-        raise InputError(f"rate {rate_hz!r} is not valid; allowed: a number > 0 (Hz)")
+    if rate_hz is not None:
+        check_rate(None, "rate_hz", rate_hz)
     if isinstance(sidecar, Sidecar):
         meta: Sidecar | None = sidecar
     elif sidecar is not None:
