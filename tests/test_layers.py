@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "workbench"
-ORDER = ["errors", "choices", "_lazy", "checks", "fileio", "machine", "sampling", "angle", "runs"]
+ORDER = ["errors", "choices", "_lazy", "checks", "fileio", "htmltable", "machine", "sampling", "angle", "runs"]
 PRESENTATION = {"plots", "ui", "report", "cli", "batch"}
 PRESENTATION_ONLY = {"matplotlib", "ipywidgets", "IPython", "dask", "distributed", "pyarrow", "PIL"}
 

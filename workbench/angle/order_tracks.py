@@ -58,7 +58,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import find_peaks, get_window
 
-from workbench.angle._common import finite_real, positive_int
+from workbench import checks
 from workbench.angle.spectra import _check_options, _frozen, _pieces
 from workbench.angle.tracking import AngleSignal
 from workbench.errors import FoldlineWarning, InputError
@@ -247,16 +247,16 @@ def order_tracks(sig, orders=DEFAULT_TRACK_ORDERS, *, once_per_rev: bool = False
     (2.0, 30.0, 'absolute')
     """
     try:
-        orders = tuple(finite_real(o, "orders") for o in orders)
+        orders = tuple(checks.real(None, "orders", o) for o in orders)
     except TypeError:
         raise InputError(f"orders {orders!r} is not valid; allowed: a sequence of orders > 0, "
                          "e.g. (1, 2)") from None
     if not orders or any(o <= 0 for o in orders):
         raise InputError(f"orders {orders!r} is not valid; allowed: at least one order > 0")
-    offset_deg = finite_real(offset_deg, "offset_deg")
+    offset_deg = checks.real(None, "offset_deg", offset_deg)
     overlap = _check_options(window, overlap, "peak")
     rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else \
-        finite_real(revs_per_block, "revs_per_block")
+        checks.real(None, "revs_per_block", revs_per_block)
     if rpb <= 0:
         raise InputError(f"revs_per_block {rpb!r} is not valid; allowed: a number > 0")
     acc = None
@@ -577,7 +577,7 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
                          "OrderTrack")
     if operating_rpm is not None:
         operating_rpm = _operating(operating_rpm)
-    min_points = positive_int(min_points, "min_points")
+    min_points = checks.positive_int(None, "min_points", min_points, whole_float=False)
     rpm, amp, lag = track.sorted_by_rpm()
     found, rejected = [], []
     if len(rpm) < 5 or not rpm[-1] - rpm[0] > 1e-6 * abs(rpm[-1]):

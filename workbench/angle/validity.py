@@ -19,7 +19,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from workbench.angle._common import positive_rate
+from workbench import checks
 from workbench.errors import InputError
 
 __all__ = ["ValidRegion", "valid_region", "lines_in_cut_band"]
@@ -98,7 +98,7 @@ def valid_region(rate_hz, aa_filter=None) -> ValidRegion:
     -------
     ValidRegion
     """
-    rate = positive_rate(rate_hz, "rate_hz")
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     if aa_filter is None:
         return ValidRegion(rate, 0.5 * rate, "rate", "")
     if not hasattr(aa_filter, "usable_edge_hz"):

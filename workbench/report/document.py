@@ -38,6 +38,7 @@ from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
 from workbench.fileio import file_sha256
 from workbench.machine.model import kind_name
+from workbench.sampling.foldmap import COLLISION_COLUMNS, COLLISION_DECIMALS, COLLISION_HEADINGS
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
@@ -213,15 +214,11 @@ _CANDIDATE_COLUMNS = (
     Column("captures_max_order", "captures highest order", yes_no),
 )
 
-_COLLISION_COLUMNS = (
-    Column("line", "line"),
-    Column("band", "band"),
-    Column("rpm_min", "from (rpm)", fixed(0), numeric=True),
-    Column("rpm_max", "to (rpm)", fixed(0), numeric=True),
-    Column("zone", "zone", str, numeric=True),
-    Column("apparent_hz_min", "apparent from (Hz)", fixed(1), numeric=True),
-    Column("apparent_hz_max", "apparent to (Hz)", fixed(1), numeric=True),
-    Column("residual_db", "residual (dB)", fixed(1), numeric=True),
+_COLLISION_COLUMNS = tuple(
+    Column(key, COLLISION_HEADINGS[key],
+           None if key not in COLLISION_DECIMALS else str if key == "zone"
+           else fixed(COLLISION_DECIMALS[key]), numeric=key in COLLISION_DECIMALS)
+    for key in COLLISION_COLUMNS
 )
 
 _BAND_COLUMNS = (

@@ -22,7 +22,8 @@ from workbench.checks import FieldError, choice, positive_int, rate_hz as check_
 from workbench.errors import FoldlineWarning, InputError
 from workbench.sampling.folding import fold_arrays
 
-__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "MONOTONE_FILTERS"]
+__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "COLLISION_HEADINGS",
+           "COLLISION_DECIMALS", "MONOTONE_FILTERS"]
 
 #: Column order of the collision and overlap tables (the JSON contract's keys, then ``kind``).
 COLLISION_COLUMNS = (
@@ -35,6 +36,29 @@ COLLISION_COLUMNS = (
     "apparent_hz_max",
     "residual_db",
 )
+
+#: Heading (with its unit) of each column of the collision table, for every display of it
+#: (the report, the notebook panels); the columns after ``kind`` are the extra ones of
+#: :func:`find_collisions`.
+COLLISION_HEADINGS = {
+    "line": "line",
+    "band": "band",
+    "rpm_min": "from (rpm)",
+    "rpm_max": "to (rpm)",
+    "zone": "zone",
+    "apparent_hz_min": "apparent from (Hz)",
+    "apparent_hz_max": "apparent to (Hz)",
+    "residual_db": "residual (dB)",
+    "kind": "kind",
+    "true_hz_min": "true from (Hz)",
+    "true_hz_max": "true to (Hz)",
+}
+
+#: Decimals shown for each numeric column of the collision table (rpm to the whole rpm, Hz and
+#: dB to a tenth).
+COLLISION_DECIMALS = {"rpm_min": 0, "rpm_max": 0, "zone": 0, "apparent_hz_min": 1,
+                      "apparent_hz_max": 1, "residual_db": 1, "true_hz_min": 1,
+                      "true_hz_max": 1}
 
 # Attenuation used in place of an infinite one (ideal filter stopband) in root finding.
 _FINITE_DB = 1000.0

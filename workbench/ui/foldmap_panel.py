@@ -29,30 +29,19 @@ import math
 import ipywidgets as widgets
 
 from workbench.errors import FoldlineError, InputError
-from workbench.sampling import (ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter, SpeedProfile, advise,
-                                find_collisions, fold_map)
-from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
-                                  fmt_rate, html_table, step_card)
+from workbench.sampling import (ANALOG_KINDS, COLLISION_COLUMNS, FILTER_KINDS, AntiAliasFilter,
+                                SpeedProfile, advise, find_collisions, fold_map)
+from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings,
+                                  collision_columns, collision_formats, error_html, fmt_rate,
+                                  html_table, step_card)
 from workbench.ui.scene import FoldScene
 
 __all__ = ["FoldMapPanel", "narrowed_speed", "COLLISION_TABLE_COLUMNS"]
 
-#: Columns of the panel's collision table: (key of find_collisions' table, heading with units).
-COLLISION_TABLE_COLUMNS = (
-    ("line", "line"),
-    ("band", "band"),
-    ("rpm_min", "from (rpm)"),
-    ("rpm_max", "to (rpm)"),
-    ("zone", "zone"),
-    ("true_hz_min", "true from (Hz)"),
-    ("true_hz_max", "true to (Hz)"),
-    ("apparent_hz_min", "shows from (Hz)"),
-    ("apparent_hz_max", "shows to (Hz)"),
-    ("residual_db", "residual (dB)"),
-)
-_TABLE_FORMATS = {"rpm_min": ".0f", "rpm_max": ".0f", "zone": "d", "true_hz_min": ".1f",
-                  "true_hz_max": ".1f", "apparent_hz_min": ".1f", "apparent_hz_max": ".1f",
-                  "residual_db": ".1f"}
+#: Columns of the panel's collision table: (key of find_collisions' table, heading with units);
+#: the command's columns with the true frequencies before the apparent ones.
+COLLISION_TABLE_COLUMNS = collision_columns(
+    COLLISION_COLUMNS[:5] + ("true_hz_min", "true_hz_max") + COLLISION_COLUMNS[5:])
 
 _ENTRY_KINDS = {"shaft": "shaft", "gear_stage": "gear stage", "planetary_stage": "planetary stage",
                 "bearing": "bearing", "rotor": "rotor", "order": "order", "line": "fixed line"}
@@ -398,9 +387,9 @@ class FoldMapPanel:
         head = (f"<b>Collisions</b> (folded lines above {self.threshold_db.value:g} dB inside a band): "
                 f"{len(coll)} shown" + (f", {hidden} more in hidden sources or bands" if hidden else ""))
         body = html_table(coll.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-collisions",
-                          formats=_TABLE_FORMATS, empty="No folded line enters a shown band above the threshold.")
+                          formats=collision_formats(), empty="No folded line enters a shown band above the threshold.")
         overlaps = html_table(over.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-overlaps",
-                              formats=_TABLE_FORMATS, empty="none")
+                              formats=collision_formats(), empty="none")
         return (STYLE + f"<div>{head}</div>{body}<details><summary>Direct lines inside bands "
                 f"(overlaps, not folded): {len(over)}</summary>{overlaps}</details>")
 
