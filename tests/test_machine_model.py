@@ -1,4 +1,7 @@
-"""Tests of workbench.machine.model: speed ratios, line expansion, bearing and planetary math."""
+"""Tests of the machine model: speed ratios, line expansion, bearing and planetary math.
+
+The modules: workbench.machine.lines, kinematics, entries and machine.
+"""
 
 import math
 import re

@@ -1,4 +1,4 @@
-"""Tests of workbench.sampling.plan: bands, plans, plan files."""
+"""Tests of workbench.sampling.plan and planfile: bands, plans, plan files."""
 
 import copy
 import shutil

@@ -87,7 +87,7 @@ def cmd_alias(args) -> int:
         bad = [f for f in args.frequencies if not (math.isfinite(f) and f >= 0)]
         raise InputError(f"frequency {bad[0]!r}: frequencies must be finite and >= 0 Hz")
     if args.plan:
-        from workbench.sampling.plan import read_plan
+        from workbench.sampling.planfile import read_plan
 
         plan = read_plan(args.plan)
         att = np.asarray(plan.filter.attenuation_db(freqs, rate), dtype=float)

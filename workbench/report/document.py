@@ -37,7 +37,7 @@ import numpy as np
 from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
 from workbench.fileio import file_sha256
-from workbench.machine.model import kind_name
+from workbench.machine.lines import kind_name
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
