@@ -344,7 +344,7 @@ def test_validation_errors(tmp_path, capsys):
 def test_track_options_from_args_maps_names():
     import argparse
 
-    from workbench.report.command import add_track_options
+    from workbench.cli.options import add_track_options
 
     p = argparse.ArgumentParser()
     add_track_options(p)
