@@ -1,10 +1,11 @@
 """Catalogue of bad inputs fed to the real ``foldline`` console script.
 
 Every case writes its files into a fresh folder, runs ``foldline`` there in a subprocess and
-checks the command-line contract (DESIGN.md, "Contracts"): exit status 2, exactly one line on
-stderr starting ``foldline: error: ``, which names the file, the entry or field, and what is
-allowed (one regular expression per case), no traceback anywhere, and nothing written: the
-folder holds exactly the files it held before (no output, no partial file, no temporary file).
+checks the command-line contract (docs/cli-json.md, "Rules for every verb"): exit status 2,
+exactly one line on stderr starting ``foldline: error: ``, which names the file, the entry or
+field, and what is allowed (one regular expression per case), no traceback anywhere, and
+nothing written: the folder holds exactly the files it held before (no output, no partial
+file, no temporary file).
 
 The cases are independent processes, so they are started together in a small thread pool the
 first time any of them is checked; each parametrised test then reads its own result.
@@ -528,7 +529,7 @@ def test_existing_output_is_kept_then_replaced_with_force(outcomes, tmp_path):
 
 
 def test_csv_with_units_row_is_read(tmp_path):
-    # A units row under the header is legal: it gives the channel units (DESIGN.md, run files).
+    # A units row under the header is legal: it gives the channel units (docs/run-file-formats.md).
     case = Case("units", {"run.csv": csv_text(DATA, units="s,g,V")},
                 ["track", "run.csv", "--tacho", "tacho", "--json"], "")
     out = _run(case, tmp_path / "units")

@@ -1,4 +1,4 @@
-"""Layers import only downward, and the core imports no presentation library (DESIGN.md).
+"""Layers import only downward, and the core imports no presentation library (DEVELOPERS.md).
 
 Checked on the source text with the standard library's ast module: every import statement of
 every module, including imports inside functions.
