@@ -50,6 +50,11 @@ def _section(text: str, marker: str) -> str:
     raise AssertionError(f"no heading containing {marker!r}")
 
 
+def _row(key: str) -> str:
+    """How a key opens its row in a reference table of the docs."""
+    return f"| `{key}` |"
+
+
 def _allowed(message: str, lead: str) -> list[str]:
     """The comma-separated names after ``lead`` in an error message."""
     tail = message.split(lead, 1)[1]
@@ -90,7 +95,7 @@ def test_every_machine_table_and_key_is_documented():
         section = _section(text, marker)
         keys = _machine_keys(table)
         assert "name" in keys
-        missing = [k for k in keys if f"`{k}`" not in section]
+        missing = [k for k in keys if _row(k) not in section]
         assert not missing, f"docs/machine-file.md, {marker}: keys not documented: {missing}"
 
 
@@ -123,7 +128,7 @@ def test_every_plan_key_is_documented(section, marker):
     text = _section(_doc("plan-file.md"), marker)
     keys = _plan_keys(section)
     assert keys, "the plan reader listed no allowed keys"
-    missing = [k for k in keys if f"`{k}`" not in text]
+    missing = [k for k in keys if _row(k) not in text]
     assert not missing, f"docs/plan-file.md, {marker}: keys not documented: {missing}"
 
 
@@ -163,8 +168,8 @@ def test_every_sidecar_key_is_documented(tmp_path):
     assert "rate_hz" in top and "sensitivity" in channel
     top_section = _section(text, "Top-level keys")
     channel_section = _section(text, "Channel entries")
-    missing = [k for k in top if f"`{k}`" not in top_section]
-    missing += [f"channels[].{k}" for k in channel if f"`{k}`" not in channel_section]
+    missing = [k for k in top if _row(k) not in top_section]
+    missing += [f"channels[].{k}" for k in channel if _row(k) not in channel_section]
     assert not missing, f"docs/run-files.md: sidecar keys not documented: {missing}"
 
 
