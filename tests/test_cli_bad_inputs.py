@@ -1,10 +1,11 @@
 """Catalogue of bad inputs fed to the ``foldline`` command.
 
 Every case writes its files into a fresh folder, runs ``foldline`` there and checks the
-command-line contract (README, "Command line"): exit status 2, exactly one line on stderr
-starting ``foldline: error: ``, which names the file, the entry or field, and what is allowed
-(one regular expression per case), no traceback anywhere, and nothing written: the folder
-holds exactly the files it held before (no output, no partial file, no temporary file).
+command-line contract (docs/cli-json.md, "Rules for every verb"): exit status 2, exactly one
+line on stderr starting ``foldline: error: ``, which names the file, the entry or field, and
+what is allowed (one regular expression per case), no traceback anywhere, and nothing written:
+the folder holds exactly the files it held before (no output, no partial file, no temporary
+file).
 
 The catalogue runs in this process through ``workbench.cli.main(argv)`` (the function the
 console script calls); a few cases (:data:`SCRIPT_CASES`) also run the installed script in a
@@ -559,7 +560,7 @@ def test_existing_output_is_kept_then_replaced_with_force(run_case, tmp_path):
 
 
 def test_csv_with_units_row_is_read(run_case, tmp_path):
-    # A units row under the header is legal: it gives the channel units (DESIGN.md, run files).
+    # A units row under the header is legal: it gives the channel units (docs/run-file-formats.md).
     case = Case("units", {"run.csv": csv_text(DATA, units="s,g,V")},
                 ["track", "run.csv", "--tacho", "tacho", "--json"], "")
     out = run_case(case, tmp_path / "units")

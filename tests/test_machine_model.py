@@ -386,7 +386,7 @@ def test_planetary_members_validation(members, match):
 
 
 def test_rotor_order_and_fixed_lines():
-    # Rotor: count x shaft order; order source: order x shaft order (DESIGN.md definitions).
+    # Rotor: count x shaft order; order source: order x shaft order (docs/machine-file.md).
     machine = Machine(
         "m", "input", (Shaft("input"), Shaft("output")),
         (GearStage("g", "input", "output", 10, 40, harmonics=1),

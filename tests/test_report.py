@@ -4,7 +4,7 @@ JSON says for the same inputs, and its tables must sort on a header click.
 
 Expected values: the ``foldline foldmap`` / ``foldline plan`` / ``foldline track`` JSON outputs
 for the same files (the report must carry them through unchanged: consistency with the fixed
-JSON contracts of DESIGN.md), and the README's Safety section (same words).
+JSON contracts of docs/cli-json.md), and the README's Safety section (same words).
 """
 
 from __future__ import annotations

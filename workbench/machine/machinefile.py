@@ -1,6 +1,6 @@
 """Machine file: read, validate and write the TOML description of a drive train.
 
-Layout (see DESIGN.md, "Machine file (TOML)")::
+Layout (every key, type, default and rule: docs/machine-file.md)::
 
     [machine]                 name, reference
     [[shaft]]                 name
