@@ -19,7 +19,7 @@ import numpy as np
 
 from workbench import checks
 from workbench.angle._common import iter_chunks
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import InputError
 
 __all__ = ["OverallLevel", "overall_level", "rpm_edges_from_centres", "default_block_samples"]

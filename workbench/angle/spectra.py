@@ -33,7 +33,7 @@ from numpy.lib.stride_tricks import sliding_window_view
 
 from workbench import checks
 from workbench.angle._common import iter_chunks, one_d
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.angle.tracking import AngleSignal, iter_resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
 

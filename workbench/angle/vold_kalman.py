@@ -102,7 +102,7 @@ from scipy.linalg import solveh_banded
 
 from workbench import checks
 from workbench.angle._common import one_d
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = ["OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",
