@@ -78,17 +78,17 @@ def test_sidecar_path():
         ({"channels": [{"unit": "g"}]}, r"channels\[1\]: 'name' is missing"),
         ({"channels": [{"name": ""}]}, r'channels\[1\]: name = "": must be a non-empty string'),
         ({"channels": [{"name": "a", "unit": 5}]}, r"unit = 5: must be a string"),
-        ({"channels": [{"name": "a", "sensitivity": 0}]}, r"sensitivity = 0: must be a positive, finite number"),
+        ({"channels": [{"name": "a", "sensitivity": 0}]}, r"sensitivity = 0: must be a positive number"),
         ({"channels": [{"name": "a"}, {"name": "a"}]}, "names must be unique; repeated: a"),
-        ({"pulses_per_rev": 0}, "pulses_per_rev = 0: must be a whole number >= 1"),
+        ({"pulses_per_rev": 0}, "pulses_per_rev = 0: must be a positive integer"),
         ({"pulses_per_rev": 1.5}, "pulses_per_rev = 1.5: must be"),
         ({"pulses_per_rev": True}, "pulses_per_rev = true: must be"),
-        ({"pulses_per_rev": 60, "missing_pulses": 60}, "missing_pulses = 60: must be a whole number from 0 to 59"),
+        ({"pulses_per_rev": 60, "missing_pulses": 60}, "missing_pulses = 60: must be an integer from 0 to 59"),
         ({"missing_pulses": -1}, "missing_pulses = -1: must be"),
         ({"channels": [{"name": "a"}], "tacho_channel": "b"}, r'tacho_channel = "b": is not one '
                                                               r"of the channels \(a\)"),
-        ({"channels": [{"name": "a"}], "tacho_channel": 2}, "tacho_channel = 2: must be a whole "
-                                                            "number from 1 to 1"),
+        ({"channels": [{"name": "a"}], "tacho_channel": 2}, "tacho_channel = 2: must be an integer "
+                                                            "from 1 to 1"),
         ({"tacho_channel": 0}, "tacho_channel = 0: must be"),
         ({"tacho_channel": "0"}, "tacho_channel = 0: must be"),
         ({"tacho_channel": False}, "tacho_channel = false: must be"),

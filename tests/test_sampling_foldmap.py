@@ -184,7 +184,7 @@ def test_bad_rate_and_grid():
     with pytest.raises(InputError, match=r"^rate_hz = 0\.0: must be a positive, finite sample "
                                          r"rate \(Hz\)$"):
         fold_map(m, plan, 0.0)
-    with pytest.raises(InputError, match="n_speeds = 1: must be a whole number >= 2"):
+    with pytest.raises(InputError, match="n_speeds = 1: must be an integer >= 2"):
         fold_map(m, plan, 1000.0, n_speeds=1)
 
 

@@ -273,7 +273,7 @@ def _edit(path, value):
         (("acquisition", "filter"), 8, "filter = 8: must be a text in quotes"),
         (("acquisition", "filter_order"), None, "\\[acquisition\\]: filter_order: is required "
                                                 "by filter kind 'butterworth'"),
-        (("acquisition", "filter_order"), 0, "\\[acquisition\\]: filter_order = 0: must be a whole"),
+        (("acquisition", "filter_order"), 0, "\\[acquisition\\]: filter_order = 0: must be a positive integer"),
         (("acquisition", "cutoff"), 1.5, "\\[acquisition\\]: cutoff = 1.5: must be above 0 and below 1"),
         (("acquisition", "stopband_db"), 80, "\\[acquisition\\]: stopband_db: is not used by "
                                              "filter 'butterworth' \\(it applies to digital, "

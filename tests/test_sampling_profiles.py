@@ -101,7 +101,7 @@ def test_rpm_grid():
     np.testing.assert_allclose(RUNUP.rpm_grid(4), [600, 1600, 2600, 3600])
     np.testing.assert_allclose(TABLE.rpm_grid(2), [500, 3000])
     for bad, shown in ((1, "1"), (2.5, "2.5"), ("3", '"3"'), (True, "true")):
-        with pytest.raises(InputError, match=f"^n = {shown}: must be a whole number >= 2$"):
+        with pytest.raises(InputError, match=f"^n = {shown}: must be an integer >= 2"):
             RUNUP.rpm_grid(bad)
 
 

@@ -127,12 +127,17 @@ class FieldError(InputError):
         return describe(field or self.field, self.value, self.problem)
 
 
-def _notes(unit: str = "", value=NO_VALUE) -> str:
-    """`` (unit; got a string)``: the unit, and the kind of a value that is no number."""
-    notes = [unit] if unit else []
-    if value is not NO_VALUE and not is_number(value):
-        notes.append(f"got {kind_of(value)}")
+def _notes(*notes) -> str:
+    """`` (a; b)`` of the notes that are not empty, or ``""``."""
+    notes = [n for n in notes if n]
     return f" ({'; '.join(notes)})" if notes else ""
+
+
+def _why(value) -> str:
+    """Why `value` is no finite number: ``got a string``, ``not inf or nan``, or ``""``."""
+    if not is_number(value):
+        return f"got {kind_of(value)}"
+    return "" if math.isfinite(float(value)) else "not inf or nan"
 
 
 # --------------------------------------------------------------------------------------------
@@ -147,8 +152,9 @@ def real(owner: str | None, field: str, value, *, low=None, high=None, low_open=
     ``low``/``high`` are inclusive unless ``low_open``/``high_open`` is set; `unit` (``"Hz"``)
     is named in the rule.
     """
-    if not is_number(value) or not math.isfinite(float(value)):
-        raise FieldError(owner, field, "must be a finite number" + _notes(unit, value), value)
+    if _why(value):
+        raise FieldError(owner, field, "must be a finite number" + _notes(unit, _why(value)),
+                         value)
     x = float(value)
     rules = []
     if low is not None:
@@ -163,9 +169,9 @@ def real(owner: str | None, field: str, value, *, low=None, high=None, low_open=
 
 def positive(owner: str | None, field: str, value, *, unit: str = "") -> float:
     """Check that `value` is a finite number > 0; return it as float."""
-    if not is_number(value) or not math.isfinite(float(value)) or float(value) <= 0:
-        raise FieldError(owner, field, "must be a positive, finite number" + _notes(unit, value),
-                         value)
+    why = _why(value) or ("> 0" if float(value) <= 0 else "")
+    if why:
+        raise FieldError(owner, field, "must be a positive number" + _notes(unit, why), value)
     return float(value)
 
 
@@ -178,23 +184,24 @@ def rate_hz(owner: str | None, field: str, value) -> float:
 
 def positive_int(owner: str | None, field: str, value, *, low: int = 1,
                  high: int | None = None, whole_float: bool = True, what: str = "") -> int:
-    """Check that `value` is a whole number from `low` (default 1) to `high`; return it as int.
+    """Check that `value` is an integer from `low` (default 1) to `high`; return it as int.
 
     A float with a whole value (``8.0``) is accepted unless `whole_float` is False; bool never
     is.  `what` (``"samples per block"``) is added to the rule in brackets.
     """
+    word = "a positive integer" if low == 1 else f"an integer >= {low}"
     if whole_float:
-        ok = is_number(value) and math.isfinite(float(value)) and float(value) == int(value)
+        whole = is_number(value) and math.isfinite(float(value)) and float(value) == int(value)
     else:
-        ok = isinstance(value, numbers.Integral) and not isinstance(value, (bool, np.bool_))
-    if not ok or int(value) < low or (high is not None and int(value) > high):
-        if high is not None:
-            rule = f"must be a whole number from {low} to {high}"
-        elif low == 1 and not what:
-            rule = "must be a whole number (1, 2, 3, ...)"
-        else:
-            rule = f"must be a whole number >= {low}"
-        raise FieldError(owner, field, rule + _notes(what), value)
+        whole = isinstance(value, numbers.Integral) and not isinstance(value, (bool, np.bool_))
+    if not whole:
+        raise FieldError(owner, field, f"must be {word}" + _notes(what, f"got {kind_of(value)}"),
+                         value)
+    if int(value) < low:
+        raise FieldError(owner, field, f"must be {word}" + _notes(what), value)
+    if high is not None and int(value) > high:
+        raise FieldError(owner, field, f"must be an integer from {low} to {high}" + _notes(what),
+                         value)
     return int(value)
 
 
