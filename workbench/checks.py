@@ -236,7 +236,7 @@ def text(owner: str | None, field: str, value) -> str:
     if not isinstance(value, str) or not value or value != value.strip() \
             or not value.isprintable():
         got = f" (got {kind_of(value)})" if not isinstance(value, str) else ""
-        raise FieldError(owner, field, "must be a non-empty text of printable characters "
+        raise FieldError(owner, field, "must be a non-empty string of printable characters "
                                        f"without leading or trailing spaces{got}", value)
     return value
 

@@ -15,7 +15,8 @@ from collections import deque
 from dataclasses import dataclass
 
 from workbench.errors import InputError, MachineFileError, TrainError
-from workbench.machine._fields import _check_name, _error, _set, _suggest
+from workbench.checks import suggest
+from workbench.machine._fields import _check_name, _error, _set
 from workbench.machine.entries import (SOURCE_TYPES, Critical, Resonance, Shaft, Source,
                                        _Entry)
 from workbench.machine.lines import Line
@@ -118,7 +119,7 @@ class Machine:
             raise _error(
                 label, "reference", self.reference,
                 f"is not a shaft; shafts are {_names(shaft_names)}"
-                + _suggest(self.reference, shaft_names),
+                + suggest(self.reference, shaft_names),
             )
         for item in self.sources:
             for field, shaft in item.shafts_used():
@@ -126,7 +127,7 @@ class Machine:
                     raise _error(
                         item.label, field, shaft,
                         f"no such [[shaft]]; shafts are {_names(shaft_names)}"
-                        + _suggest(shaft, shaft_names),
+                        + suggest(shaft, shaft_names),
                     )
 
     @property
