@@ -17,7 +17,8 @@ from typing import Any
 
 import numpy as np
 
-from workbench.angle._common import finite_real, one_d, positive_rate
+from workbench import checks
+from workbench.angle._common import one_d
 from workbench.angle.pulse_timing import PulseTiming
 from workbench.errors import InputError
 
@@ -264,11 +265,11 @@ class ShaftAngle:
         start_s : float
             Start of the span (s); the angle is 0 there.
         """
-        rpm = finite_real(rpm, "rpm")
+        rpm = checks.real(None, "rpm", rpm)
         if rpm <= 0:
             raise InputError(f"rpm {rpm!r} is not valid; allowed: a speed > 0 rpm")
-        duration_s = positive_rate(duration_s, "duration_s")
-        start_s = finite_real(start_s, "start_s")
+        duration_s = checks.positive(None, "duration_s", duration_s, unit="s")
+        start_s = checks.real(None, "start_s", start_s)
         return cls(np.array([start_s, start_s + duration_s]),
                    np.array([0.0, rpm / 60.0 * duration_s]), DoubtedPulses.empty(),
                    "constant speed")
