@@ -9,6 +9,7 @@ from collections.abc import Iterable, Iterator
 
 import numpy as np
 
+from workbench.checks import show
 from workbench.errors import InputError
 
 #: Samples per internal chunk when a whole array is processed piece by piece.
@@ -50,7 +51,7 @@ def iter_chunks(x, name: str = "x", chunk: int = CHUNK_SAMPLES) -> Iterator[np.n
             yield a[i:i + chunk]
         return
     if not isinstance(x, Iterable):
-        raise InputError(f"{name} of type {type(x).__name__} is not valid; allowed: a 1-D array, "
+        raise InputError(f"{name} = {show(x)}: must be a 1-D array, "
                          "an iterable of 1-D arrays, or a callable returning one")
     for i, c in enumerate(x):
         yield one_d(c, f"{name} chunk {i}")

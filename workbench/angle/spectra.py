@@ -32,6 +32,7 @@ import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
 
 from workbench import checks
+from workbench.checks import show
 from workbench.angle._common import iter_chunks, one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.angle.tracking import AngleSignal, iter_resample_to_angle
@@ -102,7 +103,7 @@ def _window(window, n: int) -> np.ndarray:
 
         w = get_window(window, n, fftbins=True)
     except (ValueError, TypeError) as exc:
-        raise InputError(f"window {window!r} is not valid ({exc}); allowed: a window name or "
+        raise InputError(f"window = {show(window)}: {exc}; allowed: a window name or "
                          "tuple understood by scipy.signal.get_window, e.g. 'hann', "
                          "'flattop', ('kaiser', 14)") from None
     return np.asarray(w, dtype=np.float64)
@@ -329,10 +330,10 @@ class OrderPeaks:
 
 def _check_options(window, overlap, scaling):
     if scaling not in SCALINGS:
-        raise InputError(f"scaling {scaling!r} is not valid; allowed: 'peak' or 'rms'")
+        raise InputError(f"scaling = {show(scaling)}: must be 'peak' or 'rms'")
     overlap = checks.real(None, "overlap", overlap)
     if not 0 <= overlap < 1:
-        raise InputError(f"overlap {overlap!r} is not valid; allowed: 0 <= overlap < 1 "
+        raise InputError(f"overlap = {show(overlap)}: must be 0 <= overlap < 1 "
                          "(fraction of a block)")
     return overlap
 
@@ -468,7 +469,7 @@ def _revs_per_block(revs_per_block, order_resolution, samples_per_rev: int) -> t
     elif order_resolution is not None:
         res = checks.real(None, "order_resolution", order_resolution)
         if res <= 0:
-            raise InputError(f"order_resolution {res!r} is not valid; allowed: a number > 0 "
+            raise InputError(f"order_resolution = {show(res)}: must be a number > 0 "
                              "(orders)")
         rpb = 1.0 / res
     elif revs_per_block is not None:
@@ -476,7 +477,7 @@ def _revs_per_block(revs_per_block, order_resolution, samples_per_rev: int) -> t
     else:
         rpb = float(DEFAULT_REVS_PER_BLOCK)
     if rpb <= 0:
-        raise InputError(f"revs_per_block {rpb!r} is not valid; allowed: a number > 0")
+        raise InputError(f"revs_per_block = {show(rpb)}: must be a number > 0")
     n = round(rpb * samples_per_rev)
     if n < 8:
         raise InputError(f"revs_per_block {rpb:g} gives {n} samples per block at "
@@ -541,7 +542,7 @@ class OrderAnalysis:
         if max_order is not None:
             max_order = checks.real(None, "max_order", max_order)
             if max_order <= 0:
-                raise InputError(f"max_order {max_order!r} is not valid; allowed: > 0")
+                raise InputError(f"max_order = {show(max_order)}: must be > 0")
         self._max_order = max_order
         self._rpb_args = (revs_per_block, order_resolution)
         self._keep_map = bool(keep_map)
@@ -555,7 +556,7 @@ class OrderAnalysis:
         """Add the next angle-domain piece: it follows the previous one, or starts after a
         gap in the angle (blocks then start afresh: none spans the gap)."""
         if not isinstance(sig, AngleSignal):
-            raise InputError(f"piece of type {type(sig).__name__} is not valid; allowed: "
+            raise InputError(f"piece = {show(sig)}: must be "
                              "AngleSignal pieces (from resample_to_angle / iter_resample_to_angle)")
         if self._blocks is None:
             self._spr = sig.samples_per_rev
@@ -646,7 +647,7 @@ class OrderAnalysis:
 def _rpm_edges(rpm_bins, rpm: np.ndarray) -> np.ndarray:
     if isinstance(rpm_bins, Integral) and not isinstance(rpm_bins, bool):
         if rpm_bins < 1:
-            raise InputError(f"rpm_bins {rpm_bins!r} is not valid; allowed: a count >= 1 or "
+            raise InputError(f"rpm_bins = {show(rpm_bins)}: must be a count >= 1 or "
                              "increasing bin edges (rpm)")
         lo, hi = float(rpm.min()), float(rpm.max())
         if hi == lo:
@@ -655,7 +656,7 @@ def _rpm_edges(rpm_bins, rpm: np.ndarray) -> np.ndarray:
     edges = np.asarray(rpm_bins, dtype=np.float64)
     if edges.ndim != 1 or len(edges) < 2 or not np.all(np.diff(edges) > 0) or \
             not np.isfinite(edges).all():
-        raise InputError(f"rpm_bins {rpm_bins!r} is not valid; allowed: a count >= 1 or at "
+        raise InputError(f"rpm_bins = {show(rpm_bins)}: must be a count >= 1 or at "
                          "least two strictly increasing bin edges (rpm)")
     return edges
 
@@ -665,7 +666,7 @@ def _pieces(sig):
         return (sig,)
     if isinstance(sig, Iterable) and not isinstance(sig, (str, bytes, np.ndarray)):
         return sig
-    raise InputError(f"signal of type {type(sig).__name__} is not valid; allowed: an "
+    raise InputError(f"signal = {show(sig)}: must be an "
                      "AngleSignal or an iterable of consecutive AngleSignal pieces")
 
 
@@ -802,7 +803,7 @@ def order_cut(source, order: float, *, bandwidth_orders: float | None = None,
                          "this is already an OrderMap")
     order = checks.real(None, "order", order)
     if order <= 0:
-        raise InputError(f"order {order!r} is not valid; allowed: an order > 0")
+        raise InputError(f"order = {show(order)}: must be an order > 0")
     res = omap.order_resolution
     if bandwidth_orders is None:
         bandwidth_orders = 4.0 * res
@@ -865,10 +866,10 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     try:
         lo, hi = (checks.real(None, "band_hz", v) for v in band_hz)
     except TypeError:
-        raise InputError(f"band_hz {band_hz!r} is not valid; allowed: two frequencies (lo, hi) "
+        raise InputError(f"band_hz = {show(band_hz)}: must be two frequencies (lo, hi) "
                          "in Hz") from None
     if not 0 < lo < hi < rate_hz / 2:
-        raise InputError(f"band_hz ({lo:g}, {hi:g}) is not valid; allowed: 0 < lo < hi < "
+        raise InputError(f"band_hz = [{lo:g}, {hi:g}]: must be 0 < lo < hi < "
                          f"rate/2 = {rate_hz / 2:g} Hz")
     filter_order = checks.positive_int(None, "filter_order", filter_order, whole_float=False)
     if len(xa) < 64:
@@ -920,7 +921,7 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
     """
     rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
     if not isinstance(angle, ShaftAngle):
-        raise InputError(f"angle of type {type(angle).__name__} is not valid; allowed: a "
+        raise InputError(f"angle = {show(angle)}: must be a "
                          "ShaftAngle")
     nperseg = checks.positive_int(None, "nperseg", nperseg, low=8, whole_float=False)
     overlap = _check_options(window, overlap, scaling)
@@ -928,7 +929,7 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
     if max_hz is not None:
         max_hz = checks.real(None, "max_hz", max_hz)
         if max_hz <= 0:
-            raise InputError(f"max_hz {max_hz!r} is not valid; allowed: > 0 Hz")
+            raise InputError(f"max_hz = {show(max_hz)}: must be > 0 Hz")
         n_keep = int(math.floor(max_hz * nperseg / rate_hz + 1e-9)) + 1
     hop = max(1, round(nperseg * (1 - overlap)))
     edges = None
@@ -1103,22 +1104,22 @@ def find_order_peaks(spectrum: OrderSpectrum, *, n: int = 10, min_prominence_db:
        Fourier transform", Proceedings of the IEEE 66(1):51-83, 1978.
     """
     if not isinstance(spectrum, OrderSpectrum):
-        raise InputError(f"spectrum of type {type(spectrum).__name__} is not valid; allowed: an "
+        raise InputError(f"spectrum = {show(spectrum)}: must be an "
                          "OrderSpectrum")
     n = checks.positive_int(None, "n", n, whole_float=False)
     min_prominence_db = checks.real(None, "min_prominence_db", min_prominence_db)
     if min_prominence_db < 0:
-        raise InputError(f"min_prominence_db {min_prominence_db!r} is not valid; allowed: >= 0")
+        raise InputError(f"min_prominence_db = {show(min_prominence_db)}: must be >= 0")
     order, amp = spectrum.order, spectrum.amplitude
     lo_i, hi_i = 0, len(order)
     if order_range is not None:
         try:
             lo, hi = (checks.real(None, "order_range", v) for v in order_range)
         except TypeError:
-            raise InputError(f"order_range {order_range!r} is not valid; allowed: (lo, hi) "
+            raise InputError(f"order_range = {show(order_range)}: must be (lo, hi) "
                              "orders") from None
         if not lo < hi:
-            raise InputError(f"order_range ({lo:g}, {hi:g}) is not valid; allowed: lo < hi")
+            raise InputError(f"order_range = [{lo:g}, {hi:g}]: must be lo < hi")
         lo_i = int(np.searchsorted(order, lo, side="left"))
         hi_i = int(np.searchsorted(order, hi, side="right"))
     floor = np.finfo(np.float64).tiny

@@ -90,6 +90,7 @@ import numpy as np
 import scipy.fft as sfft
 
 from workbench import checks
+from workbench.checks import show
 from workbench.angle._common import CHUNK_SAMPLES, iter_chunks, one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
@@ -382,7 +383,7 @@ class OrderTracker:
         self.rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
         self.threads = resolve_threads(threads)
         if not isinstance(angle, ShaftAngle):
-            raise InputError(f"angle of type {type(angle).__name__} is not valid; allowed: a "
+            raise InputError(f"angle = {show(angle)}: must be a "
                              "ShaftAngle (from tacho_angle, ShaftAngle.from_rpm or "
                              "ShaftAngle.from_speed_table)")
         self.angle = angle
@@ -398,14 +399,14 @@ class OrderTracker:
             self._current = 0
         self.samples_per_rev = checks.positive_int(None, "samples_per_rev", samples_per_rev, low=4, whole_float=False)
         if not isinstance(protect, (bool, np.bool_)):
-            raise InputError(f"protect {protect!r} is not valid; allowed: True or False")
+            raise InputError(f"protect = {show(protect)}: must be True or False")
         self.protect = bool(protect)
         nyq = self.samples_per_rev / 2.0
         if max_order is None:
             max_order = DEFAULT_MAX_ORDER_FRACTION * nyq
         max_order = checks.real(None, "max_order", max_order)
         if not 0 < max_order < 0.95 * nyq:
-            raise InputError(f"max_order {max_order!r} is not valid; allowed: 0 < max_order < "
+            raise InputError(f"max_order = {show(max_order)}: must be 0 < max_order < "
                              f"{0.95 * nyq:g} (0.95 x the order Nyquist samples_per_rev/2 = "
                              f"{nyq:g})")
         self.max_order = max_order

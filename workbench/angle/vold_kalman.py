@@ -101,6 +101,7 @@ import numpy as np
 from scipy.linalg import solveh_banded
 
 from workbench import checks
+from workbench.checks import show
 from workbench.angle._common import one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
@@ -135,7 +136,7 @@ _BANDWIDTH_SPAN = 100.0
 
 def _filter_order(p) -> int:
     if isinstance(p, bool) or not isinstance(p, (int, np.integer)) or int(p) not in FILTER_ORDERS:
-        raise InputError(f"filter_order {p!r} is not valid; allowed: 1, 2 or 3 (order of the "
+        raise InputError(f"filter_order = {show(p)}: must be 1, 2 or 3 (order of the "
                          "structural equation: 2 is the usual choice)")
     return int(p)
 
@@ -171,7 +172,7 @@ def vk_weighting(bandwidth_hz, rate_hz, filter_order=2):
     rate = checks.rate_hz(None, "rate_hz", rate_hz)
     b = np.asarray(bandwidth_hz, dtype=np.float64)
     if not np.all(np.isfinite(b)) or np.any(b <= 0) or np.any(b >= rate):
-        raise InputError(f"bandwidth_hz {bandwidth_hz!r} is not valid; allowed: 0 < B < the rate "
+        raise InputError(f"bandwidth_hz = {show(bandwidth_hz)}: must be 0 < B < the rate "
                          f"({rate:g} Hz)")
     return np.sqrt(_HALF_POWER / (2.0 - 2.0 * np.cos(np.pi * b / rate)) ** p)[()]
 
@@ -182,7 +183,7 @@ def vk_bandwidth_hz(weighting, rate_hz, filter_order=2):
     rate = checks.rate_hz(None, "rate_hz", rate_hz)
     r = np.asarray(weighting, dtype=np.float64)
     if not np.all(np.isfinite(r)) or np.any(r <= 0):
-        raise InputError(f"weighting {weighting!r} is not valid; allowed: a finite number > 0")
+        raise InputError(f"weighting = {show(weighting)}: must be a finite number > 0")
     c = 1.0 - 0.5 * (_HALF_POWER / r ** 2) ** (1.0 / p)
     return (rate / np.pi * np.arccos(np.clip(c, -1.0, 1.0)))[()]
 
@@ -422,7 +423,7 @@ def _orders_tuple(orders) -> tuple:
     vals = np.atleast_1d(np.asarray(orders, dtype=np.float64)) if not isinstance(orders, str) \
         else np.array([np.nan])
     if vals.ndim != 1 or len(vals) == 0 or not np.all(np.isfinite(vals)) or np.any(vals <= 0):
-        raise InputError(f"orders {orders!r} is not valid; allowed: one or more positive orders, "
+        raise InputError(f"orders = {show(orders)}: must be one or more positive orders, "
                          "e.g. (4, 4.1)")
     if len(set(vals.tolist())) != len(vals):
         raise InputError(f"orders {orders!r}: an order is given twice; give each order once")
@@ -537,13 +538,13 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     if bandwidth_pct is not None:
         pct = checks.real(None, "bandwidth_pct", bandwidth_pct)
         if not 0 < pct < 100:
-            raise InputError(f"bandwidth_pct {bandwidth_pct!r} is not valid; allowed: 0 < pct "
+            raise InputError(f"bandwidth_pct = {show(bandwidth_pct)}: must be 0 < pct "
                              "< 100 (percent of the order's frequency)")
     else:
         bw = DEFAULT_BANDWIDTH_HZ if bandwidth_hz is None else checks.real(
             None, "bandwidth_hz", bandwidth_hz)
         if not 0 < bw < rate / 4:
-            raise InputError(f"bandwidth_hz {bandwidth_hz!r} is not valid; allowed: 0 < B < "
+            raise InputError(f"bandwidth_hz = {show(bandwidth_hz)}: must be 0 < B < "
                              f"{rate / 4:g} Hz (a quarter of the rate)")
     x = one_d(x, "x")
     n = len(x)
@@ -573,7 +574,7 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     if envelope_rate_hz is not None:
         want = checks.real(None, "envelope_rate_hz", envelope_rate_hz)
         if not 0 < want <= rate:
-            raise InputError(f"envelope_rate_hz {envelope_rate_hz!r} is not valid; allowed: 0 < "
+            raise InputError(f"envelope_rate_hz = {show(envelope_rate_hz)}: must be 0 < "
                              f"rate <= the channel's rate {rate:g} Hz")
         ratio = max(1, int(round(rate / want)))
     else:
