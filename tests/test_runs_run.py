@@ -148,7 +148,7 @@ def test_with_log_appends_and_shares_data():
     assert r4.data is run.data
     with pytest.raises(InputError, match="not both"):
         run.with_log(("a", {}), {"b": 1})
-    with pytest.raises(InputError, match="log entry 5"):
+    with pytest.raises(InputError, match="log entry = 5: must be"):
         run.with_log(5)
 
 

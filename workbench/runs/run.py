@@ -31,7 +31,7 @@ from typing import Any
 
 import numpy as np
 
-from workbench.checks import FieldError, positive, positive_int, rate_hz
+from workbench.checks import FieldError, positive, positive_int, rate_hz, show
 from workbench.errors import InputError
 
 __all__ = ["Channel", "Run", "LogEntry", "full_scale"]
@@ -137,10 +137,10 @@ def _as_log_entry(entry: Any, parameters: Mapping[str, Any] | None) -> LogEntry:
         stamp, action, params = entry
         if not isinstance(stamp, str) or not isinstance(action, str) or not isinstance(
                 params, Mapping):
-            raise InputError(f"log entry {entry!r} is not valid; allowed: (timestamp str, action "
-                             "str, parameters mapping)")
+            raise InputError(f"log entry = {show(entry)}: must be (timestamp str, action str, "
+                             "parameters mapping)")
         return (stamp, action, dict(params))
-    raise InputError(f"log entry {entry!r} is not valid; allowed: an action string, (action, "
+    raise InputError(f"log entry = {show(entry)}: must be an action string, (action, "
                      "parameters) or (timestamp, action, parameters)")
 
 

@@ -28,6 +28,7 @@ import math
 
 import ipywidgets as widgets
 
+from workbench import checks
 from workbench.errors import FoldlineError, InputError
 from workbench.sampling import (ANALOG_KINDS, COLLISION_COLUMNS, FILTER_KINDS, AntiAliasFilter,
                                 SpeedProfile, advise, find_collisions, fold_map)
@@ -347,9 +348,7 @@ class FoldMapPanel:
         with collect_warnings() as caught:
             try:
                 plan = self.current_plan()
-                rate = float(self.rate_hz.value)
-                if not math.isfinite(rate) or rate <= 0:
-                    raise InputError(f"rate {self.rate_hz.value!r} Hz: give a positive sample rate")
+                rate = checks.rate_hz(None, "rate_hz", self.rate_hz.value)
                 advice = self._advice_for(plan)
                 fmap = self._fold_map_for(plan, rate)
                 table = self._table_for(plan, rate, fmap)
