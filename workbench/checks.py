@@ -9,11 +9,12 @@ as it is written in a TOML file (``true``, ``"text"``, ``[1, 2]``), so a message
 a message about a Python argument look alike.  Where the value came from a file, the reader
 puts the file and the entry in front: ``plan.toml: [acquisition]: rates_hz = [0]: ...``.
 
-The helpers below hold the rules (what a sample rate is, what a whole number is); everything
+The helpers below hold the rules (what a sample rate is, what an integer is); everything
 else imports them.  Domain objects (filters, speed profiles, bands, plans) check their own
 fields and raise :class:`FieldError`, an :class:`~workbench.errors.InputError` that remembers
 the field, the value and the rule, so a file reader can re-raise it as its own error class
-naming the file, the table and the key as the user wrote it (:meth:`FieldError.located`).
+naming the file, the table and the key as the user wrote it (``field``, ``value`` and
+``problem`` are kept apart for that).
 Public functions check their arguments on entry with the same helpers (``owner=None``: the
 message starts with the argument's name); internal functions trust what they are given.
 """
@@ -30,8 +31,13 @@ import numpy as np
 
 from workbench.errors import FoldlineWarning, InputError
 
+class _NoValue:
+    def __repr__(self):
+        return "NO_VALUE"
+
+
 #: Marks "no value to show" (a missing key, a rule between two fields).
-NO_VALUE = type("NoValue", (), {"__repr__": lambda self: "NO_VALUE"})()
+NO_VALUE = _NoValue()
 
 #: The rule of a sample rate, in every message about one.
 RATE_RULE = "must be a positive, finite sample rate (Hz)"
@@ -88,12 +94,18 @@ def describe(name: str, value=NO_VALUE, rule: str = "") -> str:
     return f"{head}: {rule}" if rule else head
 
 
+def closest(word, choices) -> str | None:
+    """The one of `choices` closest to `word` (a likely typo), or None."""
+    if not isinstance(word, str):
+        return None
+    close = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
+    return close[0] if close else None
+
+
 def suggest(word, choices) -> str:
     """``'; did you mean "x"?'`` for the closest of `choices` to `word`, or ``""``."""
-    if not isinstance(word, str):
-        return ""
-    close = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
-    return f"; did you mean {show(close[0])}?" if close else ""
+    close = closest(word, choices)
+    return f"; did you mean {show(close)}?" if close is not None else ""
 
 
 class FieldError(InputError):
@@ -122,9 +134,6 @@ class FieldError(InputError):
         text = describe(field, value, problem)
         super().__init__(f"{owner}: {text}" if owner else text)
 
-    def located(self, field: str | None = None) -> str:
-        """The message without the owner, under another field name (a file's key)."""
-        return describe(field or self.field, self.value, self.problem)
 
 
 def _notes(*notes) -> str:
@@ -205,19 +214,6 @@ def positive_int(owner: str | None, field: str, value, *, low: int = 1,
     return int(value)
 
 
-def power_of_two(owner: str | None, field: str, value, *, low: int = 1,
-                 high: int | None = None) -> int:
-    """Check that `value` is a power of two from `low` to `high`; return it as int."""
-    ok = is_number(value) and math.isfinite(float(value)) and float(value) == int(value)
-    n = int(value) if ok else 0
-    if (not ok or n < max(low, 1) or (n & (n - 1)) != 0
-            or (high is not None and n > high)):
-        span = f" from {low} to {high}" if high is not None else (f" >= {low}" if low > 1 else "")
-        raise FieldError(owner, field, f"must be a power of two{span} (256, 512, 1024, ...)",
-                         value)
-    return n
-
-
 def choice(owner: str | None, field: str, value, allowed):
     """Check that `value` is one of `allowed` (strings); return it.
 
@@ -225,8 +221,8 @@ def choice(owner: str | None, field: str, value, allowed):
     """
     if not isinstance(value, str) or value not in allowed:
         listing = ", ".join(show(a) for a in allowed)
-        close = suggest(value, allowed)
-        hint = f" ({close[2:]})" if close else ""
+        close = closest(value, allowed)
+        hint = f" (did you mean {show(close)}?)" if close is not None else ""
         raise FieldError(owner, field, f"must be one of {listing}{hint}", value)
     return value
 
