@@ -132,6 +132,15 @@ def test_mdf4_non_uniform_time_base_is_refused(tmp_path):
         read_run(path)
 
 
+def test_damaged_mdf4_and_hdf5_files_are_refused_with_the_file_named(tmp_path):
+    (tmp_path / "g.mf4").write_bytes(b"garbage bytes, no identification block")
+    with pytest.raises(RunFileError, match=r"g\.mf4: is not an MDF file"):
+        read_run(tmp_path / "g.mf4", rate_hz=10.0)
+    (tmp_path / "g.h5").write_bytes(b"garbage bytes, no HDF5 signature")
+    with pytest.raises(RunFileError, match=r"g\.h5: cannot be read as an HDF5 file"):
+        read_run(tmp_path / "g.h5", rate_hz=10.0)
+
+
 # --------------------------------------------------------------------------- HDF5
 def test_hdf5_one_dataset_per_channel_runup(tmp_path):
     t, vib, tacho = runup()

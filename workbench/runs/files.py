@@ -102,7 +102,7 @@ def check_finite(data: np.ndarray, names: tuple[str, ...] | list[str], rate_hz: 
 
 
 # --------------------------------------------------------------------------- read_run
-def _wanted(path: Path, channels: Sequence[str] | None, meta: Sidecar | None,
+def _wanted(channels: Sequence[str] | None, meta: Sidecar | None,
             fmt: RunFormat) -> tuple[str, ...] | None:
     """Names of the channels to read: ``channels=``, else (for formats that read channels by
     name) the sidecar's channel list; the sidecar's tacho channel is added when named apart."""
@@ -241,7 +241,7 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
     meta_name = (meta.source or "the sidecar") if meta else None
     n_meta = len(meta.channels) if meta and meta.channels else None
 
-    wanted = _wanted(path, channels, meta, fmt)
+    wanted = _wanted(channels, meta, fmt)
     found = fmt.reader(path, ReadRequest(n_channels=n_meta,
                                          channels=wanted if fmt.selects_channels else None))
     data = found.data

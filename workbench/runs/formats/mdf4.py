@@ -37,6 +37,11 @@ __all__ = ["read"]
 
 
 def _open(path: Path):
+    with open(path, "rb") as f:
+        magic = f.read(8)
+    if not magic.startswith(b"MDF "):  # the identification block starts every MDF file
+        raise RunFileError(f"{path}: is not an MDF file (it does not start with 'MDF'); export "
+                           "the measurement as MDF4 again, or give it the suffix of its format")
     try:
         from asammdf import MDF
     except ImportError as exc:
