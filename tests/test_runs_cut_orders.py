@@ -6,7 +6,7 @@ import pytest
 
 from workbench.machine import machine_from_dict
 from workbench.runs.cut_orders import default_cut_orders
-from workbench.sampling.plan import plan_from_dict
+from workbench.sampling import plan_from_dict
 
 MACHINE = """
 [machine]
