@@ -37,12 +37,13 @@ import numpy as np
 from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
 from workbench.fileio import file_sha256
-from workbench.machine.model import kind_name
+from workbench.machine.lines import kind_name
+from workbench.runs.cut_orders import default_cut_orders
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
 __all__ = ["Report", "InputFile", "build_report", "write_report", "SAFETY_TEXT", "SECTION_TITLES",
-           "default_cut_orders", "file_sha256"]
+           "file_sha256"]
 
 #: The caution printed in every report; the same words as the README's Safety section.
 SAFETY_TEXT = (
@@ -313,32 +314,6 @@ def _nearest_direct(order, lines, tolerance):
 
 # --------------------------------------------------------------------------------------------
 # building
-
-
-def default_cut_orders(machine, plan, *, max_order=None) -> tuple:
-    """Orders to cut by default: order 1 and the order of every line a plan band follows.
-
-    Parameters
-    ----------
-    machine : Machine
-    plan : Plan
-    max_order : float, optional
-        Leave out orders above this.
-
-    Returns
-    -------
-    tuple of float
-        Distinct orders, ascending.
-    """
-    orders = {1.0}
-    by_name = {ln.name: ln for ln in machine.lines()}
-    for band in plan.bands:
-        if band.kind == "around":
-            ln = by_name.get(band.around)
-            if ln is not None and ln.order is not None:
-                orders.add(round(float(ln.order), 6))
-    out = sorted(o for o in orders if max_order is None or o <= max_order)
-    return tuple(out)
 
 
 def _fold_rates(advice):

@@ -25,7 +25,7 @@ from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_
                              tacho_angle)
 from workbench.angle.tracking import iter_resample_to_angle_channels, resolve_threads
 from workbench.angle.matching import identify_order_map, unmatched_ridges
-from workbench.angle.tacho import speed_tolerance_for
+from workbench.angle.pulse_timing import speed_tolerance_for
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
@@ -488,7 +488,7 @@ def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
         CSV with columns ``time_s, rpm`` standing in for a tacho.
     speed_tolerance : float, optional
         RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
-        default :data:`~workbench.angle.tacho.DEFAULT_SPEED_TOLERANCE`.
+        default :data:`~workbench.angle.pulse_timing.DEFAULT_SPEED_TOLERANCE`.
     chunk : int, optional
         Samples read per chunk while streaming the tacho.
     speed_order, speed_range, speed_channel, speed_scale, channel : optional
