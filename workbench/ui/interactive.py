@@ -42,6 +42,9 @@ IPYMPL_MISSING_NOTE = ("ipympl is not installed, so this is the slider view; for
 #: (Nature Methods 8:441, 2011), as in the slider view.
 HARMONIC_COLOUR, SIDEBAND_COLOUR = "#E69F00", "#56B4E9"
 
+#: Width of ipympl's toolbar on the canvas's left edge (it floats over the figure), px.
+TOOLBAR_PX = 44
+
 #: Resolution of the interactive canvases (dots per inch): a 10-inch figure is 800 px wide.
 INTERACTIVE_DPI = 80
 
@@ -66,6 +69,7 @@ def interactive_canvas(fig):
     import sys
 
     import matplotlib
+    from matplotlib.layout_engine import ConstrainedLayoutEngine
 
     if not ipympl_available():
         raise InputError("interactive figures need the ipympl package: pip install ipympl "
@@ -79,6 +83,10 @@ def interactive_canvas(fig):
         else:
             dict.__setitem__(matplotlib.rcParams, "backend", raw)
     fig.set_dpi(INTERACTIVE_DPI)
+    engine = fig.get_layout_engine()
+    if isinstance(engine, ConstrainedLayoutEngine):  # room on the left for the toolbar, which floats
+        margin = TOOLBAR_PX / fig.bbox.width
+        engine.set(rect=(margin, 0.0, 1.0 - margin, 1.0))
     canvas = Canvas(fig)
     with warnings.catch_warnings():  # ipympl's toolbar passes its canvas on to traitlets
         warnings.simplefilter("ignore", DeprecationWarning)
