@@ -9,7 +9,7 @@ STAMP := $(VENV)/.installed
 $(STAMP): pyproject.toml
 	test -d $(VENV) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -e ".[notebook,batch,test]"
+	$(PY) -m pip install --quiet -e ".[notebook,batch,test,formats]"
 	touch $(STAMP)
 
 install: $(STAMP)

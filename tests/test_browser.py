@@ -94,8 +94,9 @@ def lab(tmp_path):
 
 
 def start_lab(tmp_path, notebook, *, with_runs=False):
-    """Start JupyterLab on a copy of ``notebook`` and the demo files (the recorded run too with
-    ``with_runs``); yield its base URL, stop it afterwards."""
+    """Start JupyterLab on a copy of ``notebook`` (a name in notebooks/, or the path of a
+    notebook elsewhere) and the demo files (the recorded run too with ``with_runs``); yield its
+    base URL, stop it afterwards."""
     if not CHROMIUM.exists():
         _unavailable(f"no Chromium at {CHROMIUM} (install the system package: apt-get install -y chromium)")
     try:
@@ -104,7 +105,8 @@ def start_lab(tmp_path, notebook, *, with_runs=False):
         _unavailable("the playwright package is not installed (pip install -e '.[test]')")
     root = tmp_path / "root"
     (root / "notebooks").mkdir(parents=True)
-    shutil.copy(ROOT / "notebooks" / notebook, root / "notebooks" / notebook)
+    source = Path(notebook) if Path(notebook).is_absolute() else ROOT / "notebooks" / notebook
+    shutil.copy(source, root / "notebooks" / source.name)
     shutil.copytree(ROOT / "sample_runs", root / "sample_runs",
                     ignore=None if with_runs else shutil.ignore_patterns("*.wav", "*.json"))
     settings = tmp_path / "lab-settings"

@@ -1,4 +1,5 @@
-"""The foldline command through the real console script: JSON contracts of every verb."""
+"""JSON contracts of the foldline verbs, through ``workbench.cli.main(argv)`` (the function the
+console script calls); the alias values and ``python -m workbench`` through a real process."""
 
 import json
 import subprocess
@@ -14,26 +15,47 @@ PLAN = str(SAMPLE / "runup_plan.toml")
 FOLDLINE = str(Path(sys.executable).with_name("foldline"))
 
 
-def run(*argv, cwd=None):
-    return subprocess.run([FOLDLINE, *argv], capture_output=True, text=True, cwd=cwd, timeout=300)
+def script(*argv):
+    """``foldline <argv>`` through the installed console script in a subprocess."""
+    return subprocess.run([FOLDLINE, *argv], capture_output=True, text=True, timeout=300)
 
 
-def run_json(*argv, cwd=None):
-    p = run(*argv, "--json", cwd=cwd)
-    assert p.returncode == 0, p.stderr
-    return json.loads(p.stdout)  # exactly one JSON object: json.loads fails on anything else
+@pytest.fixture
+def run(capsys):
+    """``foldline <argv>`` in this process: (exit status, stdout, stderr)."""
+    from workbench.cli import main
+
+    def call(*argv):
+        capsys.readouterr()
+        code = main(list(argv))
+        out = capsys.readouterr()
+        return code, out.out, out.err
+
+    return call
 
 
-def test_alias_worked_values():
+@pytest.fixture
+def run_json(run):
+    def call(*argv):
+        code, out, err = run(*argv, "--json")
+        assert code == 0, err
+        return json.loads(out)  # exactly one JSON object: json.loads fails on anything else
+
+    return call
+
+
+def test_alias_worked_values_through_the_console_script():
     # At 12,800 S/s: 5 kHz -> 5 kHz zone 0, 9 kHz -> 3.8 kHz zone 1, 14 kHz -> 1.2 kHz zone 2,
     # 12.8 kHz -> 0 Hz (REFERENCES.md worked values; common practice, no source).
-    d = run_json("alias", "5000", "9000", "14000", "12800", "--rate", "12800")
+    p = script("alias", "5000", "9000", "14000", "12800", "--rate", "12800", "--json")
+    assert p.returncode == 0 and p.stderr == "", p.stderr
+    d = json.loads(p.stdout)
     assert d["rate_hz"] == 12800 and d["nyquist_hz"] == 6400
     got = [(x["hz"], x["apparent_hz"], x["zone"], x["attenuation_db"]) for x in d["lines"]]
     assert got == [(5000, 5000, 0, 0), (9000, 3800, 1, 0), (14000, 1200, 2, 0), (12800, 0, 2, 0)]
 
 
-def test_alias_with_plan_filter():
+def test_alias_with_plan_filter(run_json):
     # 6th-order Butterworth, -3 dB at 0.39 x 2560 = 998.4 Hz: at 2 x fc the attenuation is
     # 10 log10(1 + 2^12) = 36.12 dB (Butterworth magnitude, REFERENCES.md).
     d = run_json("alias", "1996.8", "--rate", "2560", "--plan", PLAN)
@@ -46,7 +68,7 @@ def test_python_dash_m_is_the_same_command():
     assert p.returncode == 0 and json.loads(p.stdout)["lines"][0]["apparent_hz"] == 3800
 
 
-def test_orders_contract():
+def test_orders_contract(run_json):
     d = run_json("orders", MACHINE)
     assert d["reference"] == "motor"
     by_name = {s["name"]: s for s in d["sources"]}
@@ -59,7 +81,7 @@ def test_orders_contract():
                      "planet_pass", "planet_spin", "sun_fault", "planet_fault", "ring_fault"}
 
 
-def test_foldmap_contract_and_png(tmp_path):
+def test_foldmap_contract_and_png(run, run_json, tmp_path):
     png = tmp_path / "fold.png"
     d = run_json("foldmap", MACHINE, PLAN, "--rate", "2560", "--png", str(png))
     assert set(d) >= {"rate_hz", "filter", "threshold_db", "collisions", "overlaps"}
@@ -69,11 +91,11 @@ def test_foldmap_contract_and_png(tmp_path):
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     # The same file again without --force is refused and left as it was.
     before = png.read_bytes()
-    p = run("foldmap", MACHINE, PLAN, "--rate", "2560", "--png", str(png))
-    assert p.returncode == 2 and "--force" in p.stderr and png.read_bytes() == before
+    code, _, err = run("foldmap", MACHINE, PLAN, "--rate", "2560", "--png", str(png))
+    assert code == 2 and "--force" in err and png.read_bytes() == before
 
 
-def test_plan_contract():
+def test_plan_contract(run_json):
     d = run_json("plan", MACHINE, PLAN)
     assert set(d) >= {"candidates", "recommended_rate_hz", "resampling"}
     assert set(d["resampling"]) >= {"samples_per_rev", "max_order", "order_resolution", "revs_per_block", "min_rate_hz"}
@@ -84,7 +106,7 @@ def test_plan_contract():
     assert d["recommended_rate_hz"] == 10240
 
 
-def test_simulate_then_track(tmp_path):
+def test_simulate_then_track(run_json, tmp_path):
     out = tmp_path / "sim.wav"
     d = run_json("simulate", MACHINE, PLAN, "--rate", "2560", "--out", str(out), "--seed", "4", "--duration", "20")
     assert out.exists() and out.with_suffix(".json").exists() and d["rate_hz"] == 2560
@@ -96,8 +118,9 @@ def test_simulate_then_track(tmp_path):
     assert (tmp_path / "t" / "order_map.png").exists()
 
 
-def test_demo_writes_outputs(tmp_path):
-    d = run_json("demo", "--out", str(tmp_path / "demo"), cwd=ROOT)
+def test_demo_writes_outputs(run_json, tmp_path, monkeypatch):
+    monkeypatch.chdir(ROOT)
+    d = run_json("demo", "--out", str(tmp_path / "demo"))
     files = [Path(f) for f in d["files"]]
     assert files and all(f.exists() for f in files)
     assert d["advice"]["recommended_rate_hz"] == 10240

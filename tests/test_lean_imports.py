@@ -4,7 +4,8 @@ Checked in a fresh interpreter through ``sys.modules``: registering every verb (
 ``foldline --help`` does) loads no numerical library; ``alias`` loads numpy only; tracking
 never loads scipy.signal (a second to import), scipy.stats (pulled in by scipy.signal's peak
 finder), scipy.ndimage or matplotlib unless asked (an envelope band needs scipy.signal's
-filters; ``--out`` draws figures).
+filters; ``--out`` draws figures), and the MDF4 and HDF5 libraries (asammdf, h5py) only when such
+a file is read.
 """
 
 import json
@@ -13,10 +14,12 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 ROOT = Path(__file__).resolve().parents[1]
 RUN = ROOT / "sample_runs" / "agitator_runup.wav"
 WATCH = ("numpy", "pandas", "scipy", "scipy.signal", "scipy.stats", "scipy.ndimage", "matplotlib",
-         "ipywidgets", "dask", "pyarrow")
+         "ipywidgets", "dask", "pyarrow", "asammdf", "h5py")
 
 
 def _loaded(code: str) -> set:
@@ -48,7 +51,7 @@ def test_tracking_path_does_not_load_scipy_signal_stats_or_plots():
     loaded = _loaded(f"from workbench.cli import main\n"
                      f"assert main(['track', {str(RUN)!r}, '--samples-per-rev', '64', '--json']) == 0")
     assert not loaded & {"scipy.signal", "scipy.stats", "scipy.ndimage", "matplotlib", "ipywidgets",
-                         "dask"}
+                         "dask", "asammdf", "h5py"}
 
 
 def test_an_envelope_band_loads_scipy_signal_when_asked():
@@ -56,3 +59,13 @@ def test_an_envelope_band_loads_scipy_signal_when_asked():
                      f"assert main(['track', {str(RUN)!r}, '--samples-per-rev', '64', "
                      f"'--envelope', '300,1000', '--json']) == 0")
     assert "scipy.signal" in loaded and "matplotlib" not in loaded
+
+
+def test_a_format_library_loads_only_when_its_file_is_read(tmp_path):
+    h5py = pytest.importorskip("h5py")
+    path = tmp_path / "r.h5"
+    with h5py.File(path, "w") as f:
+        f.create_dataset("x", data=[0.0, 1.0, 0.0]).attrs["rate_hz"] = 10.0
+    loaded = _loaded(f"from workbench.runs import read_run\n"
+                     f"assert read_run({str(path)!r}).channel_names == ('x',)")
+    assert "h5py" in loaded and "asammdf" not in loaded

@@ -1,4 +1,4 @@
-"""Tests of workbench.runs.wav: header parsing, memory-mapped reading, the streaming writer.
+"""Tests of workbench.runs.formats.wav: header parsing, memory-mapped reading, the streaming writer.
 
 scipy.io.wavfile (a general-purpose reference library) reads and writes the same files
 independently; Python's standard ``wave`` module writes plain 8- and 24-bit PCM files.
@@ -14,7 +14,7 @@ import pytest
 import scipy.io.wavfile as wavfile
 
 from workbench.errors import InputError, RunFileError
-from workbench.runs.wav import WavWriter, read_wav, read_wav_info
+from workbench.runs.formats.wav import WavWriter, read_wav, read_wav_info
 
 # scipy returns int24 as int32 codes shifted left by 8 bits, so every integer format divides by
 # 2**(container bits - 1) (scipy.io.wavfile documentation).

@@ -4,18 +4,20 @@ Drawn for a reader: lines thin and coloured by their source (one key entry per s
 translucent *above* the lines with their names, collisions numbered where the numbers do not
 overlap (key below the map), overlaps (direct lines inside a band) marked, and a legend that
 lists only what is drawn.  ``log_frequency`` spreads the low-frequency region (bearing bands,
-shaft orders) that a linear axis squeezes against zero.
+shaft orders) that a linear axis squeezes against zero; ``inset_hz`` keeps the linear axis and
+adds the region from 0 to that frequency enlarged beside the map (:func:`draw_low_frequency`).
 """
 
 from __future__ import annotations
 
 import numpy as np
 from matplotlib.lines import Line2D
-from matplotlib.patches import Patch
+from matplotlib.patches import Patch, Rectangle
+from matplotlib.ticker import MaxNLocator
 
 from workbench.plots.common import KIND_COLOURS, new_figure, place_labels, source_colours, text_size_px
 
-__all__ = ["plot_fold_map", "draw_fold_map"]
+__all__ = ["plot_fold_map", "draw_fold_map", "draw_low_frequency", "low_frequency_top"]
 
 _BAND_COLOURS = ("#F0E442", "#CC79A7", "#56B4E9", "#009E73", "#E69F00", "#D55E00")
 
@@ -255,7 +257,70 @@ def draw_fold_map(ax, fmap, plan, *, collisions=None, view="hz", show_faint=True
     return ax
 
 
-def plot_fold_map(fmap, plan, *, collisions=None, view="hz", title=None, **kwargs):
+def low_frequency_top(fmap, top_hz: float, view: str = "hz") -> float:
+    """Top of the enlarged low-frequency region on the vertical axis of ``view``.
+
+    ``top_hz`` itself in the Hz view; in the order view the order that is ``top_hz`` at the
+    lowest speed of the map (every order below ``top_hz`` somewhere in the speed range).
+
+    Raises
+    ------
+    InputError
+        ``top_hz`` not above 0 or not below Nyquist.
+    """
+    from workbench.errors import InputError
+
+    top_hz = float(top_hz)
+    if not (0.0 < top_hz < fmap.nyquist_hz):
+        raise InputError(f"low-frequency inset up to {top_hz:g} Hz: give a frequency above 0 and below "
+                         f"Nyquist ({fmap.nyquist_hz:g} Hz at {fmap.rate_hz:g} S/s)")
+    if view == "hz":
+        return top_hz
+    return top_hz * 60.0 / float(np.nanmin(fmap.rpm))
+
+
+def draw_low_frequency(ax, fmap, plan, top_hz, *, collisions=None, view="hz", **kwargs):
+    """Draw the region from 0 to ``top_hz`` of a fold map, enlarged, on an existing Axes.
+
+    The bearing bands and the low lines (shaft orders, cage and ball-spin lines) that the full
+    map squeezes against zero: the same lines, bands and collisions as :func:`draw_fold_map`
+    (linear axis), without its legend and labels (the full map keys them).
+
+    Parameters
+    ----------
+    ax : matplotlib.axes.Axes
+    fmap, plan, collisions, view
+        As for :func:`draw_fold_map`.
+    top_hz : float
+        Top of the region, Hz (see :func:`low_frequency_top` for the order view).
+    **kwargs
+        Passed to :func:`draw_fold_map` (``lines``, ``bands``, ``colour_by``, ``show_faint``,
+        ``bands_above``); ``log_frequency`` and ``callouts`` do not apply.
+
+    Returns
+    -------
+    matplotlib.axes.Axes
+    """
+    top = low_frequency_top(fmap, top_hz, view)
+    kwargs = {k: v for k, v in kwargs.items() if k not in ("log_frequency", "callouts")}
+    draw_fold_map(ax, fmap, plan, collisions=collisions, view=view, callouts=False, **kwargs)
+    legend = ax.get_legend()
+    if legend is not None:
+        legend.remove()
+    for text in list(ax.texts):  # placed for the full range; the full map names the bands
+        text.remove()
+    ax.set_ylim(0.0, top)
+    ax.set_title(f"0 to {top_hz:g} Hz enlarged" if view == "hz" else
+                 f"orders 0 to {top:.3g} enlarged ({top_hz:g} Hz at {float(np.nanmin(fmap.rpm)):.0f} rpm)",
+                 fontsize=8)
+    ax.tick_params(labelsize=7)
+    ax.xaxis.set_major_locator(MaxNLocator(5))
+    ax.set_ylabel(ax.get_ylabel(), fontsize=7)
+    ax.set_xlabel(ax.get_xlabel(), fontsize=7)
+    return ax
+
+
+def plot_fold_map(fmap, plan, *, collisions=None, view="hz", title=None, inset_hz=None, **kwargs):
     """Fold map figure of one rate.
 
     Parameters
@@ -265,6 +330,10 @@ def plot_fold_map(fmap, plan, *, collisions=None, view="hz", title=None, **kwarg
     collisions : pandas.DataFrame, optional
     view : {"hz", "order"}
     title : str, optional
+    inset_hz : float, optional
+        Add the region from 0 to ``inset_hz`` enlarged beside the map (bearing bands and low
+        lines, :func:`draw_low_frequency`), outlined dotted on the map.  ``fig.axes[0]`` stays
+        the full map; the enlarged region is ``fig.axes[1]``.
     **kwargs
         Passed to :func:`draw_fold_map` (``colour_by``, ``log_frequency``, ``lines``, ...).
 
@@ -272,9 +341,21 @@ def plot_fold_map(fmap, plan, *, collisions=None, view="hz", title=None, **kwarg
     -------
     matplotlib.figure.Figure
     """
-    fig = new_figure(width_in=11.0, height_in=8.0)
-    ax = fig.add_subplot()
+    fig = new_figure(width_in=11.0 if inset_hz is None else 14.0, height_in=8.0)
+    if inset_hz is None:
+        ax = fig.add_subplot()
+    else:
+        low_frequency_top(fmap, inset_hz, view)  # refuse a bad region before drawing
+        grid = fig.add_gridspec(1, 2, width_ratios=(2.4, 1.0))
+        ax = fig.add_subplot(grid[0, 0])
+        inset = fig.add_subplot(grid[0, 1])
     draw_fold_map(ax, fmap, plan, collisions=collisions, view=view, **kwargs)
+    if inset_hz is not None:
+        draw_low_frequency(inset, fmap, plan, inset_hz, collisions=collisions, view=view, **kwargs)
+        top = low_frequency_top(fmap, inset_hz, view)
+        x0, x1 = ax.get_xlim()
+        ax.add_patch(Rectangle((x0, 0.0), x1 - x0, top, fill=False, ec="#333333", lw=0.9, ls=":", zorder=7,
+                               gid="low-frequency-region"))
     n_coll = 0 if collisions is None else int((collisions["kind"] == "collision").sum())
     ax.set_title(
         title

@@ -1,5 +1,6 @@
-"""Runs layer: run files (WAV/CSV/NPZ/MAT + JSON sidecar), the Run object, safe output writing
-and the virtual acquisition (simulator).
+"""Runs layer: run files (WAV/CSV/NPZ/MAT/MDF4/HDF5 + JSON sidecar; formats as plug-ins in
+:mod:`workbench.runs.formats`), the Run object, safe output writing and the virtual
+acquisition (simulator).
 
 Typical use::
 
@@ -20,7 +21,7 @@ from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, run_m
                                     sidecar_from_dict, sidecar_path, write_sidecar)
 from workbench.runs.simulate import (TACHO_HIGH_V, VIBRATION_UNIT, resonance_gain, simulate_run,
                                      simulate_to_wav)
-from workbench.runs.wav import SAMPLE_FORMATS, WavInfo, WavWriter, read_wav, read_wav_info
+from workbench.runs.formats.wav import SAMPLE_FORMATS, WavInfo, WavWriter, read_wav, read_wav_info
 
 __all__ = [
     "Channel",

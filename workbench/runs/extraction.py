@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.fileio import atomic_output
-from workbench.runs.wav import WavWriter
+from workbench.runs.formats.wav import WavWriter
 
 __all__ = ["order_file_stem", "order_files", "write_order_waveform", "write_order_envelope"]
 

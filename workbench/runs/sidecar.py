@@ -1,6 +1,6 @@
 """The JSON sidecar: metadata of a run file, stored beside it under the same stem.
 
-``RUN.json`` beside ``RUN.wav`` (or ``.csv``, ``.npz``, ``.mat``)::
+``RUN.json`` beside ``RUN.wav`` (or ``.csv``, ``.npz``, ``.mat``, ``.mf4``, ``.h5``)::
 
     {
       "rate_hz": 12800,

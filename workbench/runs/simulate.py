@@ -60,7 +60,7 @@ from workbench.runs.files import sidecar_for_run
 from workbench.fileio import atomic_output, check_writable
 from workbench.runs.run import Channel, Run
 from workbench.runs.sidecar import Sidecar, sidecar_path, write_sidecar
-from workbench.runs.wav import WavWriter
+from workbench.runs.formats.wav import WavWriter
 
 __all__ = ["resonance_gain", "mode_gain", "unbalance_gain", "simulate_run", "simulate_to_wav",
            "VIBRATION_UNIT", "TACHO_HIGH_V", "DEFAULT_RESONANCE_HZ"]

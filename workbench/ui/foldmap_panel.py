@@ -30,11 +30,12 @@ import ipywidgets as widgets
 
 from workbench import checks
 from workbench.errors import FoldlineError, InputError
+from workbench.plots.foldmap import draw_low_frequency
 from workbench.sampling import (ANALOG_KINDS, COLLISION_COLUMNS, FILTER_KINDS, AntiAliasFilter,
                                 SpeedProfile, advise, find_collisions, fold_map)
-from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings,
-                                  collision_columns, collision_formats, error_html, fmt_rate,
-                                  html_table, step_card)
+from workbench.ui._common import (FIGSIZE_IN, STYLE, Cache, agg_figure, as_machine, as_plan,
+                                  collect_warnings, collision_columns, collision_formats,
+                                  error_html, fmt_rate, html_table, png_bytes, step_card)
 from workbench.ui.scene import FoldScene
 
 __all__ = ["FoldMapPanel", "narrowed_speed", "COLLISION_TABLE_COLUMNS"]
@@ -131,8 +132,14 @@ class FoldMapPanel:
         Bands drawn and listed.
     view : ipywidgets.ToggleButtons
         ``"hz"`` (apparent frequency) or ``"order"`` (apparent order).
+    inset_hz : ipywidgets.BoundedFloatText
+        Top of the low-frequency region shown enlarged below the map, Hz (0: none); see
+        :func:`workbench.plots.foldmap.draw_low_frequency`.
     figure : ipywidgets.Image
         The fold map, PNG.
+    inset_figure : ipywidgets.Image
+        The low-frequency region enlarged, PNG (class ``foldline-inset-figure``; hidden
+        while ``inset_hz`` is 0).
     table : ipywidgets.HTML
         Collisions of the shown sources with the shown bands (class ``foldline-collisions``)
         and, folded away, the direct lines inside bands (class ``foldline-overlaps``).
@@ -153,6 +160,7 @@ class FoldMapPanel:
         self._tables = Cache(32)
         self._advice = Cache(8)
         self._scenes = Cache(12)
+        self._insets = Cache(8)
         self._build_controls(rate_hz)
         self._defaults = {c: c.value for c in self._controls()}
         self._build_layout()
@@ -165,7 +173,7 @@ class FoldMapPanel:
 
     def _controls(self):
         return (self.rate_choice, self.rate_hz, self.filter_kind, self.filter_order, self.cutoff,
-                self.speed_range, self.threshold_db, self.sources, self.bands, self.view)
+                self.speed_range, self.threshold_db, self.sources, self.bands, self.view, self.inset_hz)
 
     @contextlib.contextmanager
     def hold(self):
@@ -238,12 +246,18 @@ class FoldMapPanel:
             rows=min(4, max(1, len(plan.bands))), description="bands shown", style=style, layout=wide)
         self.view = widgets.ToggleButtons(options=[("Hz", "hz"), ("orders", "order")], value="hz",
                                           description="vertical axis", style={**style, "button_width": "90px"})
+        self.inset_hz = widgets.BoundedFloatText(value=0.0, min=0.0, max=1e6, step=10.0,
+                                                 description="enlarge 0 to (Hz)", style=style,
+                                                 tooltip="the low-frequency region enlarged below the map; 0: none")
+        self.inset_hz.add_class("foldline-inset-hz")
         self._sync_filter_fields()
 
     def _build_layout(self):
         self.header = widgets.HTML()
         self.figure = widgets.Image(format="png", layout=widgets.Layout(max_width="100%"))
         self.figure.add_class("foldline-figure")
+        self.inset_figure = widgets.Image(format="png", layout=widgets.Layout(max_width="100%", display="none"))
+        self.inset_figure.add_class("foldline-inset-figure")
         self.table = widgets.HTML()
         self.table.add_class("foldline-table-box")
         self.legend = widgets.HTML()
@@ -259,10 +273,11 @@ class FoldMapPanel:
             step_card("1 &middot; acquisition", [self.rate_choice, self.rate_hz, self.filter_kind,
                                              self.filter_order, self.cutoff]),
             step_card("2 &middot; test", [self.speed_range, self.threshold_db]),
-            step_card("3 &middot; what to show", [self.sources, self.bands, hint, self.view]),
+            step_card("3 &middot; what to show", [self.sources, self.bands, hint, self.view,
+                                                   self.inset_hz]),
         ], layout=widgets.Layout(flex_flow="row wrap", align_items="stretch", width="100%"))
         steps.add_class("foldline-steps")
-        body = widgets.VBox([steps, self.verdict, self.figure, self.legend])
+        body = widgets.VBox([steps, self.verdict, self.figure, self.inset_figure, self.legend])
         self.widget = widgets.VBox([self.header, body, self.table])
         self.widget.add_class("foldline-foldmap-panel")
 
@@ -338,6 +353,19 @@ class FoldMapPanel:
 
         return self._scenes.get(key, make)
 
+    def _inset_for(self, plan, rate, fmap, table, view, bands, visible, top_hz):
+        key = (rate, plan.filter, plan.speed, plan.threshold_db, view, bands, visible, top_hz)
+
+        def make():
+            fig = agg_figure(figsize=(FIGSIZE_IN[0], 0.7 * FIGSIZE_IN[1]))
+            fig.subplots_adjust(left=0.075, right=0.985, bottom=0.16, top=0.9)
+            draw_low_frequency(fig.add_subplot(), fmap, plan, top_hz, collisions=table, view=view,
+                               lines=visible, bands=set(bands))
+            fig.canvas.draw()
+            return png_bytes(fig)
+
+        return self._insets.get(key, make)
+
     def visible_lines(self) -> frozenset:
         """Names of the lines of the sources now shown."""
         shown = set(self.sources.value)
@@ -355,6 +383,9 @@ class FoldMapPanel:
                 bands = frozenset(self.bands.value)
                 scene = self._scene_for(plan, rate, fmap, table, self.view.value, bands)
                 png = scene.png(self.visible_lines())
+                top_hz = float(self.inset_hz.value or 0.0)
+                inset = None if top_hz <= 0 else self._inset_for(plan, rate, fmap, table, self.view.value, bands,
+                                                                 self.visible_lines(), top_hz)
             except FoldlineError as exc:
                 self.verdict.value = STYLE + error_html(exc)
                 self.error = exc
@@ -362,6 +393,9 @@ class FoldMapPanel:
         self.error = None
         self.fold_map, self.collisions, self.advice = fmap, table, advice
         self.figure.value = png
+        if inset is not None:
+            self.inset_figure.value = inset
+        self.inset_figure.layout.display = "none" if inset is None else ""
         self.legend.value = scene.legend_html
         self.table.value = self._table_html(table, bands)
         self.verdict.value = self._verdict_html(plan, rate, table, advice, caught.messages)

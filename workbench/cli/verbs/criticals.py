@@ -107,7 +107,7 @@ def register(subparsers) -> None:
 
     p = add_verb(subparsers, "criticals", "order tracks with phase (Bode, polar), critical speeds "
                                           "and their amplification factors, Campbell diagram")
-    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
+    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ, MAT, MF4 or HDF5; a .json sidecar beside it)")
     add_track_options(p)
     p.add_argument("--orders", default="1,2", metavar="K1,K2", help="orders to track (default 1,2)")
     p.add_argument("--operating", metavar="LO,HI", help="operating speed range, rpm (separation margins)")

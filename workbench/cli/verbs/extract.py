@@ -161,7 +161,7 @@ def register(subparsers) -> None:
 
     p = add_verb(subparsers, "extract", "extract orders' waveforms and envelopes with the "
                                         "Vold-Kalman filter (close and crossing orders separated)")
-    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
+    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ, MAT, MF4 or HDF5; a .json sidecar beside it)")
     add_track_options(p)
     p.add_argument("--orders", required=True, metavar="K1,K2",
                    help="orders to extract together, e.g. 4,4.1")

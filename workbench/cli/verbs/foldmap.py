@@ -41,7 +41,8 @@ def cmd_foldmap(args) -> int:
         from workbench.plots import plot_fold_map, save_figure
 
         fig = plot_fold_map(fmap, plan, collisions=table, view=args.view,
-                            log_frequency=getattr(args, "log_frequency", False))
+                            log_frequency=getattr(args, "log_frequency", False),
+                            inset_hz=getattr(args, "inset_hz", None))
         save_figure(fig, args.png, force=args.force)
     coll = table[table["kind"] == "collision"]
     over = table[table["kind"] == "overlap"]
@@ -73,5 +74,7 @@ def register(subparsers) -> None:
     p.add_argument("--view", choices=("hz", "order"), default="hz", help="frequency axis of the figure")
     p.add_argument("--log-frequency", action="store_true",
                    help="logarithmic frequency (or order) axis: spreads the low-frequency region")
+    p.add_argument("--inset-hz", type=float, metavar="HZ",
+                   help="with --png: the region from 0 to HZ enlarged beside the map (bearing bands, low lines)")
     p.add_argument("--force", action="store_true", help="overwrite an existing output file")
     p.set_defaults(func=cmd_foldmap)

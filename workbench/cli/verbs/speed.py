@@ -120,7 +120,7 @@ def register(subparsers) -> None:
 
     p = add_verb(subparsers, "speed", "speed of a run from the tacho, an order of the vibration "
                                       "or a speed channel, with its uncertainty")
-    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar "
+    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ, MAT, MF4 or HDF5; a .json sidecar "
                                               "beside it)")
     g = p.add_argument_group("speed source (default: the tacho named in the sidecar)")
     source = g.add_mutually_exclusive_group()

@@ -286,7 +286,7 @@ def register(subparsers) -> None:
     from workbench.cli.options import add_track_options
 
     p = add_verb(subparsers, "track", "order tracking of a recorded run: speed, order spectrum, peaks, maps, aliases")
-    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
+    p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ, MAT, MF4 or HDF5; a .json sidecar beside it)")
     add_track_options(p)
     add_display_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file for the predicted lines (default: the sidecar's)")

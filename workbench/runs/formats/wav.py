@@ -32,9 +32,10 @@ import numpy as np
 from workbench.checks import RATE_RULE, choice, describe, positive_int
 from workbench.errors import InputError, RunFileError
 from workbench.fileio import atomic_output
-from workbench.runs.run import full_scale
+from workbench.runs.formats.base import FormatRead, ReadRequest
+from workbench.runs.run import Run, full_scale
 
-__all__ = ["SAMPLE_FORMATS", "WavInfo", "read_wav_info", "read_wav", "WavWriter"]
+__all__ = ["SAMPLE_FORMATS", "WavInfo", "read_wav_info", "read_wav", "WavWriter", "read", "write"]
 
 WAVE_FORMAT_PCM = 0x0001
 WAVE_FORMAT_IEEE_FLOAT = 0x0003
@@ -438,3 +439,24 @@ class WavWriter:
         f.write(struct.pack("<I", data_bytes))
         f.close()
         self._f = None
+
+
+# --------------------------------------------------------------------------- format plug-in
+_WRITE_CHUNK = 1 << 16
+
+
+def read(path: Path, request: ReadRequest) -> FormatRead:
+    """Read a WAV run file for :func:`workbench.runs.read_run` (memory-mapped, see
+    :func:`read_wav`); the rate comes from the header, names and units from the sidecar.
+    ``request`` is not used."""
+    data, info = read_wav(path)
+    return FormatRead(data, rate_hz=info.rate_hz, notes={"sample_format": info.sample_format})
+
+
+def write(run: Run, path: Path, *, force: bool = False, sample_format: str = "float32") -> None:
+    """Write ``run`` as a WAV file, streamed in chunks of 65,536 samples (a memory-mapped run
+    is never loaded whole); names and units go to the sidecar."""
+    with WavWriter(path, run.rate_hz, run.n_channels, sample_format=sample_format,
+                   force=force, channel_names=run.channel_names) as w:
+        for a in range(0, run.n_samples, _WRITE_CHUNK):
+            w.write(run.data[:, a:a + _WRITE_CHUNK])
