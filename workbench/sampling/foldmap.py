@@ -280,7 +280,7 @@ class _Edges:
         return np.where(np.isnan(o), self.fixed[idx], o * rpm / 60.0)
 
     def limits(self, rpm):
-        lo, hi = self.band.limits_hz(rpm, self.lines)
+        lo, hi = self.band._limits(np.asarray(rpm, dtype=float), self.lines)
         return (np.broadcast_to(np.asarray(lo, dtype=float), rpm.shape),
                 np.broadcast_to(np.asarray(hi, dtype=float), rpm.shape))
 

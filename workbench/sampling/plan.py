@@ -137,7 +137,10 @@ class Band:
         InputError
             A speed is negative or not finite, or the ``around`` line is not among `lines`.
         """
-        speed = real_array(rpm, "rpm", "speeds", "rev/min")
+        return self._limits(real_array(rpm, "rpm", "speeds", "rev/min"), lines)
+
+    def _limits(self, speed: np.ndarray, lines=()) -> tuple[np.ndarray, np.ndarray]:
+        """:meth:`limits_hz` of a float array of speeds already checked (inside the layer)."""
         if self.hz is not None:
             lo, hi = self.hz
             return np.full(speed.shape, lo), np.full(speed.shape, hi)
