@@ -94,11 +94,20 @@ def describe(name: str, value=NO_VALUE, rule: str = "") -> str:
     return f"{head}: {rule}" if rule else head
 
 
+def close_names(word, choices, n: int = 1) -> list:
+    """Up to `n` of `choices` close to `word` (likely typos of it), closest first.
+
+    The one rule of every "did you mean" hint: :func:`difflib.get_close_matches` with its
+    default similarity cutoff 0.6.
+    """
+    return difflib.get_close_matches(str(word), [str(c) for c in choices], n=n, cutoff=0.6)
+
+
 def closest(word, choices) -> str | None:
     """The one of `choices` closest to `word` (a likely typo), or None."""
     if not isinstance(word, str):
         return None
-    close = difflib.get_close_matches(word, [str(c) for c in choices], n=1, cutoff=0.6)
+    close = close_names(word, choices)
     return close[0] if close else None
 
 

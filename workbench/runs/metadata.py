@@ -22,10 +22,9 @@ operator="A. Test"``, ``--meta vibration.position="gearbox input"`` for a channe
 from __future__ import annotations
 
 import datetime as _dt
-import difflib
 from dataclasses import dataclass, replace
 
-from workbench.checks import show
+from workbench.checks import close_names, show
 from workbench.errors import InputError
 
 __all__ = ["TestMetadata", "SensorInfo", "META_KEYS", "SENSOR_KEYS", "META_LABELS",
@@ -157,7 +156,7 @@ class TestMetadata:
                 continue
             channel, _, field_ = key.rpartition(".")
             if not channel or field_ not in SENSOR_KEYS:
-                hint = difflib.get_close_matches(key, META_KEYS + SENSOR_KEYS, n=1, cutoff=0.6)
+                hint = close_names(key, META_KEYS + SENSOR_KEYS)
                 raise InputError(
                     f"--meta {key}={value}: unknown key{f' (did you mean {hint[0]!r}?)' if hint else ''}; "
                     f"allowed: {', '.join(META_KEYS)}, or CHANNEL.{'/'.join(SENSOR_KEYS)} for a "

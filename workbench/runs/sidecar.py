@@ -28,14 +28,13 @@ and the message suggests the closest known key.
 
 from __future__ import annotations
 
-import difflib
 import json
 import os
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath, PureWindowsPath
 from typing import Any
 
-from workbench.checks import FieldError, describe, positive, positive_int, rate_hz, show
+from workbench.checks import FieldError, close_names, describe, positive, positive_int, rate_hz, show
 from workbench.errors import InputError, RunFileError, where
 from workbench.runs.metadata import META_KEYS, SENSOR_KEYS, SensorInfo, TestMetadata
 from workbench.fileio import atomic_output
@@ -55,7 +54,7 @@ def sidecar_path(run_path: str | os.PathLike) -> Path:
 
 
 def _unknown(key: str, allowed: tuple[str, ...], loc: str) -> RunFileError:
-    close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+    close = close_names(key, allowed)
     hint = f" (did you mean '{close[0]}'?)" if close else ""
     return RunFileError(f"{loc}: unknown key '{key}'{hint}; allowed: {', '.join(allowed)}")
 

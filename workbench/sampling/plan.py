@@ -12,13 +12,12 @@ minus the filter's attenuation at its true frequency -- is above this value.  Wi
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from workbench.errors import InputError, PlanFileError, where
-from workbench.checks import RATE_RULE, FieldError, real, real_array, real_vector
+from workbench.checks import RATE_RULE, FieldError, close_names, real, real_array, real_vector
 from workbench.sampling.filters import AntiAliasFilter
 from workbench.sampling.profiles import SpeedProfile
 
@@ -31,7 +30,7 @@ _BAND_KINDS = ("hz", "orders", "around")
 
 def _close(word: str, options) -> str:
     """' (did you mean ...?)' for the nearest of `options`, or ''."""
-    match = difflib.get_close_matches(str(word), [str(o) for o in options], n=3, cutoff=0.6)
+    match = close_names(word, options, n=3)
     if not match:
         return ""
     return " (did you mean " + " or ".join(repr(m) for m in match) + "?)"
