@@ -70,13 +70,13 @@ def cmd_demo(args) -> int:
     analysis = None
     if run_path is not None:
         from workbench.runs.analysis import track_run
+        from workbench.runs.settings import TrackingSettings
 
-        spr = advice.resampling.samples_per_rev
+        # the plan's angle settings, filter and cut orders: those the report states
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FoldlineWarning)
-            analysis = track_run(run_path, machine=machine, samples_per_rev=spr,
-                                 revs_per_block=advice.resampling.revs_per_block,
-                                 aa_filter=plan.filter)  # the demo run was made under the plan
+            analysis = track_run(run_path, machine=machine, plan=plan,
+                                 settings=TrackingSettings.for_plan(machine, plan))
         track_dir = out / "run"
         _check_out_folder(track_dir, force=args.force)
         figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force))
@@ -380,7 +380,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     figure(plot_tacho_check(t, sa.rpm_at(t), doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})", **band), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
-    top = a.samples_per_rev / 2.56
+    top = a.top_order
     sc = getattr(a, "scaling", None)  # amplitudes shown RMS, in dB or integrated
     label = None if sc is None else sc.label(a.channel_unit or "")
     db = sc is not None and sc.db_ref is not None
@@ -405,7 +405,8 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     if getattr(a, "overall", None) is not None:
         from workbench.plots import plot_overall_level
 
-        figure(plot_overall_level(a.overall, unit=a.channel_unit or a.unit, cuts=None if sc else a.cuts,
+        figure(plot_overall_level(a.overall, unit=a.overall.unit or a.channel_unit or a.unit,
+                                  cuts=None if sc else a.cuts,
                                   title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
                "overall_level.png")
     if a.rf_map is not None:

@@ -175,6 +175,7 @@ class RunAnalysis:
             "revolutions": self.revolutions,
             "samples_per_rev": int(self.samples_per_rev),
             "revs_per_block": float(self.revs_per_block),
+            "max_order": self.top_order,
             "order_spectrum": {
                 "order": [float(v) for v in self.spectrum.order],
                 "amplitude": [float(v) for v in self.spectrum.amplitude],
