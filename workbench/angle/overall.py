@@ -177,7 +177,7 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
             ms.append(np.var(frames, axis=1))
         else:
             spec = np.fft.rfft((frames - frames.mean(axis=1, keepdims=True)) * w, axis=1)
-            ms.append(scale * np.sum(np.abs(spec[:, inband]) ** 2, axis=1))
+            ms.append(np.sum(scale * np.abs(spec[:, inband]) ** 2, axis=1))
         centres.append(start + n * np.arange(m) + 0.5 * n)
         start += m * n
         buf = buf[m * n:]

@@ -192,7 +192,7 @@ def cmd_simulate(args) -> int:
 def cmd_track(args) -> int:
     """Track a recorded run in the angle domain and print (and optionally write) the results."""
     from workbench.cli.main import emit_json
-    from workbench.cli.options import track_options_from_args
+    from workbench.cli.options import settings_from_args
     from workbench.runs.analysis import track_channels, vibration_channels
     from workbench.runs.files import read_run
 
@@ -201,8 +201,6 @@ def cmd_track(args) -> int:
     from workbench.runs.analysis import MultiRunAnalysis
     from workbench.runs.scaled import rolloff_corrected, scaled_analysis
 
-    opts = track_options_from_args(args)
-    channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
     scaling = scaling_from_args(args)  # checked before the work
     plan = _read_limits_plan(getattr(args, "plan", None))   # its limits and its filter
@@ -210,19 +208,21 @@ def cmd_track(args) -> int:
     if getattr(args, "correct_rolloff", False) and aa_filter is None:
         raise InputError("--correct-rolloff: give the acquisition's plan with --plan PLAN (its filter's "
                          "roll-off is what is taken out)")
-    run = read_run(args.run, rate_hz=opts.pop("rate_hz", None))
-    rows = vibration_channels(run, channels, tacho=opts.get("tacho"),
-                              speed_channel=opts.get("speed_channel"))
+    # The frequency map is only drawn into --out: without it, it is not computed.
+    settings, other = settings_from_args(args, protect=not args.no_protect, max_order=args.max_order,
+                                         rf_map=out is not None, aa_filter=aa_filter,
+                                         **analysis_options_from_args(args))
+    opts = {**settings.speed_options, **other}
+    run = read_run(args.run, rate_hz=other.get("rate_hz"))
+    rows = vibration_channels(run, other.get("channels"), tacho=settings.tacho,
+                              speed_channel=settings.speed_channel)
     folders = {}
     if out is not None:
         folders = channel_folders(out, [run.channels[i].name for i in rows])
         for folder in folders.values():
             _check_out_folder(folder, force=args.force)
-    # The frequency map is only drawn into --out: without it, it is not computed.
     multi = track_channels(run, channels=tuple(i + 1 for i in rows), machine=args.machine,
-                           protect=not args.no_protect, max_order=args.max_order,
-                           rf_map=out is not None, aa_filter=aa_filter, **opts,
-                           **analysis_options_from_args(args))
+                           plan=plan, settings=settings)
     chans = []
     for a in multi.channels:
         if getattr(args, "correct_rolloff", False):
