@@ -17,7 +17,7 @@ from workbench.angle.spectra import (OrderAnalysis, OrderMap, OrderSpectrum,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
                                      order_map, order_spectrum, frequency_map,
                                      window_gains)
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle import ShaftAngle
 from workbench.angle.tracking import AngleSignal, iter_resample_to_angle, resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
 

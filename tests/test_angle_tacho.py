@@ -1,4 +1,6 @@
-"""Tests of workbench.angle.tacho: pulse detection, pulse angles, shaft-angle fits.
+"""Tests of the tacho processing: pulse detection, pulse angles, shaft-angle fits.
+
+The modules: workbench.angle.pulses, shaft_angle, pulse_timing and pulse_angles.
 
 Synthetic tachos come from an analytic shaft angle theta(t) (revolutions): a linear run-up
 theta = f0 t + a t^2 / 2.  A tooth's rising edge is where sin(2 pi N theta) crosses zero upward,
@@ -16,8 +18,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
-                                   detect_pulses, tacho_angle)
+from workbench.angle import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
+                             detect_pulses, tacho_angle)
 from workbench.errors import FoldlineWarning, InputError, TachoError
 
 

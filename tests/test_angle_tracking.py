@@ -15,7 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from workbench.angle.spectra import order_map, order_spectrum
-from workbench.angle.tacho import ShaftAngle, detect_pulses, tacho_angle
+from workbench.angle import ShaftAngle, detect_pulses, tacho_angle
 from workbench.angle.tracking import (AngleSignal, OrderTracker, iter_resample_to_angle,
                                       resample_to_angle)
 from workbench.errors import FoldlineWarning, InputError

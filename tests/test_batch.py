@@ -24,7 +24,7 @@ from hypothesis import strategies as st
 
 from workbench.batch import (LEVEL_PREFIX, BatchSettings, band_level_series, band_levels,
                              read_summary, run_batch)
-from workbench.batch.command import TextProgress
+from workbench.cli.verbs.batch import TextProgress
 from workbench.cli.main import main
 from workbench.errors import FoldlineWarning, InputError
 from workbench.machine import read_machine

@@ -1,13 +1,16 @@
-"""Catalogue of bad inputs fed to the real ``foldline`` console script.
+"""Catalogue of bad inputs fed to the ``foldline`` command.
 
-Every case writes its files into a fresh folder, runs ``foldline`` there in a subprocess and
-checks the command-line contract (DESIGN.md, "Contracts"): exit status 2, exactly one line on
-stderr starting ``foldline: error: ``, which names the file, the entry or field, and what is
-allowed (one regular expression per case), no traceback anywhere, and nothing written: the
-folder holds exactly the files it held before (no output, no partial file, no temporary file).
+Every case writes its files into a fresh folder, runs ``foldline`` there and checks the
+command-line contract (docs/cli-json.md, "Rules for every verb"): exit status 2, exactly one
+line on stderr starting ``foldline: error: ``, which names the file, the entry or field, and
+what is allowed (one regular expression per case), no traceback anywhere, and nothing written:
+the folder holds exactly the files it held before (no output, no partial file, no temporary
+file).
 
-The cases are independent processes, so they are started together in a small thread pool the
-first time any of them is checked; each parametrised test then reads its own result.
+The catalogue runs in this process through ``workbench.cli.main(argv)`` (the function the
+console script calls); a few cases (:data:`SCRIPT_CASES`) also run the installed script in a
+subprocess, to prove the script itself, its exit status and that no traceback reaches the
+terminal.
 """
 
 from __future__ import annotations
@@ -18,7 +21,6 @@ import re
 import struct
 import subprocess
 import sys
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -443,6 +445,12 @@ CASES = [
 # ------------------------------------------------------------------------------------------
 # Running the catalogue
 # ------------------------------------------------------------------------------------------
+#: Cases that also run the installed console script in a subprocess: a usage error (argparse),
+#: a bad option value, a bad machine file, a truncated run and a file in the wrong place.
+SCRIPT_CASES = ("option-rate-text", "option-rate-negative", "machine-toml-syntax",
+                "run-wav-truncated-data", "run-is-a-sidecar")
+
+
 @dataclass
 class Outcome:
     folder: Path
@@ -471,7 +479,8 @@ def _listing(folder: Path) -> set:
             for p in folder.rglob("*")}
 
 
-def _run(case: Case, folder: Path) -> Outcome:
+def _run_script(case: Case, folder: Path) -> Outcome:
+    """``foldline <argv>`` in ``folder``, the installed console script in a subprocess."""
     folder.mkdir(parents=True)
     _write_files(folder, case.files)
     before = _listing(folder)
@@ -482,24 +491,34 @@ def _run(case: Case, folder: Path) -> Outcome:
     return Outcome(folder, before, _listing(folder), proc.returncode, proc.stdout, proc.stderr)
 
 
-@pytest.fixture(scope="module")
-def outcomes(tmp_path_factory):
-    root = tmp_path_factory.mktemp("bad_inputs")
-    workers = max(2, (os.cpu_count() or 2) + 1)
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        futures = {c.id: pool.submit(_run, c, root / c.id) for c in CASES}
-        return {k: f.result() for k, f in futures.items()}
+@pytest.fixture
+def run_case(monkeypatch, capsys):
+    """Run a case in this process: ``workbench.cli.main(argv)`` with ``folder`` as the
+    working directory, stdout and stderr captured."""
+    from workbench.cli import main
+
+    def run(case: Case, folder: Path) -> Outcome:
+        folder.mkdir(parents=True)
+        _write_files(folder, case.files)
+        before = _listing(folder)
+        monkeypatch.delenv("FOLDLINE_DEBUG", raising=False)
+        monkeypatch.chdir(folder)
+        capsys.readouterr()
+        code = main(list(case.argv))
+        out = capsys.readouterr()
+        return Outcome(folder, before, _listing(folder), code, out.out, out.err)
+
+    return run
 
 
 def test_catalogue_is_large_and_ids_unique():
     ids = [c.id for c in CASES]
     assert len(ids) == len(set(ids))
     assert len(CASES) >= 45
+    assert set(SCRIPT_CASES) <= set(ids)
 
 
-@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
-def test_bad_input_is_refused_cleanly(case, outcomes):
-    out = outcomes[case.id]
+def _check_refused(case: Case, out: Outcome) -> None:
     assert "Traceback" not in out.stderr and "Traceback" not in out.stdout
     assert out.returncode == 2, (out.returncode, out.stderr)
     lines = out.stderr.splitlines()
@@ -515,23 +534,36 @@ def test_bad_input_is_refused_cleanly(case, outcomes):
         assert not (out.folder / name).exists()
 
 
-def test_existing_output_is_kept_then_replaced_with_force(outcomes, tmp_path):
-    refused = outcomes["option-png-exists"]
+@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
+def test_bad_input_is_refused_cleanly(case, run_case, tmp_path):
+    _check_refused(case, run_case(case, tmp_path / case.id))
+
+
+@pytest.mark.parametrize("case", [c for c in CASES if c.id in SCRIPT_CASES],
+                         ids=lambda c: c.id)
+def test_console_script_refuses_bad_input_cleanly(case, tmp_path):
+    _check_refused(case, _run_script(case, tmp_path / case.id))
+
+
+def test_existing_output_is_kept_then_replaced_with_force(run_case, tmp_path):
+    case = next(c for c in CASES if c.id == "option-png-exists")
+    refused = run_case(case, tmp_path / case.id)
+    assert refused.returncode == 2
     assert (refused.folder / "fig.png").read_bytes() == b"precious"
     folder = tmp_path / "force"
     case = Case("force", {M: MACHINE, P: PLAN, "fig.png": b"precious"}, FOLDMAP + ["--force"],
                 "")
-    out = _run(case, folder)
+    out = run_case(case, folder)
     assert out.returncode == 0, out.stderr
     assert (folder / "fig.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature
     assert sorted(p.name for p in folder.iterdir()) == ["fig.png", "m.toml", "p.toml"]
 
 
-def test_csv_with_units_row_is_read(tmp_path):
-    # A units row under the header is legal: it gives the channel units (DESIGN.md, run files).
+def test_csv_with_units_row_is_read(run_case, tmp_path):
+    # A units row under the header is legal: it gives the channel units (docs/run-file-formats.md).
     case = Case("units", {"run.csv": csv_text(DATA, units="s,g,V")},
                 ["track", "run.csv", "--tacho", "tacho", "--json"], "")
-    out = _run(case, tmp_path / "units")
+    out = run_case(case, tmp_path / "units")
     assert out.returncode == 0, out.stderr
     result = json.loads(out.stdout)
     assert result["unit"] == "g"
@@ -543,11 +575,12 @@ def test_csv_with_units_row_is_read(tmp_path):
 
 
 def test_adjusted_value_warns_in_one_line_and_json_stays_clean(tmp_path):
-    # A candidate rate typed in kHz (10.24 for 10240) is legal but implausible: a warning.
+    # A candidate rate typed in kHz (10.24 for 10240) is legal but implausible: a warning,
+    # through the console script (warnings reach a terminal as one line each).
     case = Case("warn", {M: MACHINE, P: edit(PLAN, "rates_hz = [2560.0, 5120.0]",
                                              "rates_hz = [10.24, 5120.0]")},
                 ["plan", M, P, "--json"], "")
-    out = _run(case, tmp_path / "warn")
+    out = _run_script(case, tmp_path / "warn")
     assert out.returncode == 0, out.stderr
     json.loads(out.stdout)  # exactly one JSON object on stdout
     lines = out.stderr.splitlines()
@@ -556,12 +589,12 @@ def test_adjusted_value_warns_in_one_line_and_json_stays_clean(tmp_path):
                          r"\(10240 Hz\)\?", line) for line in lines)
 
 
-def test_machine_that_stalls_is_tracked_either_side_with_one_warning_line(tmp_path):
+def test_machine_that_stalls_is_tracked_either_side_with_one_warning_line(run_case, tmp_path):
     # A standstill cannot be tracked (the speed is unknown there), but it is no reason to
     # refuse the run: one warning line names the seconds and the stretches, each tracked.
     case = Case("stalls", good_run(**{"run.wav": wav_bytes(stalled_signals())}),
                 ["track", "run.wav", "--json"], "")
-    out = _run(case, tmp_path / "stalls")
+    out = run_case(case, tmp_path / "stalls")
     assert out.returncode == 0, out.stderr
     result = json.loads(out.stdout)
     # 1200 rpm either side of the stop (analytic profile of stalled_signals); within 1 %: a

@@ -1,4 +1,7 @@
-"""Tests of workbench.machine.model: speed ratios, line expansion, bearing and planetary math."""
+"""Tests of the machine model: speed ratios, line expansion, bearing and planetary math.
+
+The modules: workbench.machine.lines, kinematics, entries and machine.
+"""
 
 import math
 import re
@@ -383,7 +386,7 @@ def test_planetary_members_validation(members, match):
 
 
 def test_rotor_order_and_fixed_lines():
-    # Rotor: count x shaft order; order source: order x shaft order (DESIGN.md definitions).
+    # Rotor: count x shaft order; order source: order x shaft order (docs/machine-file.md).
     machine = Machine(
         "m", "input", (Shaft("input"), Shaft("output")),
         (GearStage("g", "input", "output", 10, 40, harmonics=1),

@@ -4,7 +4,7 @@ JSON says for the same inputs, and its tables must sort on a header click.
 
 Expected values: the ``foldline foldmap`` / ``foldline plan`` / ``foldline track`` JSON outputs
 for the same files (the report must carry them through unchanged: consistency with the fixed
-JSON contracts of DESIGN.md), and the README's Safety section (same words).
+JSON contracts of docs/cli-json.md), and the README's Safety section (same words).
 """
 
 from __future__ import annotations
@@ -344,7 +344,7 @@ def test_validation_errors(tmp_path, capsys):
 def test_track_options_from_args_maps_names():
     import argparse
 
-    from workbench.report.command import add_track_options
+    from workbench.cli.options import add_track_options
 
     p = argparse.ArgumentParser()
     add_track_options(p)

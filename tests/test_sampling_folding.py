@@ -20,8 +20,8 @@ RATE = 12800.0
         (9000.0, 3800.0, 1),
         (14000.0, 1200.0, 2),
         (12800.0, 0.0, 2),
-        # Zone convention of DESIGN.md, zone = floor(f / (rate/2)): exactly at Nyquist is
-        # zone 1 and shows at Nyquist (common practice, no source).
+        # Zone convention of docs/cli-json.md (alias), zone = floor(f / (rate/2)): exactly at
+        # Nyquist is zone 1 and shows at Nyquist (common practice, no source).
         (6400.0, 6400.0, 1),
         (0.0, 0.0, 0),
         (19200.0, 6400.0, 3),
@@ -125,7 +125,7 @@ def test_apparent_order_bad_rpm(bad):
 
 
 def test_value_error_compatible():
-    # Users catching ValueError keep working (DESIGN.md error hierarchy).
+    # Users catching ValueError keep working (DEVELOPERS.md, "Errors").
     with pytest.raises(ValueError):
         apparent_frequency(-1.0, RATE)
 

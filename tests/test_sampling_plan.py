@@ -1,4 +1,4 @@
-"""Tests of workbench.sampling.plan: bands, plans, plan files."""
+"""Tests of workbench.sampling.plan and planfile: bands, plans, plan files."""
 
 import copy
 import shutil
@@ -435,7 +435,8 @@ def test_read_plan_names_the_file_in_errors(tmp_path):
 
 
 def test_plan_file_error_is_value_error():
-    # DESIGN.md: FoldlineError subclasses also inherit the built-in a user would expect.
+    # DEVELOPERS.md, "Errors": FoldlineError subclasses also inherit the built-in a user
+    # would expect.
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         with pytest.raises(ValueError):

@@ -11,8 +11,7 @@ from workbench.errors import InputError
 from workbench.runs import Channel, Run
 from workbench.runs.analysis import track_run
 from workbench.runs.pipeline import STAGES, TrackingPipeline, first_stage
-from workbench.runs.settings import (ANALYSER_FACTOR, SettingError, TrackingSettings,
-                                     default_cut_orders)
+from workbench.runs.settings import ANALYSER_FACTOR, SettingError, TrackingSettings
 
 RATE = 2048.0
 
@@ -47,9 +46,9 @@ def test_default_cut_orders_one_rule():
 
     st = TrackingSettings(samples_per_rev=64)   # top order 25
     # without machine and plan: order 1 and the three strongest peaks below the top order
-    assert default_cut_orders(TrackingSettings(), peaks=Peaks()) == (1.0, 28.0, 28.675, 29.0)
-    assert default_cut_orders(st, peaks=Peaks()) == (1.0,)
-    assert default_cut_orders(TrackingSettings(cut_orders=(2.0, 3.0))) == (2.0, 3.0)
+    assert TrackingSettings().cut_orders_for(peaks=Peaks()) == (1.0, 28.0, 28.675, 29.0)
+    assert st.cut_orders_for(peaks=Peaks()) == (1.0,)
+    assert TrackingSettings(cut_orders=(2.0, 3.0)).cut_orders_for() == (2.0, 3.0)
 
 
 def test_first_stage_of_each_change():

@@ -17,8 +17,10 @@ from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPea
                                      OrderSpectrum, RpmFrequencyMap, WindowGains,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
                                      order_map, order_spectrum, frequency_map, window_gains)
-from workbench.angle.tacho import (DoubtedPulses, PulseDetector, PulseTiming, ShaftAngle,
-                                   detect_pulses, tacho_angle)
+from workbench.angle.pulse_angles import tacho_angle
+from workbench.angle.pulse_timing import DEFAULT_SPEED_TOLERANCE, PulseTiming, speed_tolerance_for
+from workbench.angle.pulses import PulseDetector, detect_pulses
+from workbench.angle.shaft_angle import FIT_METHODS, DoubtedPulses, ShaftAngle
 from workbench.angle.tracking import AngleSignal, OrderTracker, iter_resample_to_angle, resample_to_angle
 from workbench._lazy import lazy_names
 
@@ -39,6 +41,7 @@ __getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
 
 __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
+    "FIT_METHODS", "speed_tolerance_for", "DEFAULT_SPEED_TOLERANCE",
     "AngleSignal", "OrderTracker", "resample_to_angle", "iter_resample_to_angle",
     "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",

@@ -12,7 +12,7 @@ speed over its samples.
 Phase
 -----
 The phase is the **phase lag**: how far the shaft turns from the once-per-revolution reference
-(angle 0 of the :class:`~workbench.angle.tacho.ShaftAngle`: the leading edge of a 1-pulse-per-
+(angle 0 of the :class:`~workbench.angle.shaft_angle.ShaftAngle`: the leading edge of a 1-pulse-per-
 rev tacho, or the first tooth after the gap of a missing-tooth wheel) to the next positive
 peak of the order's component, in degrees of the order's own cycle, 0 to 360 (common practice,
 no source).  For order 1 that is degrees of shaft rotation; for order k it is k times the

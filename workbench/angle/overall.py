@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from workbench.angle._common import finite_real, iter_chunks, positive_int, positive_rate
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import InputError
 
 __all__ = ["OverallLevel", "overall_level", "rpm_edges_from_centres", "default_block_samples"]

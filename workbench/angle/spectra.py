@@ -32,7 +32,7 @@ import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
 
 from workbench.angle._common import finite_real, iter_chunks, one_d, positive_int, positive_rate
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.angle.tracking import AngleSignal, iter_resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
 

@@ -91,7 +91,7 @@ import scipy.fft as sfft
 
 from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
                                      positive_int, positive_rate)
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = ["AngleSignal", "OrderTracker", "resample_to_angle", "iter_resample_to_angle",

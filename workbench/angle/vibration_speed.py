@@ -37,7 +37,7 @@ from scipy.ndimage import maximum_filter1d, median_filter, uniform_filter1d
 
 from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, positive_int,
                                      positive_rate)
-from workbench.angle.tacho import ShaftAngle, _readonly   # one read-only copy rule
+from workbench.angle.shaft_angle import ShaftAngle, _readonly   # one read-only copy rule
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = ["SpeedEstimate", "speed_from_vibration", "speed_from_channel",

@@ -101,7 +101,7 @@ import numpy as np
 from scipy.linalg import solveh_banded
 
 from workbench.angle._common import finite_real, one_d, positive_rate
-from workbench.angle.tacho import ShaftAngle
+from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = ["OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",

@@ -16,32 +16,31 @@ from workbench.machine.machinefile import (
     read_machine,
     write_machine,
 )
-from workbench.machine.model import (
+from workbench.machine.entries import (
     DEFAULT_DAMPING_RATIO,
     FIXED,
-    KIND_NAMES,
-    LINE_KINDS,
     MODE_TYPES,
     ROTATING_RACES,
     SOURCE_TYPES,
     Bearing,
-    BearingFrequencies,
     Critical,
     FixedLine,
     GearStage,
-    Line,
-    Machine,
     OrderSource,
-    PlanetaryFrequencies,
     PlanetaryStage,
     Resonance,
     Rotor,
     Shaft,
     Source,
+)
+from workbench.machine.kinematics import (
+    BearingFrequencies,
+    PlanetaryFrequencies,
     bearing_frequencies,
-    kind_name,
     planetary_frequencies,
 )
+from workbench.machine.lines import KIND_NAMES, LINE_KINDS, Line, kind_name
+from workbench.machine.machine import Machine
 
 __all__ = [
     "Critical",

@@ -1,6 +1,6 @@
 """Machine file: read, validate and write the TOML description of a drive train.
 
-Layout (see DESIGN.md, "Machine file (TOML)")::
+Layout (every key, type, default and rule: docs/machine-file.md)::
 
     [machine]                 name, reference
     [[shaft]]                 name
@@ -41,7 +41,8 @@ from dataclasses import MISSING, fields
 from workbench.machine.filekind import wrong_file_hint
 from workbench.errors import FoldlineWarning, InputError, MachineFileError, where
 from workbench.fileio import write_text
-from workbench.machine.model import MODE_TYPES, SOURCE_TYPES, Machine, Shaft
+from workbench.machine.entries import MODE_TYPES, SOURCE_TYPES, Shaft
+from workbench.machine.machine import Machine
 
 __all__ = [
     "machine_from_dict",

@@ -12,7 +12,7 @@ import numpy as np
 from matplotlib.colors import LogNorm
 from matplotlib.lines import Line2D
 
-from workbench.machine.model import kind_name
+from workbench.machine.lines import kind_name
 from workbench.plots.common import KIND_COLOURS, new_figure, place_labels
 
 __all__ = [

@@ -11,9 +11,10 @@ Typical use::
 from workbench._lazy import lazy_names
 
 # Imported on first use (PEP 562): registering the ``report`` verb must not load numpy.
-__getattr__, __dir__ = lazy_names(__name__, {"workbench.report.document": (
-    "SAFETY_TEXT", "SECTION_TITLES", "InputFile", "Report", "build_report", "default_cut_orders",
-    "file_sha256", "write_report")}, globals())
+__getattr__, __dir__ = lazy_names(__name__, {
+    "workbench.report.document": ("SAFETY_TEXT", "SECTION_TITLES", "InputFile", "Report",
+                                  "build_report", "file_sha256", "write_report"),
+    "workbench.runs.cut_orders": ("default_cut_orders",)}, globals())
 
 
 __all__ = ["Report", "InputFile", "build_report", "write_report", "default_cut_orders",

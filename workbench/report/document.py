@@ -37,13 +37,14 @@ import numpy as np
 from workbench import __version__
 from workbench.errors import FoldlineWarning, InputError
 from workbench.fileio import file_sha256
+from workbench.machine.lines import kind_name
+from workbench.runs.cut_orders import default_cut_orders
 from workbench.sampling import ANALYSER_FACTOR
-from workbench.machine.model import kind_name
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
 __all__ = ["Report", "InputFile", "build_report", "write_report", "SAFETY_TEXT", "SECTION_TITLES",
-           "default_cut_orders", "file_sha256"]
+           "file_sha256"]
 
 #: The caution printed in every report; the same words as the README's Safety section.
 SAFETY_TEXT = (
@@ -314,19 +315,6 @@ def _nearest_direct(order, lines, tolerance):
 
 # --------------------------------------------------------------------------------------------
 # building
-
-
-def default_cut_orders(machine, plan, *, max_order=None) -> tuple:
-    """Orders cut by default for a machine under a plan, without a measured spectrum: the rule
-    of :func:`workbench.runs.settings.default_cut_orders` (order 1 and the order of every line
-    a plan band follows), up to ``max_order`` (default the advisor's samples per rev /
-    ANALYSER_FACTOR).
-    """
-    from workbench.runs.settings import TrackingSettings
-    from workbench.runs.settings import default_cut_orders as rule
-
-    st = TrackingSettings.for_plan(machine, plan, max_order=max_order)
-    return rule(st, machine=machine, plan=plan)
 
 
 def _fold_rates(advice):

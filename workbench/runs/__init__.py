@@ -13,6 +13,7 @@ Typical use::
 from workbench.runs.files import (RUN_EXTENSIONS, check_finite, read_run, sidecar_for_run,
                                   write_run)
 from workbench.fileio import atomic_output, check_writable
+from workbench.runs.cut_orders import default_cut_orders
 from workbench.runs.run import Channel, LogEntry, Run, full_scale
 from workbench.runs.metadata import SensorInfo, TestMetadata
 from workbench.runs.sidecar import (Sidecar, read_sidecar, resolve_inside, run_metadata,
@@ -33,6 +34,7 @@ __all__ = [
     "sidecar_for_run",
     "atomic_output",
     "check_writable",
+    "default_cut_orders",
     "Sidecar",
     "read_sidecar",
     "write_sidecar",

@@ -473,7 +473,7 @@ def run_speed(run: Run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
         CSV with columns ``time_s, rpm`` standing in for a tacho.
     speed_tolerance : float, optional
         RMS relative speed uncertainty the tacho stage aims at and warns beyond (a fraction);
-        default :data:`~workbench.angle.tacho.DEFAULT_SPEED_TOLERANCE`.
+        default :data:`~workbench.angle.pulse_timing.DEFAULT_SPEED_TOLERANCE`.
     chunk : int, optional
         Samples read per chunk while streaming the tacho.
     speed_order, speed_range, speed_channel, speed_scale, channel : optional

@@ -40,8 +40,7 @@ from workbench.angle import (AngleSignal, OrderAnalysis, envelope_order_spectrum
 from workbench.angle.tracking import iter_resample_to_angle_channels, resolve_threads
 from workbench.errors import FoldlineWarning, InputError
 from workbench.runs.run import Run, log_entry
-from workbench.runs.settings import (SPEED_FIELDS, SettingError, TrackingSettings,
-                                     default_cut_orders)
+from workbench.runs.settings import SPEED_FIELDS, SettingError, TrackingSettings
 
 __all__ = ["TrackingPipeline", "STAGES", "FIRST_STAGE", "SpeedStage", "AngleStage",
            "SpectraStage", "CutsStage", "IdentifyStage", "first_stage"]
@@ -503,7 +502,7 @@ class TrackingPipeline:
     def _make_cuts(self) -> CutsStage:
         st = self.settings
         sp = self.spectra()
-        orders = default_cut_orders(st, machine=self.machine, plan=self.plan, peaks=sp.peaks[0])
+        orders = st.cut_orders_for(machine=self.machine, plan=self.plan, peaks=sp.peaks[0])
         per = []
         for spectrum, omap in zip(sp.spectrum, sp.order_map):
             cuts = []

@@ -13,7 +13,8 @@ The rules that derive one setting from others live here too, once:
   highest frequency of interest, common practice);
 * :meth:`TrackingSettings.tacho_tolerance`: the tacho stage's speed tolerance, from the order
   error budget (:func:`~workbench.angle.tacho.speed_tolerance_for`) unless given;
-* :func:`default_cut_orders`: the orders cut when none are asked for.
+* :meth:`TrackingSettings.cut_orders_for`: the orders cut when none are asked for
+  (the rule of :func:`~workbench.runs.cut_orders.default_cut_orders`).
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from pathlib import Path
 from workbench.checks import FieldError, is_number, show
 from workbench.sampling import ANALYSER_FACTOR
 
-__all__ = ["TrackingSettings", "SettingError", "default_cut_orders", "usable_max_order",
+__all__ = ["TrackingSettings", "SettingError", "usable_max_order",
            "ANALYSER_FACTOR", "DEFAULT_SAMPLES_PER_REV", "DEFAULT_REVS_PER_BLOCK",
            "MIN_SAMPLES_PER_REV", "MAX_SAMPLES_PER_REV", "DEFAULT_WINDOW", "SPEED_FIELDS",
            "TRACK_WINDOWS"]
@@ -129,7 +130,7 @@ class TrackingSettings:
     protect : bool
         Alias protection of the order tracking (default on).
     cut_orders : tuple of float
-        Orders cut out of the map; empty: :func:`default_cut_orders`.
+        Orders cut out of the map; empty: :meth:`cut_orders_for`.
     cut_bandwidth_orders : float or None
         Band summed in each cut, orders (default 4 bins).
     envelope_hz : (float, float) or None
@@ -301,7 +302,7 @@ class TrackingSettings:
         at :attr:`top_order` and ``revs_per_block``."""
         if self.speed_tolerance is not None:
             return float(self.speed_tolerance)
-        from workbench.angle.tacho import speed_tolerance_for
+        from workbench.angle import speed_tolerance_for
 
         return speed_tolerance_for(self.top_order, self.revs_per_block)
 
@@ -309,6 +310,15 @@ class TrackingSettings:
     def speed_options(self) -> dict:
         """The speed fields that are set, as keyword options of ``run_speed``."""
         return {k: getattr(self, k) for k in SPEED_FIELDS if getattr(self, k) is not None}
+
+    def cut_orders_for(self, *, machine=None, plan=None, peaks=None) -> tuple:
+        """The orders cut: ``cut_orders``, else the one default rule
+        (:func:`~workbench.runs.cut_orders.default_cut_orders`) up to :attr:`top_order`."""
+        if self.cut_orders:
+            return tuple(self.cut_orders)
+        from workbench.runs.cut_orders import default_cut_orders
+
+        return default_cut_orders(machine, plan, max_order=self.top_order, peaks=peaks)
 
     def changed(self, other: "TrackingSettings") -> tuple:
         """Names of the fields whose values differ from ``other``'s."""
@@ -328,40 +338,3 @@ class TrackingSettings:
             out[f.name] = v
         out["max_order"] = self.top_order
         return out
-
-
-def default_cut_orders(settings: TrackingSettings, *, machine=None, plan=None, peaks=None) -> tuple:
-    """The orders cut: the settings' own, else the one default rule.
-
-    The rule: order 1; the order of every machine line a plan band follows (with a machine and
-    a plan); and, when these give nothing beyond order 1, the three strongest measured peaks
-    (when the peaks are known).  Orders above the settings' :attr:`~TrackingSettings.top_order`
-    are left out; the result is distinct and ascending.
-
-    Parameters
-    ----------
-    settings : TrackingSettings
-    machine : Machine, optional
-    plan : Plan, optional
-    peaks : pandas.DataFrame or OrderPeaks, optional
-        The measured peaks, strongest first (``order`` column or attribute).
-
-    Returns
-    -------
-    tuple of float
-    """
-    if settings.cut_orders:
-        return tuple(settings.cut_orders)
-    top = settings.top_order
-    orders = {1.0}
-    if machine is not None and plan is not None:
-        by_name = {ln.name: ln for ln in machine.lines()}
-        for band in plan.bands:
-            if band.kind == "around":
-                ln = by_name.get(band.around)
-                if ln is not None and ln.order is not None:
-                    orders.add(round(float(ln.order), 6))
-    if len(orders) == 1 and peaks is not None:
-        found = [round(float(o), 3) for o in list(peaks.order)[:3] if float(o) > 0]
-        orders.update(found)
-    return tuple(sorted(o for o in orders if o <= top))

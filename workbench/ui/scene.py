@@ -14,7 +14,7 @@ import html
 import numpy as np
 from matplotlib.colors import to_hex
 
-from workbench.machine.model import kind_name
+from workbench.machine.lines import kind_name
 from workbench.plots.common import KIND_COLOURS
 from workbench.plots.foldmap import draw_fold_map
 from workbench.ui._common import agg_figure, png_bytes

@@ -7,22 +7,11 @@ from __future__ import annotations
 import math
 import warnings
 
+from workbench.cli.output import finish, thin
+from workbench.cli.verbs import add_verb
 from workbench.errors import FoldlineWarning
 
-__all__ = ["add_speed_verb", "cmd_speed", "speed_result", "MAX_JSON_POINTS"]
-
-#: Most points of ``time_s`` and ``rpm`` in the JSON output (the CSV holds every estimate).
-MAX_JSON_POINTS = 5000
-
-
-def _thin(n: int, most: int = MAX_JSON_POINTS) -> np.ndarray:
-    """Indices of at most ``most`` evenly spread points of ``n``, first and last included."""
-    import numpy as np
-
-    if n <= most:
-        return np.arange(n)
-    return np.unique(np.rint(np.linspace(0, n - 1, most)).astype(np.int64))
-
+__all__ = ["register", "cmd_speed", "speed_result", "write_speed_table"]
 
 def speed_result(run, *, tacho=None, pulses_per_rev=None, missing_pulses=None,
                  speed_order=None, speed_range=None, speed_channel=None, speed_scale=None,
@@ -75,7 +64,7 @@ def write_speed_table(path, time_s, rpm, *, force: bool = False) -> None:
     """Write a speed table (CSV ``time_s,rpm``, every row) under a temporary name, then rename."""
     import numpy as np
 
-    from workbench.runs import atomic_output
+    from workbench.fileio import atomic_output
 
     table = np.column_stack([np.asarray(time_s, dtype=float), np.asarray(rpm, dtype=float)])
     with atomic_output(path, force=force) as tmp:
@@ -84,9 +73,9 @@ def write_speed_table(path, time_s, rpm, *, force: bool = False) -> None:
 
 def cmd_speed(args) -> int:
     """Speed of a run from the tacho, an order of the vibration or a speed channel."""
-    from workbench.cli.main import emit_json
     from workbench.cli.options import _channel, _percent, speed_options_from_args
-    from workbench.runs import check_writable, read_run
+    from workbench.fileio import check_writable
+    from workbench.runs import read_run
 
     opts = speed_options_from_args(args)
     if args.out:  # refuse an existing output before the work, not after
@@ -98,7 +87,7 @@ def cmd_speed(args) -> int:
                        **opts)
     if args.out:
         write_speed_table(args.out, res["time_s"], res["rpm"], force=args.force)
-    keep = _thin(len(res["time_s"]))
+    keep = thin(len(res["time_s"]))
     out = {
         "speed_source": res["speed_source"],
         "time_s": res["time_s"][keep],
@@ -110,27 +99,27 @@ def cmd_speed(args) -> int:
     }
     if args.out:
         out["out"] = str(args.out)
-    if args.json:
-        emit_json(out)
-        return 0
-    unc = res["uncertainty_pct"]
-    rpm = res["rpm"]
-    print(f"{run.source}: speed from the {res['speed_source']}: {rpm.min():.1f} to "
-          f"{rpm.max():.1f} rpm over {res['time_s'][0]:.3f}-{res['time_s'][-1]:.3f} s, "
-          f"{len(rpm)} estimates")
-    print(f"method: {res['method']}")
-    print("uncertainty: " + ("not known" if unc is None else f"{unc:.3g} % RMS"))
-    if args.out:
-        print(f"speed table written to {args.out} (read back with --speed-table)")
-    return 0
+
+    def show():
+        unc = res["uncertainty_pct"]
+        rpm = res["rpm"]
+        print(f"{run.source}: speed from the {res['speed_source']}: {rpm.min():.1f} to "
+              f"{rpm.max():.1f} rpm over {res['time_s'][0]:.3f}-{res['time_s'][-1]:.3f} s, "
+              f"{len(rpm)} estimates")
+        print(f"method: {res['method']}")
+        print("uncertainty: " + ("not known" if unc is None else f"{unc:.3g} % RMS"))
+        if args.out:
+            print(f"speed table written to {args.out} (read back with --speed-table)")
+
+    return finish(args, out, show)
 
 
-def add_speed_verb(verb) -> None:
-    """Register ``foldline speed`` on the parser's sub-command factory."""
+def register(subparsers) -> None:
+    """Add ``foldline speed`` to the command."""
     from workbench.cli.options import add_speed_options
 
-    p = verb("speed", "speed of a run from the tacho, an order of the vibration or a speed "
-                      "channel, with its uncertainty")
+    p = add_verb(subparsers, "speed", "speed of a run from the tacho, an order of the vibration "
+                                      "or a speed channel, with its uncertainty")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar "
                                               "beside it)")
     g = p.add_argument_group("speed source (default: the tacho named in the sidecar)")

@@ -4,9 +4,11 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from workbench.cli.output import check_out_folder, finish, print_frame, write_csv
+from workbench.cli.verbs import add_verb
 from workbench.errors import InputError
 
-__all__ = ["add_criticals_verb", "cmd_criticals", "CRITICALS_FILES", "write_criticals_outputs"]
+__all__ = ["register", "cmd_criticals", "CRITICALS_FILES", "write_criticals_outputs"]
 
 #: Files ``--out`` writes.
 CRITICALS_FILES = ("tracks.csv", "criticals.csv", "bode.png", "polar.png", "campbell.png")
@@ -42,32 +44,17 @@ def _speed_and_channel_options(args) -> dict:
     return {k: v for k, v in opts.items() if k in keep}
 
 
-def _check_out(out: Path, force: bool) -> None:
-    from workbench.errors import OutputExistsError
-
-    if out.exists() and not out.is_dir():
-        raise InputError(f"--out {out}: exists and is not a folder")
-    if not force:
-        clash = [name for name in CRITICALS_FILES if (out / name).exists()]
-        if clash:
-            raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace "
-                                    f"the outputs in {out}")
-
-
 def write_criticals_outputs(result, out: Path, *, force: bool = False) -> list:
     """Write the tracks and criticals (CSV) and the Bode, polar and Campbell figures (PNG)."""
-    from workbench.cli.verbs_runs import _write_csv
     from workbench.plots import run_up_figures, save_figure
 
     out.mkdir(parents=True, exist_ok=True)
     files = []
-    _write_csv(result.track_table(), out / "tracks.csv", force=force)
-    files.append(out / "tracks.csv")
+    files.append(write_csv(result.track_table(), out / "tracks.csv", force=force))
     table = result.criticals_table()
     table["half_power_rpm"] = table["half_power_rpm"].map(
         lambda v: f"{v[0]:.1f}-{v[1]:.1f}" if isinstance(v, (list, tuple)) else v)
-    _write_csv(table, out / "criticals.csv", force=force)
-    files.append(out / "criticals.csv")
+    files.append(write_csv(table, out / "criticals.csv", force=force))
     for path, fig in run_up_figures(result).items():
         save_figure(fig, out / path, force=force)
         files.append(out / path)
@@ -76,7 +63,6 @@ def write_criticals_outputs(result, out: Path, *, force: bool = False) -> list:
 
 def cmd_criticals(args) -> int:
     """Order tracks with phase and critical speeds of a recorded run."""
-    from workbench.cli.main import emit_json
     from workbench.cli.options import parse_orders
     from workbench.runs.criticals import SAFETY_NOTE, run_criticals
 
@@ -85,45 +71,42 @@ def cmd_criticals(args) -> int:
     operating = _operating(args.operating)
     out = Path(args.out) if args.out else None
     if out is not None:
-        _check_out(out, args.force)
+        check_out_folder(out, CRITICALS_FILES, force=args.force)
     result = run_criticals(args.run, orders=orders, operating_rpm=operating,
                            machine=args.machine, offset_deg=args.phase_offset,
                            protect=not args.no_protect, rf_map=out is not None, **opts)
     files = write_criticals_outputs(result, out, force=args.force) if out is not None else []
-    d = result.to_dict()
-    if files:
-        d["files"] = [str(f) for f in files]
-    if args.json:
-        emit_json(d)
-        return 0
-    print(f"{result.source}: speed from {result.speed_source}, "
-          f"{result.shaft_angle.rpm_min:.0f}-{result.shaft_angle.rpm_max:.0f} rpm; "
-          f"phase {result.phase_reference}"
-          + ("" if result.phase_reference == "absolute" else
-             " (no once-per-rev reference: compare phases within this run only)"))
-    if len(result.criticals):
-        print("\ncritical speeds:")
-        table = result.criticals_table()
-        table["half_power_rpm"] = table["half_power_rpm"].map(lambda v: f"{v[0]:.0f}-{v[1]:.0f}")
-        print(table.to_string(index=False, float_format=lambda v: f"{v:.4g}"))
-    else:
-        print("\nno critical speed found in the tracked orders")
-    if result.rejected:
-        print(f"\npeaks not taken for criticals: {len(result.rejected)}")
-        for ch, p in result.rejected[:10]:
-            print(f"  {ch} order {p.order:g} at {p.rpm:.0f} rpm: {p.reason}")
-    if files:
-        print(f"\noutputs written to {out}")
-    print(f"\nSafety: {SAFETY_NOTE}")
-    return 0
+
+    def show():
+        print(f"{result.source}: speed from {result.speed_source}, "
+              f"{result.shaft_angle.rpm_min:.0f}-{result.shaft_angle.rpm_max:.0f} rpm; "
+              f"phase {result.phase_reference}"
+              + ("" if result.phase_reference == "absolute" else
+                 " (no once-per-rev reference: compare phases within this run only)"))
+        if len(result.criticals):
+            print("\ncritical speeds:")
+            table = result.criticals_table()
+            table["half_power_rpm"] = table["half_power_rpm"].map(lambda v: f"{v[0]:.0f}-{v[1]:.0f}")
+            print_frame(table)
+        else:
+            print("\nno critical speed found in the tracked orders")
+        if result.rejected:
+            print(f"\npeaks not taken for criticals: {len(result.rejected)}")
+            for ch, p in result.rejected[:10]:
+                print(f"  {ch} order {p.order:g} at {p.rpm:.0f} rpm: {p.reason}")
+        if files:
+            print(f"\noutputs written to {out}")
+        print(f"\nSafety: {SAFETY_NOTE}")
+
+    return finish(args, result.to_dict(), show, files)
 
 
-def add_criticals_verb(verb) -> None:
-    """Register ``foldline criticals`` on the parser's sub-command factory."""
+def register(subparsers) -> None:
+    """Add ``foldline criticals`` to the command."""
     from workbench.cli.options import add_track_options
 
-    p = verb("criticals", "order tracks with phase (Bode, polar), critical speeds and their "
-                          "amplification factors, Campbell diagram")
+    p = add_verb(subparsers, "criticals", "order tracks with phase (Bode, polar), critical speeds "
+                                          "and their amplification factors, Campbell diagram")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
     add_track_options(p)
     p.add_argument("--orders", default="1,2", metavar="K1,K2", help="orders to track (default 1,2)")

@@ -6,9 +6,11 @@ from __future__ import annotations
 import warnings
 from pathlib import Path
 
+from workbench.cli.output import check_out_folder, finish, print_frame, write_csv
+from workbench.cli.verbs import add_verb
 from workbench.errors import FoldlineWarning, InputError
 
-__all__ = ["add_compare_verb", "cmd_compare", "COMPARE_FILES"]
+__all__ = ["register", "cmd_compare", "COMPARE_FILES"]
 
 COMPARE_FILES = ("compare_cuts.csv", "compare_overall.csv", "compare_spectra.csv", "compare_changes.csv",
                  "compare_cuts.png", "compare_overall.png", "compare_spectra.png")
@@ -18,9 +20,7 @@ def cmd_compare(args) -> int:
     """Track every run with the same settings and compare them on a common speed grid."""
     import pandas as pd
 
-    from workbench.cli.main import emit_json
     from workbench.cli.options import track_options_from_args
-    from workbench.errors import OutputExistsError
     from workbench.runs.analysis import track_run
     from workbench.runs.compare import compare_runs
 
@@ -34,11 +34,7 @@ def cmd_compare(args) -> int:
                              "separated by commas")
     out = Path(args.out) if args.out else None
     if out is not None:
-        if out.exists() and not out.is_dir():
-            raise InputError(f"--out {out}: exists and is not a folder")
-        clash = [n for n in COMPARE_FILES if (out / n).exists()]
-        if clash and not args.force:
-            raise OutputExistsError(f"{out / clash[0]}: exists already; pass --force to replace the outputs in {out}")
+        check_out_folder(out, COMPARE_FILES, force=args.force)
     opts = track_options_from_args(args)
     analyses = []
     for path in args.runs:
@@ -53,14 +49,11 @@ def cmd_compare(args) -> int:
     if out is not None:
         from workbench.plots.common import save_figure
         from workbench.plots.compare import plot_compare_cuts, plot_compare_overall, plot_compare_spectra
-        from workbench.runs import atomic_output
 
         out.mkdir(parents=True, exist_ok=True)
 
         def table(frame, name):
-            with atomic_output(out / name, force=args.force) as tmp:
-                frame.to_csv(tmp, index=False)
-            files.append(out / name)
+            files.append(write_csv(frame, out / name, force=args.force))
 
         rows = []
         for o, a in comp.cuts.items():
@@ -73,35 +66,32 @@ def cmd_compare(args) -> int:
         table(pd.DataFrame({"order": comp.order, **{lab: comp.spectra[i] for i, lab in enumerate(comp.labels)}}),
               "compare_spectra.csv")
         table(comp.changes(), "compare_changes.csv")
-        top = analyses[0].samples_per_rev / 2.56
+        top = analyses[0].top_order
         for fig, name in ((plot_compare_cuts(comp), "compare_cuts.png"),
                           (plot_compare_overall(comp), "compare_overall.png"),
                           (plot_compare_spectra(comp, max_order=top), "compare_spectra.png")):
             save_figure(fig, out / name, force=args.force)
             files.append(out / name)
-    result = comp.to_dict()
-    if files:
-        result["files"] = [str(f) for f in files]
-    if args.json:
-        emit_json(result)
-        return 0
-    print("runs compared on a common speed grid "
-          f"({comp.rpm[0]:.0f}-{comp.rpm[-1]:.0f} rpm, {len(comp.rpm)} points):")
-    print(comp.runs.to_string(index=False, float_format=lambda v: f"{v:.0f}"))
-    ch = comp.changes()
-    if len(ch):
-        print("\nlargest change of each order cut against the first run (dB):")
-        print(ch.to_string(index=False, float_format=lambda v: f"{v:.1f}"))
-    if files:
-        print(f"\noutputs written to {out}")
-    return 0
+
+    def show():
+        print("runs compared on a common speed grid "
+              f"({comp.rpm[0]:.0f}-{comp.rpm[-1]:.0f} rpm, {len(comp.rpm)} points):")
+        print_frame(comp.runs, digits=".0f")
+        ch = comp.changes()
+        if len(ch):
+            print("\nlargest change of each order cut against the first run (dB):")
+            print_frame(ch, digits=".1f")
+        if files:
+            print(f"\noutputs written to {out}")
+
+    return finish(args, comp.to_dict(), show, files)
 
 
-def add_compare_verb(verb) -> None:
-    """Register ``foldline compare`` on the parser's sub-command factory."""
+def register(subparsers) -> None:
+    """Add ``foldline compare`` to the command."""
     from workbench.cli.options import add_track_options
 
-    p = verb("compare", "order cuts, order spectra and overall levels of two or more runs, aligned on speed")
+    p = add_verb(subparsers, "compare", "order cuts, order spectra and overall levels of two or more runs, aligned on speed")
     p.add_argument("runs", nargs="+", metavar="RUN", help="two or more runs of the same machine")
     add_track_options(p)
     p.add_argument("--machine", metavar="MACHINE", help="machine file (default: each run's sidecar's)")

@@ -5,12 +5,11 @@ from __future__ import annotations
 import warnings
 from pathlib import Path
 
-from workbench.cli.verb_speed import MAX_JSON_POINTS, _thin   # one rule for thinning JSON arrays
+from workbench.cli.output import channel_folders, check_out_folder, finish, thin
+from workbench.cli.verbs import add_verb
 from workbench.errors import FoldlineWarning, InputError
 
-__all__ = ["add_extract_verb", "cmd_extract", "write_extract_outputs", "MAX_JSON_POINTS"]
-
-#: Longest array in the JSON answer; longer envelopes are thinned evenly.
+__all__ = ["register", "cmd_extract", "write_extract_outputs"]
 
 #: Tracking options that shape an order spectrum and mean nothing to the extraction.
 _UNUSED = ("samples_per_rev", "revs_per_block", "envelope_hz", "cut_orders", "cut_bandwidth_orders")
@@ -27,11 +26,8 @@ def cmd_extract(args) -> int:
     import numpy as np
 
     from workbench.angle.vold_kalman import extract_orders
-    from workbench.cli.main import emit_json
     from workbench.cli.options import parse_orders, track_options_from_args
-    from workbench.errors import OutputExistsError
     from workbench.runs import read_run
-    from workbench.cli.verbs_runs import channel_folders
     from workbench.runs.analysis import SPEED_OPTIONS, run_speed, vibration_channels
 
     orders = parse_orders(args.orders, "--orders")
@@ -51,8 +47,8 @@ def cmd_extract(args) -> int:
         warnings.warn(f"--{unused[0].replace('_', '-')} shapes order spectra; extract ignores it",
                       FoldlineWarning, stacklevel=1)
     out = Path(args.out) if args.out else None
-    if out is not None and out.exists() and not out.is_dir():
-        raise InputError(f"--out {out}: exists and is not a folder; give a folder")
+    if out is not None:
+        check_out_folder(out, force=args.force, hint="; give a folder")
     run = read_run(args.run, rate_hz=opts.get("rate_hz"))
     if out is not None and not float(run.rate_hz).is_integer():
         raise InputError(f"--out {out}: the run's rate {run.rate_hz:g} Hz is not a whole number, so "
@@ -62,10 +58,7 @@ def cmd_extract(args) -> int:
     names = [run.channels[i].name for i in rows]
     folders = channel_folders(out, names) if out is not None else {}
     for folder in folders.values():   # refuse before any work when an output would be replaced
-        clash = [p for p in _outputs(orders, folder) if p.exists()]
-        if clash and not args.force:
-            raise OutputExistsError(f"{clash[0]}: exists already; pass --force to replace the "
-                                    f"outputs in {folder}")
+        check_out_folder(folder, [p.name for p in _outputs(orders, folder)], force=args.force)
     angle, speed_source = run_speed(run, **{k: opts[k] for k in SPEED_OPTIONS if k in opts})
     files, per_channel, extractions = [], [], []
     for row, name in zip(rows, names):
@@ -78,7 +71,7 @@ def cmd_extract(args) -> int:
                                         title=f"{Path(args.run).name}, channel {name}") \
             if out is not None else []
         files.extend(written)
-        keep = _thin(len(ex.time_s))
+        keep = thin(len(ex.time_s))
         per_channel.append({
             "channel": name,
             "unit": channel.unit,
@@ -109,28 +102,26 @@ def cmd_extract(args) -> int:
     }
     if len(per_channel) > 1:           # the first channel's keys stay; every channel is listed
         result["channels"] = per_channel
-    if files:
-        result["files"] = [str(f) for f in files]
-    if args.json:
-        emit_json(result)
-        return 0
-    bw = (f"{args.bandwidth_pct:g} % of each order" if args.bandwidth_pct is not None
-          else f"{ex.bandwidth_hz[0, 0]:g} Hz")
-    print(f"{args.run}: {run.rate_hz:g} S/s, speed from {speed_source}: "
-          f"{np.nanmin(ex.rpm):.0f}-{np.nanmax(ex.rpm):.0f} rpm")
-    print(f"Vold-Kalman extraction, -3 dB bandwidth {bw}, filter order {ex.filter_order}, "
-          f"envelopes at {ex.envelope_rate_hz:g} Hz")
-    for channel, ex in extractions:
-        unit = f" {channel.unit}" if channel.unit else ""
-        print(f"channel {channel.name}:")
-        for i, o in enumerate(ex.orders):
-            amp = ex.amplitude[i]
-            j = int(np.argmax(amp))
-            print(f"  order {o:g}: peak amplitude {amp[j]:.4g}{unit} at {ex.rpm[j]:.0f} rpm "
-                  f"(t = {ex.time_s[j]:.2f} s), mean {np.mean(amp):.4g}{unit}")
-    if files:
-        print(f"outputs written to {out}")
-    return 0
+
+    def show():
+        bw = (f"{args.bandwidth_pct:g} % of each order" if args.bandwidth_pct is not None
+              else f"{ex.bandwidth_hz[0, 0]:g} Hz")
+        print(f"{args.run}: {run.rate_hz:g} S/s, speed from {speed_source}: "
+              f"{np.nanmin(ex.rpm):.0f}-{np.nanmax(ex.rpm):.0f} rpm")
+        print(f"Vold-Kalman extraction, -3 dB bandwidth {bw}, filter order {ex.filter_order}, "
+              f"envelopes at {ex.envelope_rate_hz:g} Hz")
+        for chan, each in extractions:
+            unit = f" {chan.unit}" if chan.unit else ""
+            print(f"channel {chan.name}:")
+            for i, o in enumerate(each.orders):
+                amp = each.amplitude[i]
+                j = int(np.argmax(amp))
+                print(f"  order {o:g}: peak amplitude {amp[j]:.4g}{unit} at {each.rpm[j]:.0f} rpm "
+                      f"(t = {each.time_s[j]:.2f} s), mean {np.mean(amp):.4g}{unit}")
+        if files:
+            print(f"outputs written to {out}")
+
+    return finish(args, result, show, files)
 
 
 def write_extract_outputs(ex, out: Path, *, unit: str = "", force: bool = False, title=None) -> list:
@@ -164,12 +155,12 @@ def write_extract_outputs(ex, out: Path, *, unit: str = "", force: bool = False,
     return files
 
 
-def add_extract_verb(verb) -> None:
-    """Register ``foldline extract`` on the parser's sub-command factory."""
+def register(subparsers) -> None:
+    """Add ``foldline extract`` to the command."""
     from workbench.cli.options import add_track_options
 
-    p = verb("extract", "extract orders' waveforms and envelopes with the Vold-Kalman filter "
-                        "(close and crossing orders separated)")
+    p = add_verb(subparsers, "extract", "extract orders' waveforms and envelopes with the "
+                                        "Vold-Kalman filter (close and crossing orders separated)")
     p.add_argument("run", metavar="RUN", help="run file (WAV, CSV, NPZ or MAT; a .json sidecar beside it)")
     add_track_options(p)
     p.add_argument("--orders", required=True, metavar="K1,K2",

@@ -5,9 +5,11 @@ from __future__ import annotations
 import sys
 import time
 
+from workbench.cli.output import finish
+from workbench.cli.verbs import add_verb
 from workbench.errors import InputError
 
-__all__ = ["add_batch_verb", "cmd_batch", "TextProgress"]
+__all__ = ["register", "cmd_batch", "TextProgress"]
 
 
 class TextProgress:
@@ -43,7 +45,6 @@ class TextProgress:
 def cmd_batch(args) -> int:
     """Track many runs with the same settings; summary as Parquet and CSV."""
     from workbench.batch.core import BatchSettings, run_batch
-    from workbench.cli.main import emit_json
     from workbench.cli.options import track_options_from_args
 
     opts = track_options_from_args(args)
@@ -59,30 +60,32 @@ def cmd_batch(args) -> int:
     finally:
         if bar is not None:
             bar.close()
-    out = {"out": str(args.out), **result.to_dict()}
-    if args.json:
-        emit_json(out)
-        return 0
-    where = result.scheduler or "this process (serial)"
-    print(f"{len(result.done)} run(s) tracked, {len(result.skipped)} skipped (already done), "
-          f"{len(result.failed)} failed, in {result.seconds:.1f} s on {where}")
-    for f, e in result.failed:
-        print(f"  failed: {f}: {e}")
-    print(f"summary: {result.summary_parquet} and {result.summary_csv}")
-    return 0
+
+    def show():
+        where = result.scheduler or "this process (serial)"
+        print(f"{len(result.done)} run(s) tracked, {len(result.skipped)} skipped (already done), "
+              f"{len(result.failed)} failed, in {result.seconds:.1f} s on {where}")
+        for f, e in result.failed:
+            print(f"  failed: {f}: {e}")
+        print(f"summary: {result.summary_parquet} and {result.summary_csv}")
+
+    return finish(args, {"out": str(args.out), **result.to_dict()}, show)
 
 
 def _default_cuts(args, opts) -> tuple:
-    """Order 1 and the plan bands' line orders, when machine and plan are given; else order 1."""
+    """The default cut orders' rule (order 1 and the plan bands' line orders when machine and
+    plan are given), up to the settings' top order."""
+    from workbench.runs.settings import TrackingSettings
+
+    machine = plan = None
     if args.machine and args.plan:
         from workbench.machine import read_machine
-        from workbench.report.document import default_cut_orders
         from workbench.sampling import read_plan
 
-        spr = opts.get("samples_per_rev", 256)
-        return default_cut_orders(read_machine(args.machine), read_plan(args.plan),
-                                  max_order=spr / 2.56)
-    return (1.0,)
+        machine, plan = read_machine(args.machine), read_plan(args.plan)
+    st = TrackingSettings.from_options(None, samples_per_rev=opts.get("samples_per_rev"),
+                                       max_order=opts.get("max_order"))
+    return st.cut_orders_for(machine=machine, plan=plan)
 
 
 def _workers(text: str) -> int:
@@ -99,11 +102,11 @@ def _workers(text: str) -> int:
     return n
 
 
-def add_batch_verb(verb) -> None:
-    """Register ``foldline batch`` on the parser's sub-command factory."""
+def register(subparsers) -> None:
+    """Add ``foldline batch`` to the command."""
     from workbench.cli.options import add_track_options
 
-    p = verb("batch", "track many runs with the same settings on Dask; summary as Parquet and CSV")
+    p = add_verb(subparsers, "batch", "track many runs with the same settings on Dask; summary as Parquet and CSV")
     p.add_argument("runs", nargs="+", metavar="RUN", help="run files (on storage every worker can read)")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (summary and per-run CSV)")
     p.add_argument("--scheduler", metavar="ADDRESS",
