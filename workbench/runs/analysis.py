@@ -63,7 +63,7 @@ class RunAnalysis:
     envelope_hz : tuple or None
     order_map : OrderMap
     cuts : tuple of OrderCut
-    rf_map : RpmFrequencyMap or None
+    rf_map : FrequencyMap or None
     identification : Identification or None
     lines : tuple of Line
         The machine's predicted lines the identification used (empty without a machine).

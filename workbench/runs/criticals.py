@@ -66,7 +66,7 @@ class RunCriticals:
     units : dict
         Channel name -> unit.
     operating_rpm : (float, float) or None
-    rf_map : RpmFrequencyMap or None
+    rf_map : FrequencyMap or None
         Of the first channel (for the Campbell diagram).
     machine : Machine or None
     samples_per_rev, revs_per_block : int, float
