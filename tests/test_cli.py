@@ -6,6 +6,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -125,3 +126,18 @@ def test_demo_writes_outputs(run_json, tmp_path, monkeypatch):
     assert files and all(f.exists() for f in files)
     assert d["advice"]["recommended_rate_hz"] == 10240
     assert any(x["alias"] for x in d["run"]["identified"])
+    # The figures and the report agree on every setting: the report's settings table states
+    # the orders cut in run/order_cuts.csv (order 1 and the orders of the two bearing lines the
+    # demo plan's bands follow) and the highest order the figures show.
+    import html as _html
+    import re
+
+    page = (tmp_path / "demo" / "report.html").read_text(encoding="utf-8")
+    table = dict(re.findall(r"<dt>([^<]*)</dt><dd>([^<]*)</dd>",
+                            page.split('class="kv run-summary"', 1)[1].split("</dl>", 1)[0]))
+    stated = tuple(float(v) for v in re.findall(r"[0-9.]+", _html.unescape(table["cut orders"])))
+    cut = pd.read_csv(tmp_path / "demo" / "run" / "order_cuts.csv")
+    assert stated == tuple(sorted(cut["order"].unique()))
+    assert stated[0] == 1.0 and len(stated) == 3
+    assert float(table["max order"]) == pytest.approx(d["run"]["max_order"])
+    assert d["run"]["max_order"] == pytest.approx(d["run"]["samples_per_rev"] / 2.56)

@@ -17,7 +17,7 @@ pytest.importorskip("ipywidgets")
 
 from matplotlib.backend_bases import MouseButton, MouseEvent  # noqa: E402
 
-from workbench.angle.spectra import OrderCut, OrderMap, OrderSpectrum, RpmFrequencyMap  # noqa: E402
+from workbench.angle.spectra import OrderCut, OrderMap, OrderSpectrum, FrequencyMap  # noqa: E402
 from workbench.errors import InputError  # noqa: E402
 from workbench.ui import interactive as live  # noqa: E402
 from workbench.ui.map_explorer import MapExplorer  # noqa: E402
@@ -47,7 +47,7 @@ def live_explorer():
     famp[:, 200] = 3.0  # a fixed 500 Hz line
     cuts = (OrderCut(RPM, omap.amplitude[:, 464], 29.0, 0.25), OrderCut(RPM, omap.amplitude[:, 100], 6.25, 0.25))
     spectrum = OrderSpectrum(ORDER, omap.amplitude.max(axis=0), 16.0, RPM.size)
-    return MapExplorer(omap, unit="m/s^2", frequency_map=RpmFrequencyMap(RPM, hz, famp, RPM / 100.0),
+    return MapExplorer(omap, unit="m/s^2", frequency_map=FrequencyMap(RPM, hz, famp, RPM / 100.0),
                        cuts=cuts, spectrum=spectrum, interactive=True)
 
 

@@ -94,7 +94,7 @@ def test_track_run_refuses_contradictory_speed_sources(tmp_path):
     run = simulate_run(_rig(), _plan(), 1000.0, seed=1, duration_s=2.0)
     with pytest.raises(InputError, match="either --rpm or --speed-table"):
         track_run(run, rpm=1000.0, speed_table="x.csv")
-    with pytest.raises(InputError, match="samples-per-rev"):
+    with pytest.raises(InputError, match=r"^samples_per_rev = 4: must be a whole number"):
         track_run(run, samples_per_rev=4)
     with pytest.raises(InputError, match="envelope"):
         track_run(run, rpm=1000.0, envelope_hz=(100.0, 600.0))

@@ -14,7 +14,7 @@ signal into :func:`order_map` with :func:`iter_resample_to_angle`.
 """
 
 from workbench.angle.spectra import (OrderAnalysis, OrderCut, OrderMap, OrderPeaks,
-                                     OrderSpectrum, RpmFrequencyMap, WindowGains,
+                                     OrderSpectrum, FrequencyMap, WindowGains,
                                      envelope_order_spectrum, find_order_peaks, order_cut,
                                      order_map, order_spectrum, frequency_map, window_gains)
 from workbench.angle.pulse_angles import tacho_angle
@@ -43,7 +43,7 @@ __all__ = [
     "PulseDetector", "detect_pulses", "DoubtedPulses", "PulseTiming", "ShaftAngle", "tacho_angle",
     "FIT_METHODS", "speed_tolerance_for", "DEFAULT_SPEED_TOLERANCE",
     "AngleSignal", "OrderTracker", "resample_to_angle", "iter_resample_to_angle",
-    "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
+    "OrderAnalysis", "OrderSpectrum", "OrderMap", "OrderCut", "FrequencyMap", "OrderPeaks",
     "WindowGains", "window_gains", "order_spectrum", "order_map", "order_cut",
     "envelope_order_spectrum", "frequency_map", "find_order_peaks",
     "OrderExtraction", "extract_orders", "vk_weighting", "vk_bandwidth_hz", "vk_response",

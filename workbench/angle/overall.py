@@ -42,6 +42,8 @@ class OverallLevel:
         Length of one block, s.
     band_hz : (float, float) or None
         Frequency band of the level, Hz (None: the whole band, DC removed).
+    unit : str or None
+        Unit of the level when it is not the channel's (e.g. ``"mm/s"`` when integrated).
     """
 
     rpm: np.ndarray
@@ -49,6 +51,7 @@ class OverallLevel:
     n_blocks: np.ndarray
     block_s: float
     band_hz: tuple | None = None
+    unit: str | None = None
 
     def to_dict(self) -> dict:
         """``{"rpm": [...], "rms": [...]}`` (NaN as None) plus ``block_s`` and ``band_hz``."""
@@ -60,6 +63,8 @@ class OverallLevel:
                "block_s": float(self.block_s)}
         if self.band_hz is not None:
             out["band_hz"] = [float(v) for v in self.band_hz]
+        if self.unit is not None:
+            out["unit"] = self.unit
         return out
 
 
@@ -92,7 +97,7 @@ def rpm_edges_from_centres(rpm) -> np.ndarray:
 
 
 def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_rows=None, band_hz=None,
-                  block_samples: int | None = None) -> OverallLevel:
+                  block_samples: int | None = None, weight=None, unit: str | None = None) -> OverallLevel:
     """Overall RMS of a channel per time block, averaged into rpm bins.
 
     Parameters
@@ -113,6 +118,13 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
         Only the content between these frequencies, Hz (0 <= lo < hi <= rate / 2).
     block_samples : int, optional
         Samples per block (default :func:`default_block_samples`: about 0.25 s).
+    weight : callable, optional
+        Amplitude weight of each frequency, ``weight(f_hz) -> array`` (e.g. the integration to
+        velocity, :func:`~workbench.angle.scaling.integration_weight`); the level is then
+        computed from the weighted spectrum of each block (the banded method below, over the
+        whole band when ``band_hz`` is not given).
+    unit : str, optional
+        Unit of the level (recorded in the result; default the channel's, unnamed).
 
     Returns
     -------
@@ -136,17 +148,25 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
     rate = checks.rate_hz(None, "rate_hz", rate_hz)
     if not isinstance(angle, ShaftAngle):
         raise InputError(f"angle = {show(angle)}: must be a ShaftAngle")
-    n = default_block_samples(rate) if block_samples is None else checks.positive_int(None, "block_samples", block_samples, low=8, whole_float=False)
-    if band_hz is not None:
-        lo, hi = (checks.real(None, "band_hz", v) for v in band_hz)
-        if not 0 <= lo < hi <= rate / 2:
-            raise InputError(f"band_hz = [{lo:g}, {hi:g}]: must be 0 <= lo < hi <= "
-                             f"Nyquist ({rate / 2:g} Hz)")
-        band_hz = (lo, hi)
+    n = default_block_samples(rate) if block_samples is None else checks.positive_int(
+        None, "block_samples", block_samples, low=8, whole_float=False)
+    spectral = band_hz is not None or weight is not None
+    if spectral:
+        if band_hz is not None:
+            lo, hi = (checks.real(None, "band_hz", v) for v in band_hz)
+            if not 0 <= lo < hi <= rate / 2:
+                raise InputError(f"band_hz = [{lo:g}, {hi:g}]: must be 0 <= lo < hi <= "
+                                 f"Nyquist ({rate / 2:g} Hz)")
+            band_hz = (lo, hi)
+        else:
+            lo, hi = 0.0, rate / 2
         w = np.hanning(n + 1)[:-1]  # periodic Hann
         f = np.fft.rfftfreq(n, 1.0 / rate)
         inband = (f >= lo) & (f <= hi) & (f > 0) & (f < rate / 2)
         scale = 2.0 / (n * float(np.sum(w * w)))
+        if weight is not None:
+            gain = np.nan_to_num(np.asarray(weight(f[inband]), dtype=float), nan=0.0) ** 2
+            scale = scale * gain
     ms, centres = [], []
     buf = np.empty(0)
     start = 0  # sample index of buf[0]
@@ -156,11 +176,11 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
         if m == 0:
             continue
         frames = buf[: m * n].reshape(m, n)
-        if band_hz is None:
+        if not spectral:
             ms.append(np.var(frames, axis=1))
         else:
             spec = np.fft.rfft((frames - frames.mean(axis=1, keepdims=True)) * w, axis=1)
-            ms.append(scale * np.sum(np.abs(spec[:, inband]) ** 2, axis=1))
+            ms.append(np.sum(scale * np.abs(spec[:, inband]) ** 2, axis=1))
         centres.append(start + n * np.arange(m) + 0.5 * n)
         start += m * n
         buf = buf[m * n:]
@@ -182,7 +202,7 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
         r = np.asarray(rpm_rows, dtype=float)
         rows = np.unique(r[np.isfinite(r)])
     if rpm_edges is None:
-        return OverallLevel(rpm, np.sqrt(ms), np.ones(rpm.size, dtype=np.int64), n / rate, band_hz)
+        return OverallLevel(rpm, np.sqrt(ms), np.ones(rpm.size, dtype=np.int64), n / rate, band_hz, unit)
     edges = np.asarray(rpm_edges, dtype=float)
     if edges.ndim != 1 or edges.size < 2 or np.any(np.diff(edges) <= 0):
         raise InputError("rpm_edges: give at least two increasing speeds (rpm)")
@@ -193,4 +213,4 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
     with np.errstate(invalid="ignore", divide="ignore"):
         rms = np.where(counts > 0, np.sqrt(sums / np.maximum(counts, 1)), np.nan)
     centre = 0.5 * (edges[1:] + edges[:-1]) if rows is None else rows
-    return OverallLevel(centre, rms, counts.astype(np.int64), n / rate, band_hz)
+    return OverallLevel(centre, rms, counts.astype(np.int64), n / rate, band_hz, unit)

@@ -28,7 +28,7 @@ from workbench.errors import InputError
 
 __all__ = ["AmplitudeScaling", "INTEGRATIONS", "AMPLITUDES", "acceleration_factor",
            "integrate_order_map", "integrate_frequency_map", "spectrum_from_map", "DEFAULT_MIN_HZ",
-           "G_N", "correct_rolloff_map"]
+           "G_N", "correct_rolloff_map", "integration_weight"]
 
 #: What an acceleration channel can be integrated to.
 INTEGRATIONS = ("velocity", "displacement")
@@ -124,6 +124,32 @@ def _divisor(hz, power, min_hz):
     w = 2.0 * np.pi * np.asarray(hz, dtype=float)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(np.asarray(hz) >= min_hz, w ** power, np.nan)
+
+
+def integration_weight(to="velocity", unit="m/s^2", min_hz=DEFAULT_MIN_HZ):
+    """The integration as an amplitude weight of frequency: ``f -> k / (2 pi f)^p``.
+
+    ``p`` is 1 for velocity (mm/s) and 2 for displacement (um); ``k`` converts the channel's
+    acceleration unit to the shown unit.  Below ``min_hz`` the weight is 0 (the high-pass the
+    integrated order results apply as NaN bins).  Used for the overall level
+    (:func:`~workbench.angle.overall.overall_level`, ``weight=``).
+
+    Returns
+    -------
+    (callable, str)
+        The weight and the unit of the integrated level.
+    """
+    if to not in INTEGRATIONS:
+        raise InputError(f"integrate {to!r}: allowed: " + ", ".join(INTEGRATIONS))
+    p = 1 if to == "velocity" else 2
+    k = acceleration_factor(unit) * _OUT_UNITS[to][1]
+
+    def weight(f_hz):
+        d = _divisor(f_hz, p, min_hz)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.nan_to_num(k / d, nan=0.0, posinf=0.0)
+
+    return weight, _OUT_UNITS[to][0]
 
 
 def integrate_order_map(order_map, *, to="velocity", unit="m/s^2", min_hz=DEFAULT_MIN_HZ):

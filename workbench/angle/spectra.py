@@ -40,7 +40,7 @@ from workbench.errors import FoldlineWarning, InputError
 
 __all__ = [
     "WindowGains", "window_gains",
-    "OrderSpectrum", "OrderMap", "OrderCut", "RpmFrequencyMap", "OrderPeaks",
+    "OrderSpectrum", "OrderMap", "OrderCut", "FrequencyMap", "OrderPeaks",
     "OrderAnalysis",
     "order_spectrum", "order_map", "order_cut", "envelope_order_spectrum",
     "frequency_map", "find_order_peaks", "peak_amplitude",
@@ -267,7 +267,7 @@ class OrderCut:
 
 
 @dataclass(frozen=True, eq=False)
-class RpmFrequencyMap:
+class FrequencyMap:
     """Time-domain spectra (Hz) against speed, from fixed-length blocks of the record.
 
     Attributes
@@ -888,7 +888,7 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
 
 def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
                       overlap: float = 0.5, window="hann", scaling: str = "peak",
-                      max_hz: float | None = None, rpm_bins=None) -> RpmFrequencyMap:
+                      max_hz: float | None = None, rpm_bins=None) -> FrequencyMap:
     """Spectra of fixed-length time blocks against speed (no angle resampling).
 
     Parameters
@@ -912,7 +912,7 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
 
     Returns
     -------
-    RpmFrequencyMap
+    FrequencyMap
 
     Notes
     -----
@@ -949,7 +949,7 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
         if not ok.any():
             raise InputError(f"no block centre lies inside the shaft angle's span "
                              f"({angle.t_start_s:g} to {angle.t_end_s:g} s)")
-        return RpmFrequencyMap(0.5 * (edges[:-1] + edges[1:])[ok], hz, amp[ok],
+        return FrequencyMap(0.5 * (edges[:-1] + edges[1:])[ok], hz, amp[ok],
                                np.full(int(ok.sum()), np.nan), str(window), scaling, blocks.enbw)
     t = blocks.all_centres() / rate_hz
     rpm = angle.rpm_at(t)
@@ -958,7 +958,7 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
         raise InputError(f"no block centre lies inside the shaft angle's span "
                          f"({angle.t_start_s:g} to {angle.t_end_s:g} s)")
     hz = np.arange(blocks.n_keep) * rate_hz / nperseg
-    return RpmFrequencyMap(rpm[ok], hz, blocks.all_rows()[ok], t[ok], str(window), scaling,
+    return FrequencyMap(rpm[ok], hz, blocks.all_rows()[ok], t[ok], str(window), scaling,
                            blocks.enbw)
 
 

@@ -64,8 +64,15 @@ def scaling_from_args(args):
 
 
 def analysis_options_from_args(args) -> dict:
-    """Keyword options of ``track_run`` that come from the display group (None left out)."""
+    """Tracking settings that come from the display group (None left out): the overall level's
+    band, and its integration (``--integrate``, ``--integrate-from``)."""
     from workbench.cli.options import _band
 
+    out = {}
     band = getattr(args, "overall_band", None)
-    return {} if band is None else {"overall_band_hz": _band(band, "--overall-band")}
+    if band is not None:
+        out["overall_band_hz"] = _band(band, "--overall-band")
+    scaling = scaling_from_args(args)
+    if scaling is not None and scaling.integrate:   # the overall level integrated as well
+        out.update(integrate=scaling.integrate, integrate_from_hz=scaling.min_hz)
+    return out

@@ -63,6 +63,11 @@ def main(argv=None) -> int:
             warnings.showwarning = _show_warning  # restored when the block ends
             return int(args.func(args) or 0)
     except (_UsageError, FoldlineError) as exc:
+        settings = sys.modules.get("workbench.runs.settings")
+        if settings is not None and isinstance(exc, settings.SettingError):
+            from workbench.cli.options import flag_error   # in the words of the command line
+
+            exc = flag_error(exc, locals().get("args"))
         _fail(str(exc))
         return 2
     except FileNotFoundError as exc:

@@ -4,10 +4,9 @@ from __future__ import annotations
 
 from workbench.errors import InputError
 
-__all__ = ["add_track_options", "track_options_from_args", "parse_orders", "add_speed_options",
-           "speed_options_from_args"]
-__all__ = ["add_track_options", "track_options_from_args", "parse_orders", "parse_channels",
-           "parse_threads", "option_name", "OPTION_NAMES"]
+__all__ = ["add_track_options", "track_options_from_args", "settings_from_args", "parse_orders",
+           "parse_channels", "parse_threads", "option_name", "OPTION_NAMES", "FIELD_FLAGS",
+           "flag_error", "add_speed_options", "speed_options_from_args"]
 
 
 def parse_orders(text: str, name: str) -> tuple:
@@ -61,14 +60,67 @@ def add_track_options(p) -> None:
                         "worker)")
 
 
-#: Command-line option of each ``track_options_from_args`` key whose name differs from it.
-OPTION_NAMES = {"channels": "--channel", "rate_hz": "--rate", "envelope_hz": "--envelope",
-                "cut_bandwidth_orders": "--cut-bandwidth"}
+#: The command-line option of each tracking setting (a field of
+#: :class:`~workbench.runs.settings.TrackingSettings`) and of the other keys of
+#: :func:`track_options_from_args`: the one table between options and fields.
+FIELD_FLAGS = {
+    "channels": "--channel", "rate_hz": "--rate", "threads": "--threads",
+    "tacho": "--tacho", "pulses_per_rev": "--pulses-per-rev", "missing_pulses": "--missing-pulses",
+    "rpm": "--rpm", "speed_table": "--speed-table", "speed_tolerance": "--speed-tolerance",
+    "speed_order": "--speed-order", "speed_range": "--speed-range",
+    "speed_channel": "--speed-channel", "speed_scale": "--speed-scale",
+    "samples_per_rev": "--samples-per-rev", "revs_per_block": "--revs-per-block",
+    "max_order": "--max-order", "envelope_hz": "--envelope", "cut_orders": "--cut-orders",
+    "cut_bandwidth_orders": "--cut-bandwidth", "overall_band_hz": "--overall-band",
+    "integrate": "--integrate", "integrate_from_hz": "--integrate-from", "protect": "--no-protect",
+    "aa_filter": "--plan",
+}
+#: Keys whose option name is not ``--`` plus the key with dashes (kept for callers).
+OPTION_NAMES = {k: v for k, v in FIELD_FLAGS.items() if v != "--" + k.replace("_", "-")}
 
 
 def option_name(key: str) -> str:
-    """The command-line option a ``track_options_from_args`` key came from."""
-    return OPTION_NAMES.get(key, "--" + key.replace("_", "-"))
+    """The command-line option a tracking setting (or ``track_options_from_args`` key) comes
+    from."""
+    return FIELD_FLAGS.get(key, "--" + key.replace("_", "-"))
+
+
+def flag_error(exc, args=None):
+    """A setting's error in the command's words: ``--samples-per-rev 3: must be ...``.
+
+    ``exc`` is a :class:`~workbench.runs.settings.SettingError` (field names); the value shown
+    is the text given on the command line when ``args`` holds it.  Field names inside the
+    rule (those with an underscore) are turned into their options too.  Returns an :class:`InputError`.
+    """
+    import re
+
+    flag = option_name(exc.field)
+    given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
+    if given is None:
+        value = exc.value
+        given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
+            if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
+                                                      else str(value))
+    # field names written with an underscore ("speed_range") are not words of a sentence
+    named = sorted((k for k in FIELD_FLAGS if "_" in k), key=len, reverse=True)
+    problem = re.sub(r"\b(" + "|".join(named) + r")\b", lambda m: FIELD_FLAGS[m.group(1)],
+                     exc.problem)
+    return InputError(f"{flag} {given}: {problem}")
+
+
+def settings_from_args(args, base=None, **more):
+    """The :class:`~workbench.runs.settings.TrackingSettings` of the parsed options (on top of
+    ``base``, e.g. a plan's), and the options that are not settings (``channels``,
+    ``rate_hz``).  A bad value raises :class:`InputError` naming the option."""
+    from workbench.runs.settings import SettingError, TrackingSettings
+
+    opts = track_options_from_args(args)
+    other = {k: opts.pop(k) for k in ("channels", "rate_hz") if k in opts}
+    opts.update({k: v for k, v in more.items() if v is not None})
+    try:
+        return TrackingSettings.from_options(base, **opts), other
+    except SettingError as exc:
+        raise flag_error(exc, args) from None
 
 
 def track_options_from_args(args) -> dict:
@@ -100,6 +152,8 @@ def _percent(value, name: str):
     if not 0 < value < 100:
         raise InputError(f"{name} {value:g}: give a percentage between 0 and 100, e.g. 0.05")
     return value / 100.0
+
+
 def add_speed_options(group, exclusive) -> None:
     """Speed without a tacho: ``--speed-order K --speed-range LO,HI`` (from the vibration) and
     ``--speed-channel CH --speed-scale RPM_PER_UNIT`` (an analogue speed channel).
@@ -136,6 +190,8 @@ def _rpm_range(text: str) -> tuple:
     if not (0 < lo < hi < float("inf")):
         raise InputError(f"--speed-range {text!r}: need 0 < LO < HI (rpm)")
     return lo, hi
+
+
 def parse_channels(text):
     """``--channel`` as given: None; ``"all"``; or a tuple of channels, each a 1-based index
     (digits, an int) or a name (text).  ``"1,3,4"`` -> (1, 3, 4); ``"accel x,3"`` ->

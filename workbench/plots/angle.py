@@ -650,7 +650,7 @@ def plot_waterfall(spectra_map, *, unit="", title=None, max_rows=40, dynamic_ran
 
     Parameters
     ----------
-    spectra_map : OrderMap or RpmFrequencyMap
+    spectra_map : OrderMap or FrequencyMap
         Rows of spectra (``rpm``, ``order`` or ``hz``, ``amplitude``).
     max_rows : int
         Rows drawn (evenly chosen over the speed range; a map averaged into rpm bins keeps

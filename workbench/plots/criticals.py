@@ -145,7 +145,7 @@ def plot_campbell(rf_map=None, *, orders=(1.0, 2.0), lines=None, resonances=(), 
 
     Parameters
     ----------
-    rf_map : RpmFrequencyMap, optional
+    rf_map : FrequencyMap, optional
         The measured map drawn underneath; without it an empty frame (for a plan).
     orders : sequence of float
         Order lines drawn (true frequency ``order x rpm / 60``).

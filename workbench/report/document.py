@@ -39,6 +39,7 @@ from workbench.errors import FoldlineWarning, InputError
 from workbench.fileio import file_sha256
 from workbench.machine.lines import kind_name
 from workbench.runs.cut_orders import default_cut_orders
+from workbench.sampling import ANALYSER_FACTOR
 from workbench.sampling.foldmap import COLLISION_COLUMNS, COLLISION_DECIMALS, COLLISION_HEADINGS
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
@@ -571,8 +572,8 @@ def build_report(machine, plan, *, analysis=None, inputs=(), track_settings=None
 
     # ---- angle settings ----------------------------------------------------------------
     angle_pairs = [
-        ("samples per rev", f"{rs.samples_per_rev} (a power of two, at least 2.56 x order "
-                            f"{rs.max_order:g})"),
+        ("samples per rev", f"{rs.samples_per_rev} (a power of two, at least "
+                            f"{ANALYSER_FACTOR:g} x order {rs.max_order:g})"),
         ("angle-domain Nyquist order", f"{rs.order_nyquist:g}"),
         ("highest order of interest", f"{rs.max_order:g}"),
         ("order resolution", f"{rs.order_resolution:g} orders"),
@@ -881,10 +882,12 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
         if v is not None and k not in ("samples_per_rev", "revs_per_block", "machine"):
             pairs.append((k.replace("_", " "), v if isinstance(v, str) else repr(v)))
     head = key_value_html(pairs, css_class="run-summary")
+    from workbench.runs.run import describe_log_entry
+
     log = tuple(getattr(getattr(analysis, "first", analysis), "log", ()) or ())
     if log:
         head += "<details><summary>processing log</summary><ul class=\"notes\">" + "".join(
-            f"<li>{esc(entry)}</li>" for entry in log) + "</ul></details>"
+            f"<li>{esc(describe_log_entry(entry))}</li>" for entry in log) + "</ul></details>"
 
     # tacho check
     t0, t1 = float(sa.pulse_times_s[0]), float(sa.pulse_times_s[-1])
@@ -926,12 +929,13 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
 
         # order spectrum and peaks
         res = 1.0 / float(analysis.revs_per_block)
+        top = analysis.top_order   # the figures' order range: the order kept by the tracking
         peaks = analysis.peaks.copy()
         peaks["nearest"] = [_nearest_direct(o, lines, max(2 * res, 0.02)) for o in peaks["order"]]
         peaks = peaks.sort_values("amplitude", ascending=False)
         ident = getattr(analysis, "identification", None)
         fig = plot_order_spectrum(analysis.spectrum, peaks=analysis.peaks, lines=lines, unit=unit,
-                                  overlay=overlay, identification=ident, valid=valid,
+                                  overlay=overlay, identification=ident, valid=valid, max_order=top,
                                   rpm_range=(float(sa.rpm_min), float(sa.rpm_max)), log=not db,
                                   **shown)
         spec_html = figure_svg(fig, key="order-spectrum" + sfx, caption="Order spectrum averaged over "
@@ -959,7 +963,7 @@ def _run_sections(analysis, lines, track_settings, sections, *, criticals=None, 
         unmatched = getattr(analysis, "unmatched", None)
         fig = plot_order_map(analysis.order_map, lines=lines, rate_hz=analysis.rate_hz,
                              identification=ident, unit=unit, overlay=overlay, unmatched=unmatched,
-                             valid=valid, db=db, **shown)
+                             valid=valid, db=db, max_order=top, **shown)
         caption = ("Order map as measured" if overlay == "none" else
                    "Order map with the predicted lines ("
                    + ("those matched to measured ridges" if overlay == "matched" else "all") +
@@ -1208,24 +1212,34 @@ def write_report(machine_path, plan_path, run_path=None, *, out, force=False, tr
         side = sidecar_path(run_path)
         if side.is_file():
             inputs.append(InputFile.of("run sidecar", side))
-        settings = dict(track_options or {})
+        from workbench.runs.settings import TrackingSettings
+
+        options = dict(track_options or {})
+        keep = {k: options.pop(k) for k in ("channels", "channel", "rate_hz") if k in options}
         if analysis is not None:
-            settings.update(samples_per_rev=analysis.samples_per_rev,
-                            revs_per_block=analysis.revs_per_block)
-        rs = angle_settings(machine, plan)
-        settings.setdefault("samples_per_rev", rs.samples_per_rev)
-        settings.setdefault("revs_per_block", rs.revs_per_block)
-        if not settings.get("cut_orders"):
-            settings["cut_orders"] = default_cut_orders(
-                machine, plan, max_order=settings["samples_per_rev"] / 2.56)
-        if analysis is None:
+            first = getattr(analysis, "first", analysis)
+            st = first.settings if getattr(first, "settings", None) is not None else \
+                TrackingSettings.for_plan(machine, plan, **{
+                    **options, "samples_per_rev": first.samples_per_rev,
+                    "revs_per_block": first.revs_per_block})
+        else:
+            st = TrackingSettings.for_plan(machine, plan, **options)
             if progress:
                 progress(f"tracking {run_path}")
-            multi = track_channels(run_path, machine=machine, **settings)
+            multi = track_channels(run_path, machine=machine, plan=plan, settings=st,
+                                   channels=keep.get("channels", keep.get("channel")),
+                                   rate_hz=keep.get("rate_hz"))
             analysis = multi.channels[0] if len(multi) == 1 else multi
+            st = multi.channels[0].settings
             from workbench.runs.tacho_checks import warn_tacho
 
-            warn_tacho(run_path, multi.channels[0], settings, plan=plan)
+            warn_tacho(run_path, multi.channels[0], {**st.speed_options, **keep}, plan=plan)
+        # the settings table: the settings the run was tracked with (cut orders as cut)
+        shown = st.to_dict()
+        for k in ("aa_filter", "rf_map", "threads") + (() if st.integrate else ("integrate_from_hz",)):
+            shown.pop(k, None)
+        settings = {**keep, **shown}
+        settings["cut_orders"] = tuple(st.cut_orders)
         if progress:
             progress("order tracks with phase and critical speeds")
         crit = _run_criticals(run_path, machine, settings)

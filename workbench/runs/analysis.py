@@ -1,6 +1,8 @@
 """Track a recorded run end to end: speed, order spectrum, order map, cuts, aliases.
 
-One function, :func:`track_run`, strings the angle layer together the way an analyst would:
+One function, :func:`track_run`, strings the angle layer together the way an analyst would
+(stage by stage, :class:`~workbench.runs.pipeline.TrackingPipeline`, with the settings of a
+:class:`~workbench.runs.settings.TrackingSettings`):
 the speed from the tacho (or from a known speed), computed order tracking with alias
 protection, the averaged order spectrum and the order map from the same stream, order cuts,
 an envelope order spectrum on request, the frequency map, and, when the machine is known,
@@ -14,51 +16,24 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from workbench.angle import (OrderAnalysis, PulseDetector, ShaftAngle, envelope_order_spectrum,
-                             find_order_peaks, iter_resample_to_angle, order_cut, frequency_map,
-                             tacho_angle)
-from workbench.angle.tracking import iter_resample_to_angle_channels, resolve_threads
-from workbench.angle.matching import identify_order_map, unmatched_ridges
-from workbench.angle.pulse_timing import speed_tolerance_for
+from workbench.angle import PulseDetector, ShaftAngle, tacho_angle
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
-from workbench.runs.files import read_run
 from workbench.runs.run import Run
+from workbench.runs.settings import TrackingSettings, usable_max_order
 
 __all__ = ["RunAnalysis", "MultiRunAnalysis", "track_run", "track_channels", "vibration_channels",
            "run_speed", "run_speed_estimate", "SPEED_OPTIONS", "CHUNK_S", "CHANNEL_KEYS"]
 
 #: Seconds of the record read per chunk while streaming.
 CHUNK_S = 8.0
-
-#: Allowed samples per revolution.  2**16 resolves orders up to about 25,000, beyond any
-#: machine line; larger values only make the tracker's blocks (revolutions x samples_per_rev
-#: values each) exhaust memory.
-MIN_SAMPLES_PER_REV = 8
-MAX_SAMPLES_PER_REV = 1 << 16
-
-#: Revolutions per block when neither the caller nor a plan gives an order resolution.
-DEFAULT_REVS_PER_BLOCK = 16
-
-#: Most rows an order map or frequency map keeps; longer records are averaged (on power)
-#: into this many rpm bins while they stream, so a map's memory does not grow with the record.
-MAX_MAP_ROWS = 800
-
-#: Longest time block of the frequency map, samples (frequency bins = half of it).
-MAX_RF_NPERSEG = 8192
-
-
-def _map_bins(angle, n_blocks: float):
-    """rpm bin edges for a streamed map when a record has more blocks than MAX_MAP_ROWS."""
-    if n_blocks <= MAX_MAP_ROWS:
-        return None
-    lo, hi = float(angle.rpm_min), float(angle.rpm_max)
-    return np.linspace(lo, max(hi, lo * (1 + 1e-9) + 1e-9), MAX_MAP_ROWS + 1)
+#: The tracking settings' names, accepted as keyword options by :func:`track_run`.
+_SETTING_NAMES = tuple(f.name for f in fields(TrackingSettings))
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,7 +63,7 @@ class RunAnalysis:
     envelope_hz : tuple or None
     order_map : OrderMap
     cuts : tuple of OrderCut
-    rf_map : RpmFrequencyMap or None
+    rf_map : FrequencyMap or None
     identification : Identification or None
     lines : tuple of Line
         The machine's predicted lines the identification used (empty without a machine).
@@ -108,9 +83,16 @@ class RunAnalysis:
         Set by :func:`~workbench.runs.scaled.scaled_analysis` when the amplitudes are shown
         RMS, in dB or integrated (``unit`` is then the shown unit, ``channel_unit`` the
         channel's own).
+    settings : TrackingSettings or None
+        The settings the run was tracked with (``cut_orders`` as cut, after the default rule).
+    max_order : float or None
+        The highest order kept (:attr:`top_order`).
     doubted : pandas.DataFrame
         Tacho pulses the processing doubted (time_s, reason).
-    log : tuple of str
+    log : tuple of (str, str, dict)
+        Processing log in the run's shape (:data:`~workbench.runs.run.LogEntry`): the run's own
+        entries (reading it, ...) then each stage's (``speed``, ``angle``, ``spectra``,
+        ``cuts``, ``identify``).
     speed_estimate : SpeedEstimate or None
         For the speed sources ``"vibration"`` and ``"channel"``: the speed on its time grid with
         its uncertainty per point.
@@ -145,6 +127,15 @@ class RunAnalysis:
     cut_band_lines: tuple = ()
     scaling: object = None
     channel_unit: str | None = None
+    settings: object = None
+    max_order: float | None = None
+
+    @property
+    def top_order(self) -> float:
+        """Highest order kept in the spectrum and the map (the figures' order range)."""
+        if self.max_order is not None:
+            return float(self.max_order)
+        return usable_max_order(self.samples_per_rev)
 
     @property
     def rpm_min(self) -> float:
@@ -184,6 +175,7 @@ class RunAnalysis:
             "revolutions": self.revolutions,
             "samples_per_rev": int(self.samples_per_rev),
             "revs_per_block": float(self.revs_per_block),
+            "max_order": self.top_order,
             "order_spectrum": {
                 "order": [float(v) for v in self.spectrum.order],
                 "amplitude": [float(v) for v in self.spectrum.amplitude],
@@ -304,13 +296,6 @@ def unmatched_records(table) -> list:
          "amplitude_max": num(r.amplitude_max)}
         for r in table.itertuples()
     ]
-
-
-def _peaks_frame(peaks) -> pd.DataFrame:
-    return pd.DataFrame(
-        {"order": np.asarray(peaks.order), "amplitude": np.asarray(peaks.amplitude),
-         "prominence_db": np.asarray(peaks.prominence_db)}
-    )
 
 
 def _channel_index(run: Run, ch, option: str) -> int:
@@ -531,6 +516,15 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
 
         t, r = read_speed_table(speed_table)
         return ShaftAngle.from_speed_table(t, r), "speed table"
+    pulses, name = tacho_pulses(run, tacho, chunk)
+    return tacho_fit(run, pulses, name, pulses_per_rev=pulses_per_rev,
+                     missing_pulses=missing_pulses, speed_tolerance=speed_tolerance), "tacho"
+
+
+def tacho_pulses(run: Run, tacho=None, chunk=None):
+    """The tacho channel's pulse times (s), detected chunk by chunk, and the channel's name."""
+    if chunk is None:
+        chunk = max(4096, int(CHUNK_S * run.rate_hz))
     tacho_ch = tacho if tacho is not None else run.tacho
     if tacho_ch is None:
         raise RunFileError(
@@ -539,15 +533,23 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
             "--speed-range LO,HI (from the vibration) or --speed-channel CH --speed-scale S"
         )
     name = run.channels[_channel_index(run, tacho_ch, "--tacho")].name
-    ppr = run.pulses_per_rev if pulses_per_rev is None else int(pulses_per_rev)
-    miss = run.missing_pulses if missing_pulses is None else int(missing_pulses)
     try:
         detector = PulseDetector(run.rate_hz)
         for piece in run.iter_chunks(name, chunk):
             detector.feed(piece)
-        pulses = detector.finish()
+        return detector.finish(), name
+    except (TachoError, InputError) as exc:  # say which file and channel the speed came from
+        raise type(exc)(f"{run.source or '<memory>'}: tacho channel '{name}': {exc}") from None
+
+
+def tacho_fit(run: Run, pulses, name, *, pulses_per_rev=None, missing_pulses=None,
+              speed_tolerance=None) -> ShaftAngle:
+    """The shaft angle through a run's tacho pulses (the wheel defaults to the sidecar's)."""
+    ppr = run.pulses_per_rev if pulses_per_rev is None else int(pulses_per_rev)
+    miss = run.missing_pulses if missing_pulses is None else int(missing_pulses)
+    try:
         return tacho_angle(pulses, pulses_per_rev=ppr, missing_pulses=miss,
-                           speed_tolerance=speed_tolerance, sample_rate_hz=run.rate_hz), "tacho"
+                           speed_tolerance=speed_tolerance, sample_rate_hz=run.rate_hz)
     except (TachoError, InputError) as exc:  # say which file and channel the speed came from
         raise type(exc)(f"{run.source or '<memory>'}: tacho channel '{name}': {exc}") from None
 
@@ -567,35 +569,19 @@ def _machine_for(run: Run, machine):
     return None
 
 
-def track_run(
-    run_or_path,
-    *,
-    machine=None,
-    channel=None,
-    tacho=None,
-    pulses_per_rev=None,
-    missing_pulses=None,
-    rpm=None,
-    speed_table=None,
-    speed_tolerance=None,
-    speed_order=None,
-    speed_range=None,
-    speed_channel=None,
-    speed_scale=None,
-    rate_hz=None,
-    samples_per_rev=256,
-    revs_per_block=None,
-    max_order=None,
-    envelope_hz=None,
-    protect=True,
-    cut_orders=(),
-    cut_bandwidth_orders=None,
-    rf_map=True,
-    progress=None,
-    threads=1,
-    overall_band_hz=None,
-    aa_filter=None,
-) -> RunAnalysis:
+def _settings_from(settings, options: dict) -> TrackingSettings:
+    """The settings of a call: ``settings`` (or the defaults) with the keyword options on top."""
+    unknown = sorted(set(options) - set(_SETTING_NAMES))
+    if unknown:
+        raise InputError(f"track_channels: unknown option {unknown[0]!r}; allowed: the fields of "
+                         "TrackingSettings (" + ", ".join(_SETTING_NAMES) + ")")
+    if options.get("cut_orders") == ():
+        options.pop("cut_orders")
+    return TrackingSettings.from_options(settings, **options)
+
+
+def track_run(run_or_path, *, machine=None, channel=None, settings=None, rate_hz=None,
+              progress=None, plan=None, **options) -> RunAnalysis:
     """Track one channel of a run in the angle domain and analyse it.
 
     The same as :func:`track_channels` with one channel; see it for the parameters
@@ -610,39 +596,14 @@ def track_run(
                                               and channel.strip().lower() == "all"):
         raise InputError(f"channel {channel!r}: track_run tracks one channel; use "
                          "track_channels for several (or all)")
-    return track_channels(
-        run_or_path, channels=None if channel is None else (channel,), machine=machine,
-        rate_hz=rate_hz, samples_per_rev=samples_per_rev, revs_per_block=revs_per_block,
-        max_order=max_order, envelope_hz=envelope_hz, protect=protect, cut_orders=cut_orders,
-        cut_bandwidth_orders=cut_bandwidth_orders, rf_map=rf_map, progress=progress,
-        threads=threads, tacho=tacho, pulses_per_rev=pulses_per_rev,
-        missing_pulses=missing_pulses, rpm=rpm, speed_table=speed_table,
-        speed_tolerance=speed_tolerance, speed_order=speed_order, speed_range=speed_range,
-        speed_channel=speed_channel, speed_scale=speed_scale,
-        overall_band_hz=overall_band_hz, aa_filter=aa_filter,
-    ).channels[0]
+    options.setdefault("threads", 1)
+    return track_channels(run_or_path, channels=None if channel is None else (channel,),
+                          machine=machine, settings=settings, rate_hz=rate_hz,
+                          progress=progress, plan=plan, **options).channels[0]
 
 
-def track_channels(
-    run_or_path,
-    *,
-    channels=None,
-    machine=None,
-    rate_hz=None,
-    samples_per_rev=256,
-    revs_per_block=None,
-    max_order=None,
-    envelope_hz=None,
-    protect=True,
-    cut_orders=(),
-    cut_bandwidth_orders=None,
-    rf_map=True,
-    progress=None,
-    threads=None,
-    overall_band_hz=None,
-    aa_filter=None,
-    **speed_options,
-) -> MultiRunAnalysis:
+def track_channels(run_or_path, *, channels=None, machine=None, settings=None, rate_hz=None,
+                   progress=None, plan=None, **options) -> MultiRunAnalysis:
     """Track one or many channels of a run in the angle domain against one speed, and analyse
     each.
 
@@ -655,6 +616,11 @@ def track_channels(
     ----------
     run_or_path : Run or path-like
         The run, or its file (WAV, CSV, NPZ or MAT, with its sidecar).
+    settings : TrackingSettings, optional
+        How to track (default ``TrackingSettings()``); the keyword options below, when given,
+        replace its fields (they are the fields of :class:`TrackingSettings`).
+    plan : Plan, optional
+        For the default cut orders (:func:`~workbench.runs.settings.default_cut_orders`).
     machine : Machine or path-like, optional
         The machine, for the identification of measured ridges with predicted lines; default
         the sidecar's ``machine_file``.
@@ -707,186 +673,12 @@ def track_channels(
     .. [2] R. B. Randall and J. Antoni, "Rolling element bearing diagnostics - A tutorial",
        Mechanical Systems and Signal Processing 25(2):485-520, 2011.
     """
-    run = run_or_path if isinstance(run_or_path, Run) else read_run(run_or_path, rate_hz=rate_hz)
-    source = run.source or "<memory>"
-    spr = int(samples_per_rev)
-    if not MIN_SAMPLES_PER_REV <= spr <= MAX_SAMPLES_PER_REV or spr != samples_per_rev:
-        raise InputError(f"--samples-per-rev {samples_per_rev!r}: must be a whole number from "
-                         f"{MIN_SAMPLES_PER_REV} to {MAX_SAMPLES_PER_REV}")
-    rpb = DEFAULT_REVS_PER_BLOCK if revs_per_block is None else float(revs_per_block)
-    if not math.isfinite(rpb) or rpb <= 0:
-        raise InputError(f"--revs-per-block {revs_per_block!r}: must be a positive number of revolutions")
-    top = spr / 2.56 if max_order is None else float(max_order)
-    if envelope_hz is not None:
-        lo, hi = (float(v) for v in envelope_hz)
-        if not (0 < lo < hi < run.rate_hz / 2):
-            raise InputError(
-                f"--envelope {lo:g},{hi:g}: the band must satisfy 0 < lo < hi < Nyquist ({run.rate_hz / 2:g} Hz)"
-            )
-        envelope_hz = (lo, hi)
-    unknown = sorted(set(speed_options) - set(SPEED_OPTIONS))
-    if unknown:
-        raise InputError(f"track_channels: unknown option {unknown[0]!r}; allowed: the tracking "
-                         f"options and the speed options {', '.join(SPEED_OPTIONS)}")
-    threads = resolve_threads(threads, "--threads")
-    chunk = max(4096, int(CHUNK_S * run.rate_hz))
-    speed_options = dict(speed_options)
-    if speed_options.get("speed_tolerance") is None:
-        speed_options["speed_tolerance"] = speed_tolerance_for(top, rpb)
-    rows = vibration_channels(run, channels, tacho=speed_options.get("tacho"),
-                              speed_channel=speed_options.get("speed_channel"))
-    names = [run.channels[i].name for i in rows]  # Run methods take names or 1-based indices
-    estimate = run_speed_estimate(
-        run, chunk=chunk, channel=names[0],
-        **{k: v for k, v in speed_options.items() if k != "speed_tolerance"})
-    if estimate is not None:
-        angle, speed_source = estimate.angle, estimate.source
-    else:
-        angle, speed_source = run_speed(run, chunk=chunk, **speed_options)
-    rpm, speed_table = speed_options.get("rpm"), speed_options.get("speed_table")
-    if not angle.rpm_max / 60.0 < run.rate_hz / 2.0:  # even order 1 would lie above Nyquist
-        given = {"rpm": f"--rpm {rpm}", "speed table": f"--speed-table {speed_table}"}.get(
-            speed_source, f"{source}: {speed_source}")
-        raise InputError(f"{given}: the speed reaches {angle.rpm_max:g} rpm, where order 1 "
-                         f"({angle.rpm_max / 60.0:g} Hz) lies above the run's Nyquist frequency "
-                         f"{run.rate_hz / 2.0:g} Hz; allowed: speeds below "
-                         f"{30.0 * run.rate_hz:g} rpm")
-    head = [f"speed from {speed_source}: {angle.rpm_min:.1f}-{angle.rpm_max:.1f} rpm, {angle.revolutions:.1f} rev"]
-    if getattr(angle, "timing", None) is not None:
-        head.append(f"tacho timing: {angle.timing.describe()}")
-        if math.isfinite(angle.timing.angle_uncertainty_rev):
-            head.append(f"phase uncertainty at order {top:g}: "
-                        f"{360.0 * top * angle.timing.angle_uncertainty_rev:.2g} deg RMS")
-    if len(angle.stretches) > 1:
-        head.append("speed unknown between the stretches " + ", ".join(
-            f"{a:.3f}-{b:.3f} s" for a, b in angle.stretches) + "; each tracked on its own")
-    if estimate is not None:
-        head.append(f"speed: {estimate.method}; uncertainty "
-                    f"{100 * estimate.speed_uncertainty:.3g} % RMS")
-    n_total = run.n_samples
+    from workbench.runs.pipeline import TrackingPipeline
 
-    def chunks():
-        done = 0
-        # Single precision: the tracker filters in single precision (rounding -140 dB).
-        for piece in run.iter_chunks_many(names, chunk, dtype=np.float32):
-            done += piece.shape[-1]
-            yield piece
-            if progress is not None:
-                progress(min(1.0, done / n_total))
-
-    # Blocks overlap by half (OrderAnalysis default): about 2 x revolutions / rpb of them.
-    accs = [OrderAnalysis(revs_per_block=rpb, max_order=top, keep_map=True,
-                          rpm_bins=_map_bins(angle, 2.0 * angle.revolutions / rpb))
-            for _ in names]
-    # Several channels on several threads: each channel's spectra are fed on the pool (in
-    # order, one task per channel and piece), while the tracker's own pool works ahead.
-    pool = None
-    if threads > 1 and len(accs) > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        pool = ThreadPoolExecutor(max_workers=threads, thread_name_prefix="foldline-spectra")
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always", FoldlineWarning)
-            for pieces in iter_resample_to_angle_channels(chunks, run.rate_hz, angle, samples_per_rev=spr,
-                                                    protect=protect, threads=threads):
-                if pool is None:
-                    for acc, piece in zip(accs, pieces):
-                        acc.feed(piece)
-                else:
-                    for f in [pool.submit(acc.feed, piece) for acc, piece in zip(accs, pieces)]:
-                        f.result()
-            spectra = [acc.spectrum() for acc in accs]
-            omaps = [acc.order_map() for acc in accs]
-    finally:
-        if pool is not None:
-            pool.shutdown(wait=True)
-    track_warnings = [f"warning: {w.message}" for w in caught]
-    mach = _machine_for(run, machine)
-    lines = () if mach is None else tuple(mach.lines())
-    doubted = angle.doubted.to_frame() if hasattr(angle.doubted, "to_frame") else pd.DataFrame(
-        {"time_s": [], "reason": []}
-    )
-    out = []
-    for row, vib, acc, spectrum, omap in zip(rows, names, accs, spectra, omaps):
-        log = head + track_warnings + list(acc.log)
-        out.append(_analyse_channel(
-            run, vib, run.channels[row].unit, angle, speed_source, spr, rpb, spectrum, omap, log,
-            mach=mach, lines=lines, doubted=doubted, envelope_hz=envelope_hz, cut_orders=cut_orders,
-            cut_bandwidth_orders=cut_bandwidth_orders, rf_map=rf_map, chunk=chunk, protect=protect,
-            source=source, estimate=estimate, overall_band_hz=overall_band_hz,
-            aa_filter=aa_filter))
-    return MultiRunAnalysis(tuple(out), threads=threads)
-
-
-def _analyse_channel(run, vib, unit, angle, speed_source, spr, rpb, spectrum, omap, log, *, mach,
-                     lines, doubted, envelope_hz, cut_orders, cut_bandwidth_orders, rf_map, chunk,
-                     protect, source, estimate=None, overall_band_hz=None,
-                     aa_filter=None) -> RunAnalysis:
-    """Peaks, cuts, envelope, frequency map and identification of one tracked channel."""
-    peaks = _peaks_frame(find_order_peaks(spectrum, n=10))
-    orders = tuple(cut_orders) if cut_orders else tuple(
-        dict.fromkeys([1.0] + [round(float(o), 3) for o in peaks["order"].head(3) if o > 0])
-    )
-    cuts = []
-    for o in orders:
-        if o + 0.5 * (cut_bandwidth_orders or 4.0 / spectrum.revs_per_block) <= omap.order[-1]:
-            cuts.append(order_cut(omap, o, bandwidth_orders=cut_bandwidth_orders))
-    envelope, env_peaks = None, pd.DataFrame({"order": [], "amplitude": [], "prominence_db": []})
-    if envelope_hz is not None:
-        x = np.asarray(run.channel(vib), dtype=float)
-        envelope = envelope_order_spectrum(x, run.rate_hz, angle, band_hz=envelope_hz, revs_per_block=rpb)
-        del x
-        env_peaks = _peaks_frame(find_order_peaks(envelope, n=10))
-        log.append(f"envelope order spectrum, band {envelope_hz[0]:g}-{envelope_hz[1]:g} Hz")
-    rfm = None
-    if rf_map:
-        nperseg = min(MAX_RF_NPERSEG, 1 << max(8, int(round(math.log2(max(run.rate_hz * 0.5, 256.0))))))
-        if run.n_samples >= 2 * nperseg:
-            bins = _map_bins(angle, 2.0 * run.n_samples / nperseg)
-            rfm = frequency_map(run.iter_chunks(vib, chunk), run.rate_hz, angle, nperseg=nperseg,
-                                    rpm_bins=bins)
-    overall = _overall(run, vib, chunk, angle, omap, rpb, overall_band_hz)
-    ident = None
-    if mach is not None:
-        ident = identify_order_map(omap, mach, run.rate_hz, samples_per_rev=spr)
-        log.append(f"identified {len(ident.table)} predicted lines, {len(ident.aliases)} of them aliases")
-        unmatched = ident.unmatched
-    else:
-        unmatched = unmatched_ridges(omap, samples_per_rev=spr)
-    from workbench.angle.validity import valid_region
-
-    valid = valid_region(run.rate_hz, aa_filter)
-    shared = _cut_band_lines(cuts, mach, run.rate_hz, log)
-    return RunAnalysis(
-        source=str(source),
-        rate_hz=float(run.rate_hz),
-        channel=vib,
-        unit=unit,
-        shaft_angle=angle,
-        speed_source=speed_source,
-        samples_per_rev=spr,
-        revs_per_block=float(spectrum.revs_per_block),
-        duration_s=float(run.duration_s),
-        spectrum=spectrum,
-        peaks=peaks,
-        envelope=envelope,
-        envelope_peaks=env_peaks,
-        envelope_hz=envelope_hz,
-        order_map=omap,
-        cuts=tuple(cuts),
-        rf_map=rfm,
-        identification=ident,
-        lines=lines,
-        doubted=doubted,
-        protect=bool(protect),
-        log=tuple(log),
-        speed_estimate=estimate,
-        unmatched=unmatched,
-        overall=overall,
-        valid=valid,
-        cut_band_lines=shared,
-    )
+    st = _settings_from(settings, options)
+    pipe = TrackingPipeline(run_or_path, st, machine=machine, plan=plan, channels=channels,
+                            rate_hz=rate_hz, progress=progress)
+    return pipe.analysis()
 
 
 def _cut_band_lines(cuts, mach, rate_hz, log) -> tuple:
@@ -925,23 +717,3 @@ def _cut_band_lines(cuts, mach, rate_hz, log) -> tuple:
         warnings.warn(msg, FoldlineWarning, stacklevel=3)
         log.append(f"warning: {msg}")
     return tuple(found)
-
-
-def _overall(run, vib, chunk, angle, omap, rpb, band_hz):
-    """Overall RMS in the order map's rpm rows; blocks short enough that each row gets one."""
-    from workbench.angle.overall import default_block_samples, overall_level
-
-    if band_hz is not None:
-        lo, hi = (float(v) for v in band_hz)
-        if not 0 <= lo < hi <= run.rate_hz / 2:
-            raise InputError(f"--overall-band {lo:g},{hi:g}: the band must satisfy 0 <= LO < HI <= "
-                             f"Nyquist ({run.rate_hz / 2:g} Hz)")
-        band_hz = (lo, hi)
-    # rows of the map are half a block (rpb / 2 revolutions) apart; at the top speed that is
-    row_s = 0.5 * rpb * 60.0 / max(float(angle.rpm_max), 1e-9)
-    n = 1 << max(8, int(math.floor(math.log2(max(run.rate_hz * row_s, 256.0)))))
-    n = min(n, default_block_samples(run.rate_hz))
-    if run.n_samples < n:
-        return None
-    return overall_level(run.iter_chunks(vib, chunk), run.rate_hz, angle, rpm_rows=omap.rpm,
-                         band_hz=band_hz, block_samples=n)

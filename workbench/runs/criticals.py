@@ -25,9 +25,10 @@ from workbench.angle.order_tracks import (DEFAULT_TRACK_ORDERS, DEFAULT_TRACK_RE
                                           find_track_criticals, order_tracks)
 from workbench.checks import positive, positive_int
 from workbench.errors import FoldlineWarning, InputError
-from workbench.runs.analysis import (CHUNK_S, MAX_RF_NPERSEG, MAX_SAMPLES_PER_REV,
-                                     MIN_SAMPLES_PER_REV, SPEED_OPTIONS, _channel_index,
-                                     _machine_for, _map_bins, _vibration_channel, run_speed)
+from workbench.runs.analysis import (CHUNK_S, SPEED_OPTIONS, _channel_index, _machine_for,
+                                     _vibration_channel, run_speed)
+from workbench.runs.pipeline import MAX_RF_NPERSEG, _map_bins
+from workbench.runs.settings import MAX_SAMPLES_PER_REV, MIN_SAMPLES_PER_REV, usable_max_order
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
@@ -65,7 +66,7 @@ class RunCriticals:
     units : dict
         Channel name -> unit.
     operating_rpm : (float, float) or None
-    rf_map : RpmFrequencyMap or None
+    rf_map : FrequencyMap or None
         Of the first channel (for the Campbell diagram).
     machine : Machine or None
     samples_per_rev, revs_per_block : int, float
@@ -210,9 +211,9 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
     rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else positive(
         None, "--revs-per-block", revs_per_block, unit="revolutions")
     orders = tuple(float(o) for o in orders)
-    if max(orders) >= spr / 2.56:
+    if max(orders) >= usable_max_order(spr):
         raise InputError(f"--orders {','.join(f'{o:g}' for o in orders)}: order {max(orders):g} "
-                         f"is beyond the usable {spr / 2.56:g} at {spr} samples/rev; raise "
+                         f"is beyond the usable {usable_max_order(spr):g} at {spr} samples/rev; raise "
                          "--samples-per-rev")
     rows = _channels(run, channel)
     angle, speed_source = run_speed(run, **speed_opts)

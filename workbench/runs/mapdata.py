@@ -73,13 +73,13 @@ class MapData:
 
 
 def map_data(map_obj, *, unit="", amplitude_scaling="peak") -> MapData:
-    """:class:`MapData` of an OrderMap (``order`` axis) or an RpmFrequencyMap (``hz`` axis)."""
+    """:class:`MapData` of an OrderMap (``order`` axis) or an FrequencyMap (``hz`` axis)."""
     if hasattr(map_obj, "order"):
         kind, axis = "order", map_obj.order
     elif hasattr(map_obj, "hz"):
         kind, axis = "frequency", map_obj.hz
     else:
-        raise InputError(f"map of type {type(map_obj).__name__}: give an OrderMap or an RpmFrequencyMap")
+        raise InputError(f"map of type {type(map_obj).__name__}: give an OrderMap or an FrequencyMap")
     rows = np.asarray(map_obj.rpm, dtype=float)
     n = getattr(map_obj, "n_averaged", None)
     n = np.ones(rows.size, dtype=np.int64) if n is None else np.asarray(n, dtype=np.int64)

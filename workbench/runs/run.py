@@ -34,7 +34,7 @@ import numpy as np
 from workbench.checks import FieldError, positive, positive_int, rate_hz, show
 from workbench.errors import InputError
 
-__all__ = ["Channel", "Run", "LogEntry", "full_scale"]
+__all__ = ["Channel", "Run", "LogEntry", "full_scale", "log_entry", "describe_log_entry"]
 
 #: One processing-log entry: (ISO 8601 timestamp, action, parameters).
 LogEntry = tuple[str, str, Mapping[str, Any]]
@@ -122,6 +122,26 @@ class Channel:
 
 def _now_iso() -> str:
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def log_entry(action: str, parameters: Mapping[str, Any] | None = None, **more) -> LogEntry:
+    """One processing-log entry stamped now: ``(ISO 8601 UTC timestamp, action, parameters)``.
+
+    The one shape of every log in the project: a run's (reading it, filters applied) and every
+    result made from it (:class:`~workbench.runs.analysis.RunAnalysis` carries the run's entries
+    and then its own stages').  A human-readable sentence goes in the ``note`` parameter.
+    """
+    return _as_log_entry(str(action), {**dict(parameters or {}), **more})
+
+
+def describe_log_entry(entry: LogEntry) -> str:
+    """One line of text for a log entry: ``action: note (key=value, ...)``."""
+    _stamp, action, params = _as_log_entry(entry, None) if not isinstance(entry, str) else ("", entry, {})
+    params = dict(params)
+    note = params.pop("note", None)
+    text = str(action) + (f": {note}" if note else "")
+    rest = ", ".join(f"{k}={v}" for k, v in params.items() if v is not None)
+    return text + (f" ({rest})" if rest else "")
 
 
 def _as_log_entry(entry: Any, parameters: Mapping[str, Any] | None) -> LogEntry:

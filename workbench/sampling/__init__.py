@@ -22,7 +22,7 @@ _LAZY = {
     "workbench.sampling.resonance": ("CROSSING_COLUMNS", "PEAK_LOSS_LIMIT_DB", "Crossing",
                                      "fastest_sweep_rpm_per_s", "find_crossings",
                                      "passage_loss_db", "passage_peak_ratio"),
-    "workbench.sampling.advisor": ("STANDARD_RATES_HZ", "Advice", "AngleSettings", "advise",
+    "workbench.sampling.advisor": ("ANALYSER_FACTOR", "STANDARD_RATES_HZ", "Advice", "AngleSettings", "advise",
                                    "angle_settings", "min_rate_for"),
 }
 __getattr__, __dir__ = lazy_names(__name__, _LAZY, globals())
@@ -56,6 +56,7 @@ __all__ = [
     "FoldMap",
     "fold_map",
     "find_collisions",
+    "ANALYSER_FACTOR",
     "STANDARD_RATES_HZ",
     "Advice",
     "AngleSettings",

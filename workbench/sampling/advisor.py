@@ -22,7 +22,8 @@ from workbench.checks import positive
 from workbench.errors import FoldlineWarning, InputError
 from workbench.sampling.foldmap import MONOTONE_FILTERS, find_collisions, fold_map
 
-__all__ = ["AngleSettings", "Advice", "advise", "angle_settings", "STANDARD_RATES_HZ"]
+__all__ = ["AngleSettings", "Advice", "advise", "angle_settings", "STANDARD_RATES_HZ",
+           "ANALYSER_FACTOR"]
 
 #: Sample rates commonly offered by acquisition front ends, Hz (common practice, no source):
 #: the 2.56 x binary-span series and the audio-derived series.

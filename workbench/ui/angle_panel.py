@@ -43,6 +43,8 @@ from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_m
 from workbench.plots.angle import OVERLAYS
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
+from workbench.runs.settings import (DEFAULT_SAMPLES_PER_REV, TrackingSettings,
+                                     usable_max_order)
 from workbench.sampling import angle_settings
 from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
                                   html_table, step_card)
@@ -265,13 +267,12 @@ class AngleDomainPanel:
             self._quiet = False
         self.refresh()
 
-    def default_cut_orders(self, samples_per_rev=256) -> tuple:
-        """Order 1 and the mesh orders (first harmonic) of the machine, up to three, that lie
-        below the usable order ``samples_per_rev / 2.56``."""
-        top = samples_per_rev / 2.56
-        orders = [1.0] + [ln.order for ln in self.lines if ln.kind == "mesh" and ln.harmonic == 1
-                          and ln.order is not None and ln.order <= top]
-        return tuple(sorted(list(dict.fromkeys(orders))[:3]))
+    def default_cut_orders(self, samples_per_rev=DEFAULT_SAMPLES_PER_REV) -> tuple:
+        """The orders cut by default: the one rule of
+        :meth:`~workbench.runs.settings.TrackingSettings.cut_orders_for` (order 1 and the lines
+        the plan's bands follow) below the usable order ``samples_per_rev / ANALYSER_FACTOR``."""
+        return TrackingSettings(samples_per_rev=int(samples_per_rev)).cut_orders_for(
+            machine=self.machine, plan=self.plan)
 
     def _orders(self) -> tuple:
         return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
@@ -377,8 +378,8 @@ class AngleDomainPanel:
 
     @property
     def usable_max_order(self) -> float:
-        """Highest order shown: samples per rev / 2.56 (the analyser convention)."""
-        return int(self.samples_per_rev.value) / 2.56
+        """Highest order shown: samples per rev / ANALYSER_FACTOR (the analyser convention)."""
+        return usable_max_order(int(self.samples_per_rev.value))
 
     def refresh(self):
         """Redo what the controls changed; redraw the figure on show."""

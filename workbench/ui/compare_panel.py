@@ -56,7 +56,7 @@ class ComparePanel:
         image = dict(format="png", layout=widgets.Layout(max_width="100%"))
         self.cuts_figure = widgets.Image(value=figure_bytes(plot_compare_cuts(c), dpi=dpi), **image)
         self.overall_figure = widgets.Image(value=figure_bytes(plot_compare_overall(c), dpi=dpi), **image)
-        top = analyses[0].samples_per_rev / 2.56
+        top = analyses[0].top_order
         self.spectra_figure = widgets.Image(value=figure_bytes(plot_compare_spectra(c, max_order=top), dpi=dpi),
                                             **image)
         self.tabs = widgets.Tab(children=[self.cuts_figure, self.overall_figure, self.spectra_figure])

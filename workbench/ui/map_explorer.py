@@ -45,7 +45,7 @@ class MapExplorer:
     valid : ValidRegion, optional
         Shaded on the figures (see :func:`~workbench.plots.angle.plot_order_map`).
     frequency_map, cuts, spectrum : optional
-        More figures of the interactive view: the frequency map (``RpmFrequencyMap``), order
+        More figures of the interactive view: the frequency map (``FrequencyMap``), order
         cuts (``OrderCut`` sequence) and the averaged order spectrum (``OrderSpectrum``, its
         Hz read over ``rpm_range``, default the order map's speeds).
     lines : sequence of Line, optional

@@ -73,16 +73,19 @@ def cmd_batch(args) -> int:
 
 
 def _default_cuts(args, opts) -> tuple:
-    """Order 1 and the plan bands' line orders, when machine and plan are given; else order 1."""
+    """The default cut orders' rule (order 1 and the plan bands' line orders when machine and
+    plan are given), up to the settings' top order."""
+    from workbench.runs.settings import TrackingSettings
+
+    machine = plan = None
     if args.machine and args.plan:
         from workbench.machine import read_machine
-        from workbench.runs.cut_orders import default_cut_orders
         from workbench.sampling import read_plan
 
-        spr = opts.get("samples_per_rev", 256)
-        return default_cut_orders(read_machine(args.machine), read_plan(args.plan),
-                                  max_order=spr / 2.56)
-    return (1.0,)
+        machine, plan = read_machine(args.machine), read_plan(args.plan)
+    st = TrackingSettings.from_options(None, samples_per_rev=opts.get("samples_per_rev"),
+                                       max_order=opts.get("max_order"))
+    return st.cut_orders_for(machine=machine, plan=plan)
 
 
 def _workers(text: str) -> int:

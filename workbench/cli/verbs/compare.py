@@ -66,7 +66,7 @@ def cmd_compare(args) -> int:
         table(pd.DataFrame({"order": comp.order, **{lab: comp.spectra[i] for i, lab in enumerate(comp.labels)}}),
               "compare_spectra.csv")
         table(comp.changes(), "compare_changes.csv")
-        top = analyses[0].samples_per_rev / 2.56
+        top = analyses[0].top_order
         for fig, name in ((plot_compare_cuts(comp), "compare_cuts.png"),
                           (plot_compare_overall(comp), "compare_overall.png"),
                           (plot_compare_spectra(comp, max_order=top), "compare_spectra.png")):

@@ -71,12 +71,13 @@ def cmd_demo(args) -> int:
     analysis = None
     if run_path is not None:
         from workbench.runs.analysis import track_run
+        from workbench.runs.settings import TrackingSettings
 
+        # the plan's angle settings, filter and cut orders: those the report states
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", FoldlineWarning)
-            analysis = track_run(run_path, machine=machine, samples_per_rev=advice.resampling.samples_per_rev,
-                                 revs_per_block=advice.resampling.revs_per_block,
-                                 aa_filter=plan.filter)  # the demo run was made under the plan
+            analysis = track_run(run_path, machine=machine, plan=plan,
+                                 settings=TrackingSettings.for_plan(machine, plan))
         track_dir = out / "run"
         check_out_folder(track_dir, TRACK_FILES, force=args.force)
         figures.extend(str(f) for f in write_track_outputs(analysis, track_dir, force=args.force))

@@ -26,13 +26,11 @@ def cmd_track(args) -> int:
     """Track a recorded run in the angle domain and print (and optionally write) the results."""
     from workbench.cli.display_options import (analysis_options_from_args,
                                                display_options_from_args, scaling_from_args)
-    from workbench.cli.options import track_options_from_args
+    from workbench.cli.options import settings_from_args
     from workbench.runs.analysis import MultiRunAnalysis, track_channels, vibration_channels
     from workbench.runs.files import read_run
     from workbench.runs.scaled import rolloff_corrected, scaled_analysis
 
-    opts = track_options_from_args(args)
-    channels = opts.pop("channels", None)
     out = Path(args.out) if args.out else None
     scaling = scaling_from_args(args)  # checked before the work
     plan = _read_limits_plan(getattr(args, "plan", None))   # its limits and its filter
@@ -40,19 +38,21 @@ def cmd_track(args) -> int:
     if getattr(args, "correct_rolloff", False) and aa_filter is None:
         raise InputError("--correct-rolloff: give the acquisition's plan with --plan PLAN (its filter's "
                          "roll-off is what is taken out)")
-    run = read_run(args.run, rate_hz=opts.pop("rate_hz", None))
-    rows = vibration_channels(run, channels, tacho=opts.get("tacho"),
-                              speed_channel=opts.get("speed_channel"))
+    # The frequency map is only drawn into --out: without it, it is not computed.
+    settings, other = settings_from_args(args, protect=not args.no_protect, max_order=args.max_order,
+                                         rf_map=out is not None, aa_filter=aa_filter,
+                                         **analysis_options_from_args(args))
+    opts = {**settings.speed_options, **other}
+    run = read_run(args.run, rate_hz=other.get("rate_hz"))
+    rows = vibration_channels(run, other.get("channels"), tacho=settings.tacho,
+                              speed_channel=settings.speed_channel)
     folders = {}
     if out is not None:
         folders = channel_folders(out, [run.channels[i].name for i in rows])
         for folder in folders.values():
             check_out_folder(folder, TRACK_FILES, force=args.force)
-    # The frequency map is only drawn into --out: without it, it is not computed.
     multi = track_channels(run, channels=tuple(i + 1 for i in rows), machine=args.machine,
-                           protect=not args.no_protect, max_order=args.max_order,
-                           rf_map=out is not None, aa_filter=aa_filter, **opts,
-                           **analysis_options_from_args(args))
+                           plan=plan, settings=settings)
     chans = []
     for a in multi.channels:
         if getattr(args, "correct_rolloff", False):
@@ -167,7 +167,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     figure(plot_tacho_check(t, sa.rpm_at(t), doubted_times_s=a.doubted["time_s"], doubted_reasons=a.doubted["reason"],
                             title=f"Tacho check: {Path(a.source).name} ({a.speed_source})", **band), "tacho_check.png")
     lines = a.lines or None  # the machine's lines the tracking identified with
-    top = a.samples_per_rev / 2.56
+    top = a.top_order
     sc = getattr(a, "scaling", None)  # amplitudes shown RMS, in dB or integrated
     label = None if sc is None else sc.label(a.channel_unit or "")
     db = sc is not None and sc.db_ref is not None
@@ -192,7 +192,8 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     if getattr(a, "overall", None) is not None:
         from workbench.plots import plot_overall_level
 
-        figure(plot_overall_level(a.overall, unit=a.channel_unit or a.unit, cuts=None if sc else a.cuts,
+        figure(plot_overall_level(a.overall, unit=a.overall.unit or a.channel_unit or a.unit,
+                                  cuts=None if sc else a.cuts,
                                   title=f"Overall level: {Path(a.source).name}, channel {a.channel}"),
                "overall_level.png")
     if a.rf_map is not None:
@@ -294,7 +295,7 @@ def register(subparsers) -> None:
                                                   "([[limit]]) are judged on the run, and its anti-alias filter "
                                                   "bounds the valid region of the results (default: Nyquist of "
                                                   "the run's rate)")
-    p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56)")
+    p.add_argument("--max-order", type=float, metavar="ORDER", help="highest order kept (default samples_per_rev / 2.56, the analyser factor)")
     p.add_argument("--no-protect", action="store_true", help="switch alias protection off (to show what it prevents)")
     p.add_argument("--out", metavar="DIR", help="write tables (CSV) and figures (PNG) into this folder "
                    "(one sub-folder per channel when several are tracked)")
