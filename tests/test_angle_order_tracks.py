@@ -190,7 +190,7 @@ def test_separation_margins():
     assert required_margin_pct(100.0, 1000.0, (1500.0, 1800.0)) == pytest.approx(16.0)
     assert required_margin_pct(100.0, 2500.0, (1500.0, 1800.0)) == pytest.approx(26.0)
     assert required_margin_pct(5.0, 1000.0, (1500.0, 1800.0)) == pytest.approx(17 * (1 - 1 / 3.5))
-    with pytest.raises(InputError, match="operating range"):
+    with pytest.raises(InputError, match=r"operating_rpm = \[1800, 1500\]: must be 0 < LO <= HI"):
         separation_margin_pct(1000.0, (1800.0, 1500.0))
 
 

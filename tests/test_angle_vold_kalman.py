@@ -289,15 +289,15 @@ def test_outside_the_angle_span_the_waveform_is_zero():
 def test_refusals_name_the_field_and_what_is_allowed():
     angle = ShaftAngle.from_rpm(1200.0, 5.0)
     x = np.zeros(5000)
-    with pytest.raises(InputError, match="orders .* allowed: one or more positive orders"):
+    with pytest.raises(InputError, match=r"orders = \[4, -1\]: must be one or more positive orders"):
         extract_orders(x, 1000.0, angle, (4, -1))
     with pytest.raises(InputError, match="given twice"):
         extract_orders(x, 1000.0, angle, (4, 4))
     with pytest.raises(InputError, match="not both"):
         extract_orders(x, 1000.0, angle, 4, bandwidth_hz=1.0, bandwidth_pct=1.0)
-    with pytest.raises(InputError, match="filter_order 4 .* allowed: 1, 2 or 3"):
+    with pytest.raises(InputError, match="filter_order = 4: must be 1, 2 or 3"):
         extract_orders(x, 1000.0, angle, 4, filter_order=4)
-    with pytest.raises(InputError, match="bandwidth_pct .* allowed: 0 < pct < 100"):
+    with pytest.raises(InputError, match="bandwidth_pct = 0.0: must be 0 < pct < 100"):
         extract_orders(x, 1000.0, angle, 4, bandwidth_pct=0.0)
     with pytest.raises(InputError, match="no samples inside the shaft angle's span"):
         extract_orders(x, 1000.0, ShaftAngle.from_rpm(1200.0, 5.0, start_s=100.0), 4)

@@ -93,7 +93,7 @@ def test_cutoff_at_or_above_nyquist_is_refused_by_the_command(tmp_path, capsys):
     code = main(["foldmap", str(MACHINE), str(tmp_path / "p.toml"), "--rate", "5120"])
     err = capsys.readouterr().err
     assert code == 2 and err.count("\n") == 1
-    assert "[acquisition]: cutoff: 0.6 x rate lies at or above Nyquist (0.5 x rate)" in err
+    assert "[acquisition]: cutoff = 0.6: lies at or above Nyquist (0.5 x rate)" in err
 
 
 def test_cutoff_above_nyquist_is_refused_by_the_fold_map_panel():

@@ -12,7 +12,7 @@ import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "workbench"
 #: The ground floor and the core, lowest first: each imports only those before it (and itself).
-ORDER = ["errors", "choices", "_lazy", "checks", "fileio", "machine", "sampling", "angle", "runs"]
+ORDER = ["errors", "choices", "_lazy", "checks", "fileio", "htmltable", "machine", "sampling", "angle", "runs"]
 #: The presentation packages and the other presentation packages each may import (besides the
 #: whole core).  Nothing imports ``cli`` but the notebook panels, which read order lists with
 #: its parser; ``report`` and ``batch`` are libraries the command calls, not the other way.

@@ -130,14 +130,14 @@ def test_plan_file_limits_round_trip_and_errors_name_file_entry_field(tmp_path):
     assert read_plan(path).limits == plan.limits
     assert plan_from_dict(plan_to_dict(plan)) == plan
     bad = [
-        ({"name": "x", "band": "nope", "max": 1}, "[[limit]] 'x': band: the plan has no [[band]] named 'nope'"),
+        ({"name": "x", "band": "nope", "max": 1}, "[[limit]] 'x': band = \"nope\": the plan has no [[band]] of this name"),
         ({"name": "x", "order": 5, "max": 1}, "[[limit]] 'x': bandwidth: is required"),
         ({"name": "x", "max": 1}, "[[limit]] 'x': band/order: give exactly one"),
         ({"name": "x", "band": "order 5 band", "order": 5, "bandwidth": 1, "max": 1}, "got both"),
-        ({"name": "x", "order": 5, "bandwidth": 1, "max": 0}, "[[limit]] 'x': max:"),
+        ({"name": "x", "order": 5, "bandwidth": 1, "max": 0}, "[[limit]] 'x': max = 0: must be above 0"),
         ({"name": "x", "order": 5, "bandwidth": 1}, "[[limit]] 'x': max: is required"),
-        ({"name": "x", "order": 5, "bandwidth": 1, "max": 1, "amplitude": "RMS"}, "amplitude: must be one of peak, rms"),
-        ({"name": "x", "order": 5, "bandwidth": 1, "max": 1, "rpm": [900, 600]}, "rpm: must satisfy"),
+        ({"name": "x", "order": 5, "bandwidth": 1, "max": 1, "amplitude": "RMS"}, "amplitude = \"RMS\": must be one of peak, rms"),
+        ({"name": "x", "order": 5, "bandwidth": 1, "max": 1, "rpm": [900, 600]}, "rpm = [900, 600]: must satisfy"),
         ({"name": "x", "order": 5, "bandwidth": 1, "max": 1, "maximum": 2}, "maximum: unknown key"),
     ]
     for entry, words in bad:

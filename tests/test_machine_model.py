@@ -576,10 +576,10 @@ def test_line_hz_at_order_and_fixed():
         ({}, r"give exactly one of order"),
         ({"order": -1.0}, r"order = -1.0: must be a positive number"),
         ({"hz": math.inf}, r"hz = inf: must be a positive number \(not inf or nan\)"),
-        ({"order": 1.0, "kind": "blade"}, r"kind = 'blade': must be one of shaft, mesh"),
+        ({"order": 1.0, "kind": "blade"}, r'kind = "blade": must be one of shaft, mesh'),
         ({"order": 1.0, "harmonic": 0}, r"harmonic = 0: must be a positive integer"),
         ({"order": 1.0, "level_db": "3"}, r"level_db = \"3\": must be a finite number"),
-        ({"order": 1.0, "name": ""}, r"line name = '': must be a non-empty string"),
+        ({"order": 1.0, "name": ""}, r'line name = "": must be a non-empty string'),
     ],
 )
 def test_line_validation(kwargs, match):

@@ -38,11 +38,11 @@ def test_sidecar_metadata_round_trip(tmp_path):
 
 
 @pytest.mark.parametrize("change, words", [
-    ({"date": "30.11.2026"}, "date: '30.11.2026' is not a date; allowed: an ISO 8601 date"),
-    ({"operator": 7}, "operator: 7 is not valid; allowed: a text in quotes"),
+    ({"date": "30.11.2026"}, 'date = "30.11.2026": is not a date; allowed: an ISO 8601 date'),
+    ({"operator": 7}, "operator = 7: must be a text in quotes"),
     ({"serial": "x"}, "unknown key 'serial'"),
     ({"channels": [{"name": "vib", "positon": "x"}]}, "unknown key 'positon' (did you mean 'position'?)"),
-    ({"channels": [{"name": "vib", "direction": ["x"]}]}, "channels[1]: direction: ['x'] is not valid"),
+    ({"channels": [{"name": "vib", "direction": ["x"]}]}, 'channels[1]: direction = ["x"]: must be a text in quotes'),
 ])
 def test_sidecar_metadata_errors_name_the_field(change, words):
     d = dict(SIDE, **change)

@@ -88,16 +88,16 @@ def test_one_dimensional_data_is_one_channel_view():
         ({"data": [[1.0]]}, "must be a numpy array"),
         ({"data": np.zeros((1, 2, 3))}, r"shape \(1, 2, 3\)"),
         ({"data": np.zeros((1, 3), dtype=np.uint8)}, "dtype uint8"),
-        ({"rate_hz": 0.0}, "rate_hz 0.0 is not valid"),
-        ({"rate_hz": float("nan")}, "rate_hz nan"),
-        ({"rate_hz": True}, "rate_hz True"),
+        ({"rate_hz": 0.0}, r"^rate_hz = 0\.0: must be a positive, finite sample rate \(Hz\)$"),
+        ({"rate_hz": float("nan")}, "rate_hz = nan: must be a positive"),
+        ({"rate_hz": True}, "rate_hz = true: must be a positive"),
         ({"channels": "a"}, "sequence of Channel"),
         ({"channels": ["a", "b"]}, "2 channel.s. given for data with 1 rows"),
         ({"data": np.zeros((2, 3)), "channels": ["a", "a"]}, "repeated: a"),
-        ({"pulses_per_rev": 0}, "pulses_per_rev 0"),
-        ({"pulses_per_rev": 2.0}, "pulses_per_rev 2.0"),
-        ({"pulses_per_rev": 60, "missing_pulses": 60}, "missing_pulses 60.*0 to .* 59"),
-        ({"missing_pulses": -1}, "missing_pulses -1"),
+        ({"pulses_per_rev": 0}, "pulses_per_rev = 0: must be a positive integer"),
+        ({"pulses_per_rev": 2.0}, r"pulses_per_rev = 2\.0: must be a positive integer \(.*; got a number\)"),
+        ({"pulses_per_rev": 60, "missing_pulses": 60}, "missing_pulses = 60: must be an integer from 0 to 59"),
+        ({"missing_pulses": -1}, "missing_pulses = -1: must be an integer >= 0"),
         ({"log": [("only", "two", "three", "four")]}, "log entry"),
     ],
 )
@@ -111,12 +111,13 @@ def test_run_validation(kw, match):
 @pytest.mark.parametrize(
     ("kw", "match"),
     [
-        ({"name": ""}, "channel name '' is not valid"),
-        ({"name": 3}, "channel name 3"),
-        ({"unit": None}, "unit None is not valid"),
-        ({"sensitivity": 0}, "sensitivity 0 is not valid"),
-        ({"sensitivity": float("inf")}, "sensitivity inf"),
-        ({"sensitivity": "1"}, "sensitivity '1'"),
+        ({"name": ""}, r'Channel: name = "": must be a non-empty string'),
+        ({"name": 3}, "Channel: name = 3: must be"),
+        ({"unit": None}, "unit = None: must be a string"),
+        ({"sensitivity": 0}, r"sensitivity = 0: must be a positive number \(raw units per physical unit; > 0\)"),
+        ({"sensitivity": float("inf")}, "sensitivity = inf: must be"),
+        ({"sensitivity": "1"}, r'sensitivity = "1": must be a positive number \(raw units per physical unit; '
+                                   r'got a string\)'),
     ],
 )
 def test_channel_validation(kw, match):
@@ -147,15 +148,15 @@ def test_with_log_appends_and_shares_data():
     assert r4.data is run.data
     with pytest.raises(InputError, match="not both"):
         run.with_log(("a", {}), {"b": 1})
-    with pytest.raises(InputError, match="log entry 5"):
+    with pytest.raises(InputError, match="log entry = 5: must be"):
         run.with_log(5)
 
 
 def test_iter_chunks_validation():
     run = _run(10)
-    with pytest.raises(InputError, match="chunk_samples 0"):
+    with pytest.raises(InputError, match="chunk_samples = 0: must be a positive integer"):
         list(run.iter_chunks(1, 0))
-    with pytest.raises(InputError, match="overlap 4 is not valid"):
+    with pytest.raises(InputError, match="overlap = 4: must be an integer from 0 to 3"):
         list(run.iter_chunks(1, 4, overlap=4))
 
 

@@ -74,32 +74,32 @@ def test_band_limits_with_machine_lines():
 
 def test_band_limits_errors():
     band = Band("race", around="output NDE bfpo", width_pct=10)
-    with pytest.raises(InputError, match="band 'race': around: no line named 'output NDE bfpo'"
-                                         ".*did you mean 'output NDE bpfo'"):
+    with pytest.raises(InputError, match="band 'race': around = \"output NDE bfpo\": the machine has no "
+                                         "line of this name.*did you mean 'output NDE bpfo'"):
         band.limits_hz([1000.0], LINES)
-    with pytest.raises(InputError, match="rpm: speeds must be finite and not negative"):
+    with pytest.raises(InputError, match="rpm = -?[0-9.a-z]+: speeds must be finite and not negative"):
         Band("x", hz=[1, 2]).limits_hz([-5.0])
-    with pytest.raises(InputError, match="rpm: must be numbers"):
+    with pytest.raises(InputError, match='rpm = "fast": must be numbers'):
         Band("x", hz=[1, 2]).limits_hz("fast")
 
 
 @pytest.mark.parametrize(
     "kwargs, message",
     [
-        ({"name": ""}, "Band: name: must be a non-empty text"),
-        ({"name": 3, "hz": [1, 2]}, "Band: name: must be a non-empty text"),
+        ({"name": ""}, 'Band: name = "": must be a non-empty text'),
+        ({"name": 3, "hz": [1, 2]}, "Band: name = 3: must be a non-empty text"),
         ({"name": "b"}, "give exactly one of hz = \\[lo, hi\\], orders = \\[lo, hi\\] or around"),
         ({"name": "b", "hz": [1, 2], "orders": [1, 2]}, "exactly one of .*; got hz, orders"),
-        ({"name": "b", "around": ""}, "around: must be a line name"),
+        ({"name": "b", "around": ""}, 'around = "": must be a line name'),
         ({"name": "b", "around": "x"}, "width_pct: is required with around"),
-        ({"name": "b", "around": "x", "width_pct": 0}, "width_pct: must be above 0"),
-        ({"name": "b", "around": "x", "width_pct": 200}, "width_pct: must be below 200"),
-        ({"name": "b", "hz": [1, 2], "width_pct": 5}, "width_pct: is only used with around"),
-        ({"name": "b", "hz": [1, 2, 3]}, "hz: must be two numbers \\[lo, hi\\], got 3"),
-        ({"name": "b", "hz": [1]}, "hz: must hold at least 2 values"),
-        ({"name": "b", "orders": [-1, 2]}, "orders: lower limit must not be negative"),
-        ({"name": "b", "orders": [2, 2]}, "orders: lower limit must be below the upper one"),
-        ({"name": "b", "hz": [1, "2"]}, "hz: item 2 must be a finite number"),
+        ({"name": "b", "around": "x", "width_pct": 0}, "width_pct = 0: must be above 0 and below 200"),
+        ({"name": "b", "around": "x", "width_pct": 200}, "width_pct = 200: must be above 0 and below 200"),
+        ({"name": "b", "hz": [1, 2], "width_pct": 5}, "width_pct = 5: is only used with around"),
+        ({"name": "b", "hz": [1, 2, 3]}, "hz = \\[1, 2, 3\\]: must be two numbers \\[lo, hi\\]"),
+        ({"name": "b", "hz": [1]}, "hz = \\[1\\]: must hold at least 2 values"),
+        ({"name": "b", "orders": [-1, 2]}, "orders = \\[-1, 2\\]: lower limit must not be negative"),
+        ({"name": "b", "orders": [2, 2]}, "orders = \\[2, 2\\]: lower limit must be below the upper one"),
+        ({"name": "b", "hz": [1, "2"]}, 'hz = \\[1, "2"\\]: item 2 must be a finite number'),
     ],
 )
 def test_band_validation(kwargs, message):
@@ -114,17 +114,19 @@ def test_plan_defaults_and_checks():
     assert plan.rates_hz == (12800.0, 25600.0)
     assert plan.filter == AntiAliasFilter()
     assert plan.threshold_db == -60.0 and plan.bands == () and plan.max_order is None
-    with pytest.raises(InputError, match="Plan: rates_hz: must hold at least one value"):
+    with pytest.raises(InputError, match="Plan: rates_hz = \\[\\]: must hold at least one value"):
         Plan(speed, ())
-    with pytest.raises(InputError, match="Plan: rates_hz: sample rates must be positive"):
+    with pytest.raises(InputError, match=r"Plan: rates_hz = \[0\.0\]: item 1 must be a positive, finite "
+                                         r"sample rate \(Hz\)"):
         Plan(speed, (0.0,))
-    with pytest.raises(InputError, match="Plan: rates_hz: lists 12800 more than once"):
+    with pytest.raises(InputError, match=r"Plan: rates_hz = \[12800, 12800\.0\]: lists 12800 more "
+                                         r"than once"):
         Plan(speed, (12800, 12800.0))
     with pytest.raises(InputError, match="Plan: speed: must be a SpeedProfile"):
         Plan({"profile": "linear"}, (12800,))
     with pytest.raises(InputError, match="Plan: filter: must be an AntiAliasFilter"):
         Plan(speed, (12800,), filter="butterworth")
-    with pytest.raises(InputError, match="Plan: threshold_db: must be a finite number"):
+    with pytest.raises(InputError, match="Plan: threshold_db = nan: must be a finite number"):
         Plan(speed, (12800,), threshold_db=np.nan)
     with pytest.raises(InputError, match="Plan: bands: band name 'a' is used twice"):
         Plan(speed, (12800,), bands=(Band("a", hz=(1, 2)), Band("a", orders=(1, 2))))
@@ -132,9 +134,9 @@ def test_plan_defaults_and_checks():
         Plan(speed, (12800,), bands=({"name": "a"},))
     with pytest.raises(InputError, match="Plan: bands: must be a sequence of Band"):
         Plan(speed, (12800,), bands=Band("a", hz=(1, 2)))
-    with pytest.raises(InputError, match="Plan: max_order: must be above 0"):
+    with pytest.raises(InputError, match="Plan: max_order = 0: must be above 0"):
         Plan(speed, (12800,), max_order=0)
-    with pytest.raises(InputError, match="Plan: order_resolution: must be a finite number"):
+    with pytest.raises(InputError, match='Plan: order_resolution = "fine": must be a finite number'):
         Plan(speed, (12800,), order_resolution="fine")
 
 
@@ -248,36 +250,36 @@ def _edit(path, value):
         (("acquisiton",), {}, "<dict>: \\[acquisiton\\]: unknown table or key \\(did you mean "
                               "'acquisition'\\?\\)"),
         (("speed",), None, "<dict>: \\[speed\\]: this table is required"),
-        (("speed",), 5, "\\[speed\\]: must be a table of keys"),
+        (("speed",), 5, "\\[speed\\] = 5: must be a table of keys"),
         (("acquisition",), None, "\\[acquisition\\]: this table is required"),
         (("speed", "start_rmp"), 5, "\\[speed\\]: start_rmp: unknown key \\(did you mean "
                                     "'start_rpm'\\?\\)"),
         (("speed", "profile"), None, "\\[speed\\]: profile: is required"),
-        (("speed", "profile"), "lineal", "\\[speed\\]: profile: must be one of linear, "
-                                         "exponential, table; got 'lineal' \\(did you mean"),
-        (("speed", "profile"), 3, "profile: must be one of"),
+        (("speed", "profile"), "lineal", "\\[speed\\]: profile = \"lineal\": must be one of "
+                                         "linear, exponential, table \\(did you mean"),
+        (("speed", "profile"), 3, "profile = 3: must be one of"),
         (("speed", "start_rpm"), None, "\\[speed\\]: start_rpm: is required by profile 'linear'"),
-        (("speed", "start_rpm"), -5, "\\[speed\\]: start_rpm: must be at least 0, got -5"),
-        (("speed", "duration_s"), "long", "\\[speed\\]: duration_s: must be a finite number"),
+        (("speed", "start_rpm"), -5, "\\[speed\\]: start_rpm = -5: must be at least 0"),
+        (("speed", "duration_s"), "long", "\\[speed\\]: duration_s = \"long\": must be a finite number"),
         (("speed", "table"), "speed.csv", "\\[speed\\]: table: is only used by profile 'table'"),
         (("acquisition", "rates_hz"), None, "\\[acquisition\\]: rates_hz: is required"),
-        (("acquisition", "rates_hz"), 12800, "rates_hz: must be a list of sample rates"),
-        (("acquisition", "rates_hz"), [], "rates_hz: must hold at least one value"),
-        (("acquisition", "rates_hz"), [12800, -1], "rates_hz: sample rates must be positive"),
-        (("acquisition", "rates_hz"), [12800, "fast"], "rates_hz: item 2 must be a finite"),
-        (("acquisition", "rates_hz"), [12800, 12800], "rates_hz: lists 12800 more than once"),
-        (("acquisition", "filter"), "buterworth", "\\[acquisition\\]: filter: must be one of "
-                                                  "none, .*did you mean 'butterworth'"),
-        (("acquisition", "filter"), 8, "filter: must be a text in quotes"),
+        (("acquisition", "rates_hz"), 12800, "rates_hz = 12800: must be a list of sample rates"),
+        (("acquisition", "rates_hz"), [], "rates_hz = \\[\\]: must hold at least one value"),
+        (("acquisition", "rates_hz"), [12800, -1], "rates_hz = \\[12800, -1\\]: item 2 must be a positive, finite sample rate"),
+        (("acquisition", "rates_hz"), [12800, "fast"], "rates_hz = \\[12800, \"fast\"\\]: item 2 must be a finite"),
+        (("acquisition", "rates_hz"), [12800, 12800], "rates_hz = \\[12800, 12800\\]: lists 12800 more than once"),
+        (("acquisition", "filter"), "buterworth", "\\[acquisition\\]: filter = \"buterworth\": must "
+                                                  "be one of none, .*did you mean 'butterworth'"),
+        (("acquisition", "filter"), 8, "filter = 8: must be a text in quotes"),
         (("acquisition", "filter_order"), None, "\\[acquisition\\]: filter_order: is required "
                                                 "by filter kind 'butterworth'"),
-        (("acquisition", "filter_order"), 0, "\\[acquisition\\]: filter_order: must be a whole"),
-        (("acquisition", "cutoff"), 1.5, "\\[acquisition\\]: cutoff: must be below 1"),
+        (("acquisition", "filter_order"), 0, "\\[acquisition\\]: filter_order = 0: must be a positive integer"),
+        (("acquisition", "cutoff"), 1.5, "\\[acquisition\\]: cutoff = 1.5: must be above 0 and below 1"),
         (("acquisition", "stopband_db"), 80, "\\[acquisition\\]: stopband_db: is not used by "
                                              "filter 'butterworth' \\(it applies to digital, "
                                              "elliptic\\)"),
         (("acquisition", "table"), "f.csv", "table: is not used by filter 'butterworth'"),
-        (("acquisition", "threshold_db"), "loud", "\\[acquisition\\]: threshold_db: must be a "
+        (("acquisition", "threshold_db"), "loud", "\\[acquisition\\]: threshold_db = \"loud\": must be a "
                                                   "finite number"),
         (("acquisition", "threshold"), -60, "threshold: unknown key \\(did you mean "
                                             "'threshold_db'\\?\\)"),
@@ -285,23 +287,23 @@ def _edit(path, value):
                                                  "write each as \\[\\[band\\]\\]"),
         (("band", 0), "env", "\\[\\[band\\]\\] #1: must be a table of keys"),
         (("band", 0, "name"), None, "\\[\\[band\\]\\] #1: name: is required"),
-        (("band", 0, "name"), " ", "\\[\\[band\\]\\] #1: name: must be a non-empty text"),
-        (("band", 0, "hz"), "2000-5000", "\\[\\[band\\]\\] 'env': hz: must be a list of two"),
-        (("band", 0, "hz"), [5000, 2000], "'env': hz: lower limit must be below the upper"),
+        (("band", 0, "name"), " ", "\\[\\[band\\]\\] #1: name = \" \": must be a non-empty text"),
+        (("band", 0, "hz"), "2000-5000", "\\[\\[band\\]\\] 'env': hz = \"2000-5000\": must be a list of two"),
+        (("band", 0, "hz"), [5000, 2000], "'env': hz = \\[5000, 2000\\]: lower limit must be below the upper"),
         (("band", 0, "orders"), [1, 2], "'env': hz/orders/around: give exactly one of"),
-        (("band", 0, "width_pct"), 5, "'env': width_pct: is only used with around"),
+        (("band", 0, "width_pct"), 5, "'env': width_pct = 5: is only used with around"),
         (("band", 0, "with_pct"), 5, "'env': with_pct: unknown key \\(did you mean "
                                      "'width_pct'\\?\\)"),
         (("band", 0), {"name": "env", "around": "mains"}, "'env': width_pct: is required with "
                                                           "around"),
         (("band", 0), {"name": "env", "around": "mains", "width_pct": 250},
-         "'env': width_pct: must be below 200"),
-        (("resampling",), {"max_order": 0}, "\\[resampling\\]: max_order: must be above 0"),
-        (("resampling",), {"order_resolution": "fine"}, "\\[resampling\\]: order_resolution: "
-                                                        "must be a finite number"),
+         "'env': width_pct = 250: must be above 0 and below 200"),
+        (("resampling",), {"max_order": 0}, "\\[resampling\\]: max_order = 0: must be above 0"),
+        (("resampling",), {"order_resolution": "fine"}, "\\[resampling\\]: order_resolution "
+                                                        "= \"fine\": must be a finite number"),
         (("resampling",), {"max_orders": 50}, "\\[resampling\\]: max_orders: unknown key "
                                               "\\(did you mean 'max_order'\\?\\)"),
-        (("resampling",), [1], "\\[resampling\\]: must be a table of keys"),
+        (("resampling",), [1], "\\[resampling\\] = \\[1\\]: must be a table of keys"),
     ],
 )
 def test_plan_dict_validation(path, value, message):
@@ -330,20 +332,20 @@ def test_not_a_dict_and_unknown_top_level_key():
         ({"profile": "table"}, "\\[speed\\]: table: is required by profile 'table'"),
         ({"profile": "table", "table": "s.csv", "end_rpm": 5}, "\\[speed\\]: end_rpm: is given "
                                                                "by the speed table"),
-        ({"profile": "table", "table": "../s.csv"}, "\\[speed\\]: table: '../s.csv' lies outside "
+        ({"profile": "table", "table": "../s.csv"}, "\\[speed\\]: table = \"../s.csv\": lies outside "
                                                     "the plan's folder"),
-        ({"profile": "table", "table": "/etc/hosts"}, "table: '/etc/hosts' lies outside"),
-        ({"profile": "table", "table": ""}, "\\[speed\\]: table: must name a CSV file"),
+        ({"profile": "table", "table": "/etc/hosts"}, "table = \"/etc/hosts\": lies outside"),
+        ({"profile": "table", "table": ""}, "\\[speed\\]: table = \"\": must name a CSV file"),
         ({"profile": "table", "table": "missing.csv"}, "\\[speed\\]: table: .*missing.csv: "
                                                        "speed table not found"),
-        ({"profile": "table", "table": "bad.csv"}, "\\[speed\\]: table: .*bad.csv: line 3: rpm: "
-                                                   "must be a finite number, got 'x'"),
+        ({"profile": "table", "table": "bad.csv"}, "\\[speed\\]: table: .*bad.csv: line 3: rpm = "
+                                                   "\"x\": must be a finite number"),
         ({"profile": "table", "table": "late.csv"}, "\\[speed\\]: table: late.csv: the first "
                                                     "time must be 0 s"),
         ({"profile": "table", "table": {"time_s": [0, 1]}}, "\\[speed\\]: table: inline columns "
                                                             "must be \\{time_s, rpm\\}"),
         ({"profile": "table", "table": {"time_s": [0, 1], "rpm": [1]}},
-         "\\[speed\\]: table.rpm: must hold at least 2 values"),
+         "\\[speed\\]: table.rpm = \\[1\\]: must hold at least 2 values"),
         ({"profile": "table", "table": {"time_s": [0, 1, 2], "rpm": [1, 2]}},
          "\\[speed\\]: table: inline columns must have the same length"),
         ({"profile": "table", "table": {"time_s": [0, 1], "rpm": [1, -2]}},
@@ -367,15 +369,15 @@ def test_speed_table_errors(tmp_path, speed, message):
                                                   "or fraction,db"),
         ({"filter": "table", "table": "order.csv"}, "\\[acquisition\\]: table: order.csv: point 2:"
                                                     " frequencies must increase strictly"),
-        ({"filter": "table", "table": "../x.csv"}, "table: '../x.csv' lies outside"),
+        ({"filter": "table", "table": "../x.csv"}, "table = \"../x.csv\": lies outside"),
         ({"filter": "table", "table": {"hz": [1, 2], "gain": [0, 1]}},
          "inline columns must be \\{hz, db\\} or \\{fraction, db\\}"),
         ({"filter": "table", "table": {"hz": [1, 2], "db": [0, -10]}},
          "\\[acquisition\\]: table: point 2: attenuation is positive dB"),
-        ({"filter": "digital", "passband_edge": 0.6}, "\\[acquisition\\]: stopband_edge: must be "
+        ({"filter": "digital", "passband_edge": 0.6}, "\\[acquisition\\]: stopband_edge = 0.55: must be "
                                                       "above passband_edge"),
         ({"filter": "elliptic", "filter_order": 4, "cutoff": 0.4, "passband_ripple_db": 120},
-         "\\[acquisition\\]: passband_ripple_db: must be below stopband_db"),
+         "\\[acquisition\\]: passband_ripple_db = 120.0: must be below stopband_db"),
         ({"filter": "ideal", "filter_order": 4, "cutoff": 0.4}, "filter_order: is not used by "
                                                                 "filter 'ideal'"),
         ({"filter": "none", "cutoff": 0.4}, "cutoff: is not used by filter 'none'"),
@@ -404,7 +406,7 @@ def test_inline_tables_and_subfolder(tmp_path):
 def test_cutoff_at_or_above_nyquist_is_refused():
     # A filter passing Nyquist lets everything up to its cutoff fold unattenuated (issue 15).
     d = _edit(("acquisition", "cutoff"), 0.7)
-    with pytest.raises(PlanFileError, match=r"\[acquisition\]: cutoff: 0.7 x rate lies at or "
+    with pytest.raises(PlanFileError, match=r"\[acquisition\]: cutoff = 0\.7: lies at or "
                                             r"above Nyquist"):
         plan_from_dict(d)
 
@@ -429,8 +431,8 @@ def test_read_plan_names_the_file_in_errors(tmp_path):
     shutil.copy(DATA / "plan_runup_butterworth.toml", tmp_path / "p.toml")
     text = (tmp_path / "p.toml").read_text().replace("width_pct = 10", "width_pct = -10")
     (tmp_path / "p.toml").write_text(text)
-    with pytest.raises(PlanFileError, match="p.toml: \\[\\[band\\]\\] 'outer race': width_pct: "
-                                            "must be above 0, got -10"):
+    with pytest.raises(PlanFileError, match="p.toml: \\[\\[band\\]\\] 'outer race': width_pct = "
+                                            "-10: must be above 0 and below 200"):
         read_plan(tmp_path / "p.toml")
 
 

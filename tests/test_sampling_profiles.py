@@ -100,8 +100,8 @@ def test_shapes_and_inputs_not_mutated():
 def test_rpm_grid():
     np.testing.assert_allclose(RUNUP.rpm_grid(4), [600, 1600, 2600, 3600])
     np.testing.assert_allclose(TABLE.rpm_grid(2), [500, 3000])
-    for bad in (1, 2.5, "3", True):
-        with pytest.raises(InputError, match="n: the speed grid needs a whole number"):
+    for bad, shown in ((1, "1"), (2.5, "2.5"), ("3", '"3"'), (True, "true")):
+        with pytest.raises(InputError, match=f"^n = {shown}: must be an integer >= 2"):
             RUNUP.rpm_grid(bad)
 
 
@@ -113,17 +113,17 @@ def test_time_at_needs_monotonic():
 
 
 def test_out_of_range_arguments():
-    with pytest.raises(InputError, match="t_s: times must lie within the profile, 0 to 60 s"):
+    with pytest.raises(InputError, match="t_s = 61.0: times must lie within the profile, 0 to 60 s"):
         RUNUP.rpm_at(61.0)
-    with pytest.raises(InputError, match="t_s: times must lie within"):
+    with pytest.raises(InputError, match="t_s = -1.0: times must lie within"):
         RUNUP.shaft_angle_rev(-1.0)
-    with pytest.raises(InputError, match="t_s: times must lie within"):
+    with pytest.raises(InputError, match="t_s = nan: times must lie within"):
         RUNUP.sweep_rate_rpm_per_s(np.nan)
-    with pytest.raises(InputError, match="t_s: must be numbers"):
+    with pytest.raises(InputError, match='t_s = "soon": must be numbers'):
         RUNUP.rpm_at("soon")
-    with pytest.raises(InputError, match="rpm: speeds must lie within the profile, 600 to 3600"):
+    with pytest.raises(InputError, match="rpm = 100.0: speeds must lie within the profile, 600 to 3600"):
         RUNUP.time_at(100.0)
-    with pytest.raises(InputError, match="rpm: must be numbers"):
+    with pytest.raises(InputError, match='rpm = "fast": must be numbers'):
         RUNUP.time_at("fast")
 
 
@@ -137,32 +137,32 @@ def test_replace_keeps_table_profile_valid():
 @pytest.mark.parametrize(
     "args, kwargs, message",
     [
-        (("ramp", 1, 2, 3), {}, "kind: must be one of 'linear', 'exponential', 'table'"),
+        (("ramp", 1, 2, 3), {}, 'kind = "ramp": must be one of "linear", "exponential", "table"'),
         (("linear", None, 2, 3), {}, "start_rpm: is required by profile kind 'linear'"),
         (("linear", 1, None, 3), {}, "end_rpm: is required"),
         (("linear", 1, 2, None), {}, "duration_s: is required"),
-        (("linear", -1, 2, 3), {}, "start_rpm: must be at least 0"),
-        (("linear", 1, np.inf, 3), {}, "end_rpm: must be a finite number"),
-        (("exponential", 0, 2, 3), {}, "start_rpm: must be above 0"),
-        (("linear", 1, 2, 0), {}, "duration_s: must be above 0"),
-        (("linear", 1, 2, "3"), {}, "duration_s: must be a finite number"),
-        (("linear", 1, 2, 3), {"table_rpm": [1, 2]}, "table_rpm: is only used by profile "
+        (("linear", -1, 2, 3), {}, "start_rpm = -1: must be at least 0"),
+        (("linear", 1, np.inf, 3), {}, "end_rpm = inf: must be a finite number"),
+        (("exponential", 0, 2, 3), {}, "start_rpm = 0: must be above 0"),
+        (("linear", 1, 2, 0), {}, "duration_s = 0: must be above 0"),
+        (("linear", 1, 2, "3"), {}, 'duration_s = "3": must be a finite number'),
+        (("linear", 1, 2, 3), {"table_rpm": [1, 2]}, r"table_rpm = \[1, 2\]: is only used by profile "
                                                      "kind 'table'"),
         (("table",), {"table_rpm": [1, 2]}, "table_time_s: is required by profile kind"),
         (("table",), {"table_time_s": [0, 1]}, "table_rpm: is required"),
         (("table",), {"table_time_s": [0], "table_rpm": [1]}, "must hold at least 2 values"),
         (("table",), {"table_time_s": [0, 1, 2], "table_rpm": [1, 2]},
-         "table_rpm: must have one speed per time"),
+         r"table_rpm = \[1\.0, 2\.0\]: must have one speed per time \(3\), got 2"),
         (("table",), {"table_time_s": [1, 2], "table_rpm": [1, 2]},
-         "table_time_s: the first time must be 0 s"),
+         r"table_time_s = \[1\.0, 2\.0\]: the first time must be 0 s"),
         (("table",), {"table_time_s": [0, 2, 2], "table_rpm": [1, 2, 3]},
-         "table_time_s: row 3: times must increase strictly"),
+         r"table_time_s = \[0\.0, 2\.0, 2\.0\]: row 3: times must increase strictly"),
         (("table",), {"table_time_s": [0, 2], "table_rpm": [1, -2]},
-         "table_rpm: row 2: speeds must not be negative"),
+         r"table_rpm = \[1\.0, -2\.0\]: row 2: speeds must not be negative"),
         (("table", 5.0), {"table_time_s": [0, 2], "table_rpm": [1, 2]},
-         "start_rpm: follows from the table"),
+         r"start_rpm = 5\.0: follows from the table of a 'table' profile \(1\)"),
         (("table",), {"table_time_s": [0, 2], "table_rpm": [1, 2], "duration_s": 3},
-         "duration_s: follows from the table"),
+         r"duration_s = 3: follows from the table of a 'table' profile \(2\)"),
     ],
 )
 def test_validation(args, kwargs, message):
@@ -185,17 +185,16 @@ def test_read_speed_table(tmp_path):
 @pytest.mark.parametrize(
     "text, message",
     [
-        ("time_s,rpm\n0,600\n10,fast\n", "speed.csv: line 3: rpm: must be a finite number, "
-                                          "got 'fast'"),
-        ("time_s,rpm\n0,600\n\n10,700\n", "speed.csv: line 3: time_s: must be a finite number"),
-        ("time_s,rpm\n0,600\n10,\n", "line 3: rpm: must be a finite number, got ''"),
-        ("time_s,rpm\n0,600\n10,inf\n", "line 3: rpm: must be a finite number"),
+        ("time_s,rpm\n0,600\n10,fast\n", 'speed.csv: line 3: rpm = "fast": must be a finite number'),
+        ("time_s,rpm\n0,600\n\n10,700\n", 'speed.csv: line 3: time_s = "": must be a finite number'),
+        ("time_s,rpm\n0,600\n10,\n", 'line 3: rpm = "": must be a finite number'),
+        ("time_s,rpm\n0,600\n10,inf\n", 'line 3: rpm = "inf": must be a finite number'),
         ("time_s,speed\n0,600\n10,700\n", "speed.csv: header: unknown column 'speed'"),
         ("time_s\n0\n10\n", "header: columns time_s; a speed table has the columns time_s,rpm"),
         ("time_s,rpm\n0,600\n", "needs at least two rows, got 1"),
         ("", "not a readable CSV speed table"),
-        ("time_s,rpm\n0,600\n10,700\n10,800\n", "line 4: time_s: times must increase strictly"),
-        ("time_s,rpm\n0,600\n10,-700\n", "line 3: rpm: speeds must not be negative"),
+        ("time_s,rpm\n0,600\n10,700\n10,800\n", "line 4: time_s = 10: times must increase strictly; the line before gives 10"),
+        ("time_s,rpm\n0,600\n10,-700\n", "line 3: rpm = -700: speeds must not be negative"),
     ],
 )
 def test_read_speed_table_errors(tmp_path, text, message):

@@ -248,7 +248,7 @@ def test_bad_values_show_an_error_and_keep_the_picture(panel):
     panel.speed_range.value = (300.0, 1800.0)
     assert 'class="foldline-error"' not in panel.verdict.value
     panel.rate_hz.value = -5.0
-    assert "positive sample rate" in panel.verdict.value
+    assert "rate_hz = -5.0: must be a positive, finite sample rate (Hz)" in panel.verdict.value
 
 
 def test_adjusted_filter_values_are_reported(panel):

@@ -1,39 +1,19 @@
-"""Small helpers shared by the angle layer: argument checks and chunk streams."""
+"""Small helpers shared by the angle layer: 1-D signals and chunk streams.
+
+Argument checks are :mod:`workbench.checks`'s.
+"""
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable, Iterator
-from numbers import Integral, Real
 
 import numpy as np
 
+from workbench.checks import show
 from workbench.errors import InputError
 
 #: Samples per internal chunk when a whole array is processed piece by piece.
 CHUNK_SAMPLES = 1 << 20
-
-
-def positive_rate(rate_hz, name: str = "rate_hz") -> float:
-    """Return ``rate_hz`` as a float after checking it is finite and > 0."""
-    if isinstance(rate_hz, bool) or not isinstance(rate_hz, Real) or not math.isfinite(rate_hz) \
-            or rate_hz <= 0:
-        raise InputError(f"{name} {rate_hz!r} is not valid; allowed: a finite number > 0 (Hz)")
-    return float(rate_hz)
-
-
-def positive_int(value, name: str, minimum: int = 1) -> int:
-    """Return ``value`` as an int after checking it is an integer >= ``minimum``."""
-    if isinstance(value, bool) or not isinstance(value, Integral) or value < minimum:
-        raise InputError(f"{name} {value!r} is not valid; allowed: an integer >= {minimum}")
-    return int(value)
-
-
-def finite_real(value, name: str) -> float:
-    """Return ``value`` as a float after checking it is a finite real number."""
-    if isinstance(value, bool) or not isinstance(value, Real) or not math.isfinite(value):
-        raise InputError(f"{name} {value!r} is not valid; allowed: a finite number")
-    return float(value)
 
 
 def one_d(x, name: str) -> np.ndarray:
@@ -71,7 +51,7 @@ def iter_chunks(x, name: str = "x", chunk: int = CHUNK_SAMPLES) -> Iterator[np.n
             yield a[i:i + chunk]
         return
     if not isinstance(x, Iterable):
-        raise InputError(f"{name} of type {type(x).__name__} is not valid; allowed: a 1-D array, "
+        raise InputError(f"{name} = {show(x)}: must be a 1-D array, "
                          "an iterable of 1-D arrays, or a callable returning one")
     for i, c in enumerate(x):
         yield one_d(c, f"{name} chunk {i}")

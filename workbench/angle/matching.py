@@ -15,6 +15,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 import pandas as pd
 
+from workbench import checks
 from workbench.errors import InputError
 from workbench.sampling.folding import fold
 
@@ -211,9 +212,7 @@ def match_lines(ridges, lines, rate_hz, *, tolerance_orders=0.15, tolerance_pct=
     if hasattr(lines, "lines") and callable(lines.lines):
         lines = lines.lines()
     lines = tuple(lines)
-    rate = float(rate_hz)
-    if not np.isfinite(rate) or rate <= 0:
-        raise InputError(f"rate_hz = {rate_hz!r}: must be a positive number of Hz")
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     min_order = float(min_order)
     pts = ridges[["rpm", "order", "amplitude"]]
     pts = pts[pts["order"] >= min_order].reset_index(drop=True).copy()

@@ -58,7 +58,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import find_peaks, get_window
 
-from workbench.angle._common import finite_real, positive_int
+from workbench import checks
+from workbench.checks import show
 from workbench.angle.spectra import _check_options, _frozen, _pieces
 from workbench.angle.tracking import AngleSignal
 from workbench.errors import FoldlineWarning, InputError
@@ -247,24 +248,24 @@ def order_tracks(sig, orders=DEFAULT_TRACK_ORDERS, *, once_per_rev: bool = False
     (2.0, 30.0, 'absolute')
     """
     try:
-        orders = tuple(finite_real(o, "orders") for o in orders)
+        orders = tuple(checks.real(None, "orders", o) for o in orders)
     except TypeError:
-        raise InputError(f"orders {orders!r} is not valid; allowed: a sequence of orders > 0, "
+        raise InputError(f"orders = {show(orders)}: must be a sequence of orders > 0, "
                          "e.g. (1, 2)") from None
     if not orders or any(o <= 0 for o in orders):
-        raise InputError(f"orders {orders!r} is not valid; allowed: at least one order > 0")
-    offset_deg = finite_real(offset_deg, "offset_deg")
+        raise InputError(f"orders = {show(orders)}: must be at least one order > 0")
+    offset_deg = checks.real(None, "offset_deg", offset_deg)
     overlap = _check_options(window, overlap, "peak")
     rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else \
-        finite_real(revs_per_block, "revs_per_block")
+        checks.real(None, "revs_per_block", revs_per_block)
     if rpb <= 0:
-        raise InputError(f"revs_per_block {rpb!r} is not valid; allowed: a number > 0")
+        raise InputError(f"revs_per_block = {show(rpb)}: must be a number > 0")
     acc = None
     spr = None
     expect = None
     for piece in _pieces(sig):
         if not isinstance(piece, AngleSignal):
-            raise InputError(f"piece of type {type(piece).__name__} is not valid; allowed: "
+            raise InputError(f"piece = {show(piece)}: must be "
                              "AngleSignal pieces")
         if acc is None:
             spr = piece.samples_per_rev
@@ -401,10 +402,10 @@ def _operating(operating_rpm) -> tuple[float, float]:
     try:
         lo, hi = (float(v) for v in operating_rpm)
     except (TypeError, ValueError):
-        raise InputError(f"operating range {operating_rpm!r} is not valid; allowed: two speeds "
+        raise InputError(f"operating range = {show(operating_rpm)}: must be two speeds "
                          "LO,HI in rpm") from None
     if not (math.isfinite(lo) and math.isfinite(hi) and 0 < lo <= hi):
-        raise InputError(f"operating range {lo:g},{hi:g} rpm is not valid; allowed: "
+        raise InputError(f"operating_rpm = [{lo:g}, {hi:g}]: must be "
                          "0 < LO <= HI (rpm)")
     return lo, hi
 
@@ -573,11 +574,11 @@ def find_criticals(track: OrderTrack, *, operating_rpm=None, min_phase_change_de
     .. [2] S. S. Rao, "Mechanical Vibrations", 5th ed., Prentice Hall, 2011, section 3.7.
     """
     if not isinstance(track, OrderTrack):
-        raise InputError(f"track of type {type(track).__name__} is not valid; allowed: an "
+        raise InputError(f"track = {show(track)}: must be an "
                          "OrderTrack")
     if operating_rpm is not None:
         operating_rpm = _operating(operating_rpm)
-    min_points = positive_int(min_points, "min_points")
+    min_points = checks.positive_int(None, "min_points", min_points, whole_float=False)
     rpm, amp, lag = track.sorted_by_rpm()
     found, rejected = [], []
     if len(rpm) < 5 or not rpm[-1] - rpm[0] > 1e-6 * abs(rpm[-1]):

@@ -17,7 +17,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from workbench.angle._common import finite_real, iter_chunks, positive_int, positive_rate
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import iter_chunks
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import InputError
 
@@ -143,16 +145,17 @@ def overall_level(x, rate_hz: float, angle: ShaftAngle, *, rpm_edges=None, rpm_r
        functions and some new flat-top windows", Max-Planck-Institut fuer
        Gravitationsphysik (AEI), 2002.
     """
-    rate = positive_rate(rate_hz)
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     if not isinstance(angle, ShaftAngle):
-        raise InputError(f"angle of type {type(angle).__name__} is not valid; allowed: a ShaftAngle")
-    n = default_block_samples(rate) if block_samples is None else positive_int(block_samples, "block_samples", 8)
+        raise InputError(f"angle = {show(angle)}: must be a ShaftAngle")
+    n = default_block_samples(rate) if block_samples is None else checks.positive_int(
+        None, "block_samples", block_samples, low=8, whole_float=False)
     spectral = band_hz is not None or weight is not None
     if spectral:
         if band_hz is not None:
-            lo, hi = (finite_real(v, "band_hz") for v in band_hz)
+            lo, hi = (checks.real(None, "band_hz", v) for v in band_hz)
             if not 0 <= lo < hi <= rate / 2:
-                raise InputError(f"band_hz ({lo:g}, {hi:g}) is not valid; allowed: 0 <= lo < hi <= "
+                raise InputError(f"band_hz = [{lo:g}, {hi:g}]: must be 0 <= lo < hi <= "
                                  f"Nyquist ({rate / 2:g} Hz)")
             band_hz = (lo, hi)
         else:

@@ -17,7 +17,9 @@ import warnings
 import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 
-from workbench.angle._common import finite_real, one_d, positive_int, positive_rate
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import one_d
 from workbench.angle.pulse_timing import (DEFAULT_SPEED_TOLERANCE, _OUTLIER_SIGMAS, PulseTiming,
                                           _pulse_timing, _pulses, _span_list)
 from workbench.angle.shaft_angle import FIT_METHODS, DoubtedPulses, ShaftAngle
@@ -293,10 +295,10 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
     (1800.0, 1)
     """
     t = one_d(pulse_times_s, "pulse_times_s").astype(np.float64)
-    n_pr = positive_int(pulses_per_rev, "pulses_per_rev")
+    n_pr = checks.positive_int(None, "pulses_per_rev", pulses_per_rev, whole_float=False)
     if isinstance(missing_pulses, bool) or not isinstance(missing_pulses, (int, np.integer)) \
             or missing_pulses < 0:
-        raise InputError(f"missing_pulses {missing_pulses!r} is not valid; allowed: an integer "
+        raise InputError(f"missing_pulses = {show(missing_pulses)}: must be an integer "
                          ">= 0")
     m_miss = int(missing_pulses)
     if m_miss > 0 and n_pr - m_miss < 3:
@@ -304,24 +306,24 @@ def tacho_angle(pulse_times_s, *, pulses_per_rev: int = 1, missing_pulses: int =
                          f"{n_pr - m_miss} teeth; allowed: at least 3 teeth on a missing-tooth "
                          "wheel (pulses_per_rev counts the missing positions too)")
     if method not in FIT_METHODS:
-        raise InputError(f"method {method!r} is not valid; allowed: "
+        raise InputError(f"method = {show(method)}: must be "
                          f"{', '.join(repr(m) for m in FIT_METHODS)}")
-    tolerance = finite_real(tolerance, "tolerance")
+    tolerance = checks.real(None, "tolerance", tolerance)
     if not 0 < tolerance < 0.5:
-        raise InputError(f"tolerance {tolerance!r} is not valid; allowed: 0 < tolerance < 0.5 "
+        raise InputError(f"tolerance = {show(tolerance)}: must be 0 < tolerance < 0.5 "
                          "(pitches)")
     if min_rpm is not None:
-        min_rpm = finite_real(min_rpm, "min_rpm")
+        min_rpm = checks.real(None, "min_rpm", min_rpm)
         if min_rpm <= 0:
-            raise InputError(f"min_rpm {min_rpm!r} is not valid; allowed: a speed > 0 rpm")
+            raise InputError(f"min_rpm = {show(min_rpm)}: must be a speed > 0 rpm")
     if sample_rate_hz is not None:
-        sample_rate_hz = positive_rate(sample_rate_hz, "sample_rate_hz")
+        sample_rate_hz = checks.rate_hz(None, "sample_rate_hz", sample_rate_hz)
     if speed_tolerance is None:
         speed_tol = DEFAULT_SPEED_TOLERANCE
     else:
-        speed_tol = finite_real(speed_tolerance, "speed_tolerance")
+        speed_tol = checks.real(None, "speed_tolerance", speed_tolerance)
         if not 0 < speed_tol < 1:
-            raise InputError(f"speed_tolerance {speed_tolerance!r} is not valid; allowed: a "
+            raise InputError(f"speed_tolerance = {show(speed_tolerance)}: must be a "
                              "relative speed uncertainty between 0 and 1 (1e-4 is 0.01 %)")
     if not np.isfinite(t).all():
         raise InputError("pulse_times_s holds NaN or infinite values; allowed: finite times")

@@ -19,7 +19,7 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy.linalg import solveh_banded
 
-from workbench.angle._common import finite_real
+from workbench import checks
 from workbench.errors import FoldlineWarning, InputError
 
 __all__ = [
@@ -824,8 +824,8 @@ def speed_tolerance_for(max_order: float, revs_per_block: float) -> float:
     >>> round(100 * speed_tolerance_for(100.0, 16.0), 5)
     0.00781
     """
-    max_order = finite_real(max_order, "max_order")
-    revs_per_block = finite_real(revs_per_block, "revs_per_block")
+    max_order = checks.real(None, "max_order", max_order)
+    revs_per_block = checks.real(None, "revs_per_block", revs_per_block)
     if max_order <= 0 or revs_per_block <= 0:
         raise InputError(f"max_order {max_order!r} and revs_per_block {revs_per_block!r}: "
                          "allowed: both > 0")

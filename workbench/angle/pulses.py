@@ -15,8 +15,9 @@ import math
 
 import numpy as np
 
-from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
-                                     positive_rate)
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import CHUNK_SAMPLES, iter_chunks, one_d
 from workbench.errors import InputError, TachoError
 
 __all__ = [
@@ -84,16 +85,16 @@ class PulseDetector:
 
     def __init__(self, rate_hz: float, *, level: float | None = None,
                  hysteresis: float | None = None, edge: str = "rising"):
-        self.rate_hz = positive_rate(rate_hz)
+        self.rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
         if edge not in ("rising", "falling"):
-            raise InputError(f"edge {edge!r} is not valid; allowed: 'rising' or 'falling'")
+            raise InputError(f"edge = {show(edge)}: must be 'rising' or 'falling'")
         self.edge = edge
         self._sign = 1.0 if edge == "rising" else -1.0
-        self.level = None if level is None else finite_real(level, "level")
+        self.level = None if level is None else checks.real(None, "level", level)
         if hysteresis is not None:
-            hysteresis = finite_real(hysteresis, "hysteresis")
+            hysteresis = checks.real(None, "hysteresis", hysteresis)
             if hysteresis < 0:
-                raise InputError(f"hysteresis {hysteresis!r} is not valid; allowed: a number "
+                raise InputError(f"hysteresis = {show(hysteresis)}: must be a number "
                                  ">= 0 in the tacho's units")
         self.hysteresis = hysteresis
         self._n_seen = 0            # samples fed so far

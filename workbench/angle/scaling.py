@@ -23,6 +23,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
+from workbench import checks
 from workbench.errors import InputError
 
 __all__ = ["AmplitudeScaling", "INTEGRATIONS", "AMPLITUDES", "acceleration_factor",
@@ -77,14 +78,13 @@ class AmplitudeScaling:
     min_hz: float = DEFAULT_MIN_HZ
 
     def __post_init__(self):
-        if self.amplitude not in AMPLITUDES:
-            raise InputError(f"--amplitude {self.amplitude!r}: allowed: " + ", ".join(AMPLITUDES))
-        if self.integrate is not None and self.integrate not in INTEGRATIONS:
-            raise InputError(f"--integrate {self.integrate!r}: allowed: " + ", ".join(INTEGRATIONS))
-        if self.db_ref is not None and not (math.isfinite(self.db_ref) and self.db_ref > 0):
-            raise InputError(f"--db {self.db_ref!r}: the reference must be a positive number in the shown unit")
-        if not (math.isfinite(self.min_hz) and self.min_hz > 0):
-            raise InputError(f"--integrate-from {self.min_hz!r}: give a positive frequency in Hz")
+        # Named by the command's options, which are how an analyst sets them.
+        checks.choice(None, "--amplitude", self.amplitude, AMPLITUDES)
+        if self.integrate is not None:
+            checks.choice(None, "--integrate", self.integrate, INTEGRATIONS)
+        if self.db_ref is not None:
+            checks.positive(None, "--db", self.db_ref, unit="the reference, in the shown unit")
+        checks.positive(None, "--integrate-from", self.min_hz, unit="Hz")
 
     @property
     def is_identity(self) -> bool:
@@ -170,8 +170,7 @@ def integrate_order_map(order_map, *, to="velocity", unit="m/s^2", min_hz=DEFAUL
     OrderMap
         Same axes, amplitudes ``A / (2 pi f)^p`` (p = 1, 2) in mm/s or um.
     """
-    if to not in INTEGRATIONS:
-        raise InputError(f"integrate to {to!r}: allowed: " + ", ".join(INTEGRATIONS))
+    checks.choice(None, "to", to, INTEGRATIONS)
     power = 1 if to == "velocity" else 2
     k = acceleration_factor(unit) * _OUT_UNITS[to][1]
     hz = np.asarray(order_map.order, dtype=float)[None, :] * np.asarray(order_map.rpm, dtype=float)[:, None] / 60.0
@@ -181,8 +180,7 @@ def integrate_order_map(order_map, *, to="velocity", unit="m/s^2", min_hz=DEFAUL
 
 def integrate_frequency_map(rf_map, *, to="velocity", unit="m/s^2", min_hz=DEFAULT_MIN_HZ):
     """A frequency map of acceleration integrated to velocity (mm/s) or displacement (um)."""
-    if to not in INTEGRATIONS:
-        raise InputError(f"integrate to {to!r}: allowed: " + ", ".join(INTEGRATIONS))
+    checks.choice(None, "to", to, INTEGRATIONS)
     power = 1 if to == "velocity" else 2
     k = acceleration_factor(unit) * _OUT_UNITS[to][1]
     amp = k * np.asarray(rf_map.amplitude, dtype=float) / _divisor(np.asarray(rf_map.hz)[None, :], power, min_hz)

@@ -17,7 +17,9 @@ from typing import Any
 
 import numpy as np
 
-from workbench.angle._common import finite_real, one_d, positive_rate
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import one_d
 from workbench.angle.pulse_timing import PulseTiming
 from workbench.errors import InputError
 
@@ -217,7 +219,7 @@ class ShaftAngle:
             raise InputError("ShaftAngle: timing must be a PulseTiming or None")
         methods = FIT_METHODS + ("constant speed", "speed table")
         if self.method not in methods:
-            raise InputError(f"ShaftAngle: method {self.method!r} is not valid; allowed: "
+            raise InputError(f"ShaftAngle: method = {show(self.method)}: must be one of "
                              f"{', '.join(repr(m) for m in methods)}")
         gaps = tuple(sorted({int(j) for j in self.gaps}))
         if any(not 0 < j < len(t) - 2 for j in gaps) or \
@@ -264,11 +266,11 @@ class ShaftAngle:
         start_s : float
             Start of the span (s); the angle is 0 there.
         """
-        rpm = finite_real(rpm, "rpm")
+        rpm = checks.real(None, "rpm", rpm)
         if rpm <= 0:
-            raise InputError(f"rpm {rpm!r} is not valid; allowed: a speed > 0 rpm")
-        duration_s = positive_rate(duration_s, "duration_s")
-        start_s = finite_real(start_s, "start_s")
+            raise InputError(f"rpm = {show(rpm)}: must be a speed > 0 rpm")
+        duration_s = checks.positive(None, "duration_s", duration_s, unit="s")
+        start_s = checks.real(None, "start_s", start_s)
         return cls(np.array([start_s, start_s + duration_s]),
                    np.array([0.0, rpm / 60.0 * duration_s]), DoubtedPulses.empty(),
                    "constant speed")
@@ -305,7 +307,7 @@ class ShaftAngle:
         zero = np.flatnonzero(f <= 0)
         if np.any(f < 0) or np.any((zero > 0) & (zero < len(f) - 1)):
             i = int(zero[0])
-            raise InputError(f"rpm entry {i} ({f[i] * 60:g}) is not valid; allowed: speeds > 0 "
+            raise InputError(f"rpm = {show(rpm)}: entry {i} is {f[i] * 60:g}; allowed: speeds > 0 "
                              "(0 only at the first or last entry)")
         h = np.diff(t)
         coef = np.zeros((4, len(h)))

@@ -31,7 +31,9 @@ import numpy as np
 import scipy.fft as sfft
 from numpy.lib.stride_tricks import sliding_window_view
 
-from workbench.angle._common import finite_real, iter_chunks, one_d, positive_int, positive_rate
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import iter_chunks, one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.angle.tracking import AngleSignal, iter_resample_to_angle
 from workbench.errors import FoldlineWarning, InputError
@@ -101,7 +103,7 @@ def _window(window, n: int) -> np.ndarray:
 
         w = get_window(window, n, fftbins=True)
     except (ValueError, TypeError) as exc:
-        raise InputError(f"window {window!r} is not valid ({exc}); allowed: a window name or "
+        raise InputError(f"window = {show(window)}: {exc}; allowed: a window name or "
                          "tuple understood by scipy.signal.get_window, e.g. 'hann', "
                          "'flattop', ('kaiser', 14)") from None
     return np.asarray(w, dtype=np.float64)
@@ -132,7 +134,7 @@ def window_gains(window="hann", n: int = 1024) -> WindowGains:
     >>> g.coherent_gain, g.enbw_bins
     (0.5, 1.5)
     """
-    n = positive_int(n, "n", 2)
+    n = checks.positive_int(None, "n", n, low=2, whole_float=False)
     w = _window(window, n)
     s1 = float(w.sum())
     return WindowGains(str(window), n, round(s1 / n, 15), round(n * float((w * w).sum()) / s1 ** 2,
@@ -328,10 +330,10 @@ class OrderPeaks:
 
 def _check_options(window, overlap, scaling):
     if scaling not in SCALINGS:
-        raise InputError(f"scaling {scaling!r} is not valid; allowed: 'peak' or 'rms'")
-    overlap = finite_real(overlap, "overlap")
+        raise InputError(f"scaling = {show(scaling)}: must be 'peak' or 'rms'")
+    overlap = checks.real(None, "overlap", overlap)
     if not 0 <= overlap < 1:
-        raise InputError(f"overlap {overlap!r} is not valid; allowed: 0 <= overlap < 1 "
+        raise InputError(f"overlap = {show(overlap)}: must be 0 <= overlap < 1 "
                          "(fraction of a block)")
     return overlap
 
@@ -459,23 +461,23 @@ class _Blocks:
 def _revs_per_block(revs_per_block, order_resolution, samples_per_rev: int) -> tuple[float, int]:
     """Block length in revolutions and samples from either setting (warn when adjusted)."""
     if revs_per_block is not None and order_resolution is not None:
-        rpb = finite_real(revs_per_block, "revs_per_block")
-        res = finite_real(order_resolution, "order_resolution")
+        rpb = checks.real(None, "revs_per_block", revs_per_block)
+        res = checks.real(None, "order_resolution", order_resolution)
         if res <= 0 or abs(rpb * res - 1) > 1e-9:
             raise InputError(f"revs_per_block {rpb:g} and order_resolution {res:g} disagree; "
                              "allowed: give one of them (order_resolution = 1 / revs_per_block)")
     elif order_resolution is not None:
-        res = finite_real(order_resolution, "order_resolution")
+        res = checks.real(None, "order_resolution", order_resolution)
         if res <= 0:
-            raise InputError(f"order_resolution {res!r} is not valid; allowed: a number > 0 "
+            raise InputError(f"order_resolution = {show(res)}: must be a number > 0 "
                              "(orders)")
         rpb = 1.0 / res
     elif revs_per_block is not None:
-        rpb = finite_real(revs_per_block, "revs_per_block")
+        rpb = checks.real(None, "revs_per_block", revs_per_block)
     else:
         rpb = float(DEFAULT_REVS_PER_BLOCK)
     if rpb <= 0:
-        raise InputError(f"revs_per_block {rpb!r} is not valid; allowed: a number > 0")
+        raise InputError(f"revs_per_block = {show(rpb)}: must be a number > 0")
     n = round(rpb * samples_per_rev)
     if n < 8:
         raise InputError(f"revs_per_block {rpb:g} gives {n} samples per block at "
@@ -538,9 +540,9 @@ class OrderAnalysis:
         _window(window, 8)
         self._scaling = scaling
         if max_order is not None:
-            max_order = finite_real(max_order, "max_order")
+            max_order = checks.real(None, "max_order", max_order)
             if max_order <= 0:
-                raise InputError(f"max_order {max_order!r} is not valid; allowed: > 0")
+                raise InputError(f"max_order = {show(max_order)}: must be > 0")
         self._max_order = max_order
         self._rpb_args = (revs_per_block, order_resolution)
         self._keep_map = bool(keep_map)
@@ -554,7 +556,7 @@ class OrderAnalysis:
         """Add the next angle-domain piece: it follows the previous one, or starts after a
         gap in the angle (blocks then start afresh: none spans the gap)."""
         if not isinstance(sig, AngleSignal):
-            raise InputError(f"piece of type {type(sig).__name__} is not valid; allowed: "
+            raise InputError(f"piece = {show(sig)}: must be "
                              "AngleSignal pieces (from resample_to_angle / iter_resample_to_angle)")
         if self._blocks is None:
             self._spr = sig.samples_per_rev
@@ -645,7 +647,7 @@ class OrderAnalysis:
 def _rpm_edges(rpm_bins, rpm: np.ndarray) -> np.ndarray:
     if isinstance(rpm_bins, Integral) and not isinstance(rpm_bins, bool):
         if rpm_bins < 1:
-            raise InputError(f"rpm_bins {rpm_bins!r} is not valid; allowed: a count >= 1 or "
+            raise InputError(f"rpm_bins = {show(rpm_bins)}: must be a count >= 1 or "
                              "increasing bin edges (rpm)")
         lo, hi = float(rpm.min()), float(rpm.max())
         if hi == lo:
@@ -654,7 +656,7 @@ def _rpm_edges(rpm_bins, rpm: np.ndarray) -> np.ndarray:
     edges = np.asarray(rpm_bins, dtype=np.float64)
     if edges.ndim != 1 or len(edges) < 2 or not np.all(np.diff(edges) > 0) or \
             not np.isfinite(edges).all():
-        raise InputError(f"rpm_bins {rpm_bins!r} is not valid; allowed: a count >= 1 or at "
+        raise InputError(f"rpm_bins = {show(rpm_bins)}: must be a count >= 1 or at "
                          "least two strictly increasing bin edges (rpm)")
     return edges
 
@@ -664,7 +666,7 @@ def _pieces(sig):
         return (sig,)
     if isinstance(sig, Iterable) and not isinstance(sig, (str, bytes, np.ndarray)):
         return sig
-    raise InputError(f"signal of type {type(sig).__name__} is not valid; allowed: an "
+    raise InputError(f"signal = {show(sig)}: must be an "
                      "AngleSignal or an iterable of consecutive AngleSignal pieces")
 
 
@@ -799,13 +801,13 @@ def order_cut(source, order: float, *, bandwidth_orders: float | None = None,
     if isinstance(source, OrderMap) and map_options:
         raise InputError(f"options {sorted(map_options)} apply only when a signal is given; "
                          "this is already an OrderMap")
-    order = finite_real(order, "order")
+    order = checks.real(None, "order", order)
     if order <= 0:
-        raise InputError(f"order {order!r} is not valid; allowed: an order > 0")
+        raise InputError(f"order = {show(order)}: must be an order > 0")
     res = omap.order_resolution
     if bandwidth_orders is None:
         bandwidth_orders = 4.0 * res
-    bandwidth_orders = finite_real(bandwidth_orders, "bandwidth_orders")
+    bandwidth_orders = checks.real(None, "bandwidth_orders", bandwidth_orders)
     if bandwidth_orders < res:
         raise InputError(f"bandwidth_orders {bandwidth_orders:g} is narrower than one bin "
                          f"({res:g} orders); allowed: at least the order resolution")
@@ -859,17 +861,17 @@ def envelope_order_spectrum(x, rate_hz: float, angle: ShaftAngle, *, band_hz,
     .. [1] R. B. Randall and J. Antoni, "Rolling element bearing diagnostics - A tutorial",
        Mechanical Systems and Signal Processing 25(2):485-520, 2011.
     """
-    rate_hz = positive_rate(rate_hz)
+    rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
     xa = one_d(x, "x")
     try:
-        lo, hi = (finite_real(v, "band_hz") for v in band_hz)
+        lo, hi = (checks.real(None, "band_hz", v) for v in band_hz)
     except TypeError:
-        raise InputError(f"band_hz {band_hz!r} is not valid; allowed: two frequencies (lo, hi) "
+        raise InputError(f"band_hz = {show(band_hz)}: must be two frequencies (lo, hi) "
                          "in Hz") from None
     if not 0 < lo < hi < rate_hz / 2:
-        raise InputError(f"band_hz ({lo:g}, {hi:g}) is not valid; allowed: 0 < lo < hi < "
+        raise InputError(f"band_hz = [{lo:g}, {hi:g}]: must be 0 < lo < hi < "
                          f"rate/2 = {rate_hz / 2:g} Hz")
-    filter_order = positive_int(filter_order, "filter_order")
+    filter_order = checks.positive_int(None, "filter_order", filter_order, whole_float=False)
     if len(xa) < 64:
         raise InputError(f"x has {len(xa)} samples; allowed: at least 64")
     from scipy.signal import butter, hilbert, sosfiltfilt   # only on request: a second to import
@@ -917,17 +919,17 @@ def frequency_map(x, rate_hz: float, angle: ShaftAngle, *, nperseg: int = 4096,
     During a sweep, order k moves ``k x (d f_rot / dt) x T`` Hz within a block of ``T``
     seconds, i.e. ``k (d f_rot/dt) T^2`` bins: the smearing that order tracking removes.
     """
-    rate_hz = positive_rate(rate_hz)
+    rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
     if not isinstance(angle, ShaftAngle):
-        raise InputError(f"angle of type {type(angle).__name__} is not valid; allowed: a "
+        raise InputError(f"angle = {show(angle)}: must be a "
                          "ShaftAngle")
-    nperseg = positive_int(nperseg, "nperseg", 8)
+    nperseg = checks.positive_int(None, "nperseg", nperseg, low=8, whole_float=False)
     overlap = _check_options(window, overlap, scaling)
     n_keep = None
     if max_hz is not None:
-        max_hz = finite_real(max_hz, "max_hz")
+        max_hz = checks.real(None, "max_hz", max_hz)
         if max_hz <= 0:
-            raise InputError(f"max_hz {max_hz!r} is not valid; allowed: > 0 Hz")
+            raise InputError(f"max_hz = {show(max_hz)}: must be > 0 Hz")
         n_keep = int(math.floor(max_hz * nperseg / rate_hz + 1e-9)) + 1
     hop = max(1, round(nperseg * (1 - overlap)))
     edges = None
@@ -1102,22 +1104,22 @@ def find_order_peaks(spectrum: OrderSpectrum, *, n: int = 10, min_prominence_db:
        Fourier transform", Proceedings of the IEEE 66(1):51-83, 1978.
     """
     if not isinstance(spectrum, OrderSpectrum):
-        raise InputError(f"spectrum of type {type(spectrum).__name__} is not valid; allowed: an "
+        raise InputError(f"spectrum = {show(spectrum)}: must be an "
                          "OrderSpectrum")
-    n = positive_int(n, "n")
-    min_prominence_db = finite_real(min_prominence_db, "min_prominence_db")
+    n = checks.positive_int(None, "n", n, whole_float=False)
+    min_prominence_db = checks.real(None, "min_prominence_db", min_prominence_db)
     if min_prominence_db < 0:
-        raise InputError(f"min_prominence_db {min_prominence_db!r} is not valid; allowed: >= 0")
+        raise InputError(f"min_prominence_db = {show(min_prominence_db)}: must be >= 0")
     order, amp = spectrum.order, spectrum.amplitude
     lo_i, hi_i = 0, len(order)
     if order_range is not None:
         try:
-            lo, hi = (finite_real(v, "order_range") for v in order_range)
+            lo, hi = (checks.real(None, "order_range", v) for v in order_range)
         except TypeError:
-            raise InputError(f"order_range {order_range!r} is not valid; allowed: (lo, hi) "
+            raise InputError(f"order_range = {show(order_range)}: must be (lo, hi) "
                              "orders") from None
         if not lo < hi:
-            raise InputError(f"order_range ({lo:g}, {hi:g}) is not valid; allowed: lo < hi")
+            raise InputError(f"order_range = [{lo:g}, {hi:g}]: must be lo < hi")
         lo_i = int(np.searchsorted(order, lo, side="left"))
         hi_i = int(np.searchsorted(order, hi, side="right"))
     floor = np.finfo(np.float64).tiny

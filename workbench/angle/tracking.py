@@ -89,8 +89,9 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft as sfft
 
-from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, one_d,
-                                     positive_int, positive_rate)
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import CHUNK_SAMPLES, iter_chunks, one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
@@ -143,8 +144,8 @@ class AngleSignal:
         if d.ndim != 1 or r.shape != d.shape:
             raise InputError(f"AngleSignal: data has shape {d.shape} and rpm {r.shape}; allowed: "
                              "two 1-D arrays of the same length")
-        positive_int(self.samples_per_rev, "AngleSignal: samples_per_rev")
-        finite_real(self.revs_start, "AngleSignal: revs_start")
+        checks.positive_int(None, "AngleSignal: samples_per_rev", self.samples_per_rev, whole_float=False)
+        checks.real(None, "AngleSignal: revs_start", self.revs_start)
         object.__setattr__(self, "data", d)
         object.__setattr__(self, "rpm", r)
         object.__setattr__(self, "samples_per_rev", int(self.samples_per_rev))
@@ -197,7 +198,7 @@ def resolve_threads(threads, name: str = "threads") -> int:
     """Threads to use: ``None`` gives the machine's cores (``os.cpu_count()``), else an int >= 1."""
     if threads is None:
         return max(1, os.cpu_count() or 1)
-    return positive_int(threads, name)
+    return checks.positive_int(None, name, threads, whole_float=False)
 
 
 def kaiser_lowpass(n_taps: int, cutoff_hz: float, rate_hz: float, beta: float) -> np.ndarray:
@@ -379,10 +380,10 @@ class OrderTracker:
 
     def __init__(self, rate_hz: float, angle: ShaftAngle, *, samples_per_rev: int = 256,
                  protect: bool = True, max_order: float | None = None, threads: int | None = 1):
-        self.rate_hz = positive_rate(rate_hz)
+        self.rate_hz = checks.rate_hz(None, "rate_hz", rate_hz)
         self.threads = resolve_threads(threads)
         if not isinstance(angle, ShaftAngle):
-            raise InputError(f"angle of type {type(angle).__name__} is not valid; allowed: a "
+            raise InputError(f"angle = {show(angle)}: must be a "
                              "ShaftAngle (from tacho_angle, ShaftAngle.from_rpm or "
                              "ShaftAngle.from_speed_table)")
         self.angle = angle
@@ -396,16 +397,16 @@ class OrderTracker:
                           for a in angle.stretch_angles()]
             self._queues: list[list] = [[] for _ in self._subs]
             self._current = 0
-        self.samples_per_rev = positive_int(samples_per_rev, "samples_per_rev", 4)
+        self.samples_per_rev = checks.positive_int(None, "samples_per_rev", samples_per_rev, low=4, whole_float=False)
         if not isinstance(protect, (bool, np.bool_)):
-            raise InputError(f"protect {protect!r} is not valid; allowed: True or False")
+            raise InputError(f"protect = {show(protect)}: must be True or False")
         self.protect = bool(protect)
         nyq = self.samples_per_rev / 2.0
         if max_order is None:
             max_order = DEFAULT_MAX_ORDER_FRACTION * nyq
-        max_order = finite_real(max_order, "max_order")
+        max_order = checks.real(None, "max_order", max_order)
         if not 0 < max_order < 0.95 * nyq:
-            raise InputError(f"max_order {max_order!r} is not valid; allowed: 0 < max_order < "
+            raise InputError(f"max_order = {show(max_order)}: must be 0 < max_order < "
                              f"{0.95 * nyq:g} (0.95 x the order Nyquist samples_per_rev/2 = "
                              f"{nyq:g})")
         self.max_order = max_order

@@ -19,7 +19,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from workbench.angle._common import positive_rate
+from workbench import checks
+from workbench.checks import show
 from workbench.errors import InputError
 
 __all__ = ["ValidRegion", "valid_region", "lines_in_cut_band"]
@@ -98,11 +99,11 @@ def valid_region(rate_hz, aa_filter=None) -> ValidRegion:
     -------
     ValidRegion
     """
-    rate = positive_rate(rate_hz, "rate_hz")
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     if aa_filter is None:
         return ValidRegion(rate, 0.5 * rate, "rate", "")
     if not hasattr(aa_filter, "usable_edge_hz"):
-        raise InputError(f"aa_filter of type {type(aa_filter).__name__} is not valid; allowed: an "
+        raise InputError(f"aa_filter = {show(aa_filter)}: must be an "
                          "AntiAliasFilter (a plan's filter)")
     edge = min(float(aa_filter.usable_edge_hz(rate)), 0.5 * rate)
     text = aa_filter.describe() if hasattr(aa_filter, "describe") else str(aa_filter)

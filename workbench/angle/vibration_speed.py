@@ -35,8 +35,9 @@ from numpy.lib.stride_tricks import sliding_window_view
 from scipy import signal
 from scipy.ndimage import maximum_filter1d, median_filter, uniform_filter1d
 
-from workbench.angle._common import (CHUNK_SAMPLES, finite_real, iter_chunks, positive_int,
-                                     positive_rate)
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import CHUNK_SAMPLES, iter_chunks
 from workbench.angle.shaft_angle import ShaftAngle, _readonly   # one read-only copy rule
 from workbench.errors import FoldlineWarning, InputError
 
@@ -570,25 +571,25 @@ def speed_from_vibration(x, rate_hz: float, *, order: float, rpm_range, harmonic
     >>> bool(abs(est.angle.rpm_at(10.0) / 1800.0 - 1) < 1e-3)
     True
     """
-    rate = positive_rate(rate_hz)
-    k = finite_real(order, "order")
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
+    k = checks.real(None, "order", order)
     if k <= 0:
-        raise InputError(f"order {order!r} is not valid; allowed: an order > 0")
+        raise InputError(f"order = {show(order)}: must be an order > 0")
     lo, hi = _rpm_range(rpm_range)
-    n_harm = positive_int(harmonics, "harmonics")
-    bw = finite_real(bandwidth_orders, "bandwidth_orders")
+    n_harm = checks.positive_int(None, "harmonics", harmonics, whole_float=False)
+    bw = checks.real(None, "bandwidth_orders", bandwidth_orders)
     if not 0 < bw <= 2 * k:
-        raise InputError(f"bandwidth_orders {bandwidth_orders!r} is not valid; allowed: 0 < "
+        raise InputError(f"bandwidth_orders = {show(bandwidth_orders)}: must be 0 < "
                          f"bandwidth_orders <= 2 x order ({2 * k:g})")
-    wr = finite_real(window_revs, "window_revs")
+    wr = checks.real(None, "window_revs", window_revs)
     if wr < 1:
-        raise InputError(f"window_revs {window_revs!r} is not valid; allowed: >= 1 revolution")
-    mx = finite_real(max_rpm_per_s, "max_rpm_per_s")
+        raise InputError(f"window_revs = {show(window_revs)}: must be >= 1 revolution")
+    mx = checks.real(None, "max_rpm_per_s", max_rpm_per_s)
     if mx <= 0:
-        raise InputError(f"max_rpm_per_s {max_rpm_per_s!r} is not valid; allowed: > 0 rpm/s")
-    tol = finite_real(tolerance, "tolerance")
+        raise InputError(f"max_rpm_per_s = {show(max_rpm_per_s)}: must be > 0 rpm/s")
+    tol = checks.real(None, "tolerance", tolerance)
     if tol <= 0:
-        raise InputError(f"tolerance {tolerance!r} is not valid; allowed: a fraction > 0")
+        raise InputError(f"tolerance = {show(tolerance)}: must be a fraction > 0")
     f1_lo, f1_hi = lo / 60.0, hi / 60.0
     fk_hi = k * f1_hi
     if fk_hi >= 0.45 * rate:
@@ -781,10 +782,10 @@ def _rpm_range(rpm_range) -> tuple[float, float]:
     try:
         lo, hi = (float(v) for v in rpm_range)
     except (TypeError, ValueError):
-        raise InputError(f"rpm_range {rpm_range!r} is not valid; allowed: two speeds LO, HI in "
+        raise InputError(f"rpm_range = {show(rpm_range)}: must be two speeds LO, HI in "
                          "rpm with 0 < LO < HI") from None
     if not (math.isfinite(lo) and math.isfinite(hi) and 0 < lo < hi):
-        raise InputError(f"rpm_range ({lo:g}, {hi:g}) is not valid; allowed: 0 < LO < HI (rpm)")
+        raise InputError(f"rpm_range = [{lo:g}, {hi:g}]: must be 0 < LO < HI (rpm)")
     return lo, hi
 
 
@@ -851,15 +852,15 @@ def speed_from_channel(x, rate_hz: float, *, scale: float, offset: float = 0.0,
     >>> round(float(est.angle.rpm_at(5.0)), 3)
     1500.0
     """
-    rate = positive_rate(rate_hz)
-    s = finite_real(scale, "scale")
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
+    s = checks.real(None, "scale", scale)
     if s == 0:
-        raise InputError("scale 0 is not valid; allowed: the channel's rpm per unit, != 0")
-    off = finite_real(offset, "offset")
-    bwh = positive_rate(bandwidth_hz, "bandwidth_hz")
-    tol = finite_real(tolerance, "tolerance")
+        raise InputError("scale = 0: must be the channel's rpm per unit, != 0")
+    off = checks.real(None, "offset", offset)
+    bwh = checks.positive(None, "bandwidth_hz", bandwidth_hz, unit="Hz")
+    tol = checks.real(None, "tolerance", tolerance)
     if tol <= 0:
-        raise InputError(f"tolerance {tolerance!r} is not valid; allowed: a fraction > 0")
+        raise InputError(f"tolerance = {show(tolerance)}: must be a fraction > 0")
     if bwh >= 0.4 * rate:
         bwh = 0.4 * rate * 0.5
     # Decimated to 20 x bandwidth_hz: the FIR stays short (its taps reach about 0.6 /

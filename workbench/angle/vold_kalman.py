@@ -100,7 +100,9 @@ from math import comb
 import numpy as np
 from scipy.linalg import solveh_banded
 
-from workbench.angle._common import finite_real, one_d, positive_rate
+from workbench import checks
+from workbench.checks import show
+from workbench.angle._common import one_d
 from workbench.angle.shaft_angle import ShaftAngle
 from workbench.errors import FoldlineWarning, InputError
 
@@ -134,7 +136,7 @@ _BANDWIDTH_SPAN = 100.0
 
 def _filter_order(p) -> int:
     if isinstance(p, bool) or not isinstance(p, (int, np.integer)) or int(p) not in FILTER_ORDERS:
-        raise InputError(f"filter_order {p!r} is not valid; allowed: 1, 2 or 3 (order of the "
+        raise InputError(f"filter_order = {show(p)}: must be 1, 2 or 3 (order of the "
                          "structural equation: 2 is the usual choice)")
     return int(p)
 
@@ -167,10 +169,10 @@ def vk_weighting(bandwidth_hz, rate_hz, filter_order=2):
     20.487
     """
     p = _filter_order(filter_order)
-    rate = positive_rate(rate_hz)
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     b = np.asarray(bandwidth_hz, dtype=np.float64)
     if not np.all(np.isfinite(b)) or np.any(b <= 0) or np.any(b >= rate):
-        raise InputError(f"bandwidth_hz {bandwidth_hz!r} is not valid; allowed: 0 < B < the rate "
+        raise InputError(f"bandwidth_hz = {show(bandwidth_hz)}: must be 0 < B < the rate "
                          f"({rate:g} Hz)")
     return np.sqrt(_HALF_POWER / (2.0 - 2.0 * np.cos(np.pi * b / rate)) ** p)[()]
 
@@ -178,10 +180,10 @@ def vk_weighting(bandwidth_hz, rate_hz, filter_order=2):
 def vk_bandwidth_hz(weighting, rate_hz, filter_order=2):
     """-3 dB bandwidth (Hz) of a weighting factor ``r``: the inverse of :func:`vk_weighting`."""
     p = _filter_order(filter_order)
-    rate = positive_rate(rate_hz)
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     r = np.asarray(weighting, dtype=np.float64)
     if not np.all(np.isfinite(r)) or np.any(r <= 0):
-        raise InputError(f"weighting {weighting!r} is not valid; allowed: a finite number > 0")
+        raise InputError(f"weighting = {show(weighting)}: must be a finite number > 0")
     c = 1.0 - 0.5 * (_HALF_POWER / r ** 2) ** (1.0 / p)
     return (rate / np.pi * np.arccos(np.clip(c, -1.0, 1.0)))[()]
 
@@ -276,7 +278,7 @@ class OrderExtraction:
 
     def index(self, order) -> int:
         """Row of ``order`` in the arrays (nearest extracted order within 1e-9)."""
-        o = finite_real(order, "order")
+        o = checks.real(None, "order", order)
         d = np.abs(np.asarray(self.orders) - o)
         i = int(np.argmin(d))
         if d[i] > 1e-9 * max(1.0, abs(o)):
@@ -421,7 +423,7 @@ def _orders_tuple(orders) -> tuple:
     vals = np.atleast_1d(np.asarray(orders, dtype=np.float64)) if not isinstance(orders, str) \
         else np.array([np.nan])
     if vals.ndim != 1 or len(vals) == 0 or not np.all(np.isfinite(vals)) or np.any(vals <= 0):
-        raise InputError(f"orders {orders!r} is not valid; allowed: one or more positive orders, "
+        raise InputError(f"orders = {show(orders)}: must be one or more positive orders, "
                          "e.g. (4, 4.1)")
     if len(set(vals.tolist())) != len(vals):
         raise InputError(f"orders {orders!r}: an order is given twice; give each order once")
@@ -524,7 +526,7 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     >>> round(float(ex.amplitude[0, mid]), 6), round(float(np.radians(ex.phase_deg[0, mid])), 6)
     (0.5, 0.3)
     """
-    rate = positive_rate(rate_hz)
+    rate = checks.rate_hz(None, "rate_hz", rate_hz)
     p = _filter_order(filter_order)
     if not isinstance(angle, ShaftAngle):
         raise InputError("angle must be a ShaftAngle (from tacho_angle, ShaftAngle.from_rpm or "
@@ -534,19 +536,19 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
         raise InputError("give either bandwidth_hz (constant, Hz) or bandwidth_pct (percentage "
                          "of each order's frequency), not both")
     if bandwidth_pct is not None:
-        pct = finite_real(bandwidth_pct, "bandwidth_pct")
+        pct = checks.real(None, "bandwidth_pct", bandwidth_pct)
         if not 0 < pct < 100:
-            raise InputError(f"bandwidth_pct {bandwidth_pct!r} is not valid; allowed: 0 < pct "
+            raise InputError(f"bandwidth_pct = {show(bandwidth_pct)}: must be 0 < pct "
                              "< 100 (percent of the order's frequency)")
     else:
-        bw = DEFAULT_BANDWIDTH_HZ if bandwidth_hz is None else finite_real(bandwidth_hz,
-                                                                         "bandwidth_hz")
+        bw = DEFAULT_BANDWIDTH_HZ if bandwidth_hz is None else checks.real(
+            None, "bandwidth_hz", bandwidth_hz)
         if not 0 < bw < rate / 4:
-            raise InputError(f"bandwidth_hz {bandwidth_hz!r} is not valid; allowed: 0 < B < "
+            raise InputError(f"bandwidth_hz = {show(bandwidth_hz)}: must be 0 < B < "
                              f"{rate / 4:g} Hz (a quarter of the rate)")
     x = one_d(x, "x")
     n = len(x)
-    start = finite_real(start_s, "start_s")
+    start = checks.real(None, "start_s", start_s)
     i0 = max(0, int(math.ceil((angle.t_start_s - start) * rate - 1e-9)))
     i1 = min(n, int(math.floor((angle.t_end_s - start) * rate + 1e-9)) + 1)
     if i1 - i0 < 2:
@@ -570,9 +572,9 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     else:
         b_max = b_min = bw
     if envelope_rate_hz is not None:
-        want = finite_real(envelope_rate_hz, "envelope_rate_hz")
+        want = checks.real(None, "envelope_rate_hz", envelope_rate_hz)
         if not 0 < want <= rate:
-            raise InputError(f"envelope_rate_hz {envelope_rate_hz!r} is not valid; allowed: 0 < "
+            raise InputError(f"envelope_rate_hz = {show(envelope_rate_hz)}: must be 0 < "
                              f"rate <= the channel's rate {rate:g} Hz")
         ratio = max(1, int(round(rate / want)))
     else:
@@ -683,7 +685,7 @@ def extract_orders(x, rate_hz, angle: ShaftAngle, orders, *, bandwidth_hz=None,
     if section_s is None:
         section = max(4 * overlap, 1 << 16)
     else:
-        section = max(1, int(round(finite_real(section_s, "section_s") * env_rate)))
+        section = max(1, int(round(checks.real(None, "section_s", section_s) * env_rate)))
     a = _solve_sections(y, coupling, w, p, section, overlap)
     n_sections = -(-n_env // section)
     log.append(f"{n_env} envelope samples solved in {n_sections} section(s), overlap "

@@ -19,7 +19,8 @@ from dataclasses import dataclass
 from typing import ClassVar, Union
 
 from workbench.errors import FoldlineWarning, MachineFileError
-from workbench.machine._fields import _check_int, _check_name, _check_real, _error, _fmt, _set
+from workbench.checks import show
+from workbench.machine._fields import _check_int, _check_name, _check_real, _error, _set
 from workbench.machine.kinematics import (BearingFrequencies, PlanetaryFrequencies,
                                           bearing_frequencies, planetary_frequencies)
 from workbench.machine.lines import Line, _line
@@ -261,7 +262,7 @@ class PlanetaryStage(_Entry):
             _check_name(label, field, getattr(self, field))
         held = [m for m in _PLANETARY_MEMBERS if getattr(self, m) == FIXED]
         if len(held) != 1:
-            shown = ", ".join(f"{m} = {_fmt(getattr(self, m))}" for m in _PLANETARY_MEMBERS)
+            shown = ", ".join(f"{m} = {show(getattr(self, m))}" for m in _PLANETARY_MEMBERS)
             what = "no member is" if not held else f"{len(held)} members are"
             raise MachineFileError(
                 f"{label}: {shown}: {what} \"{FIXED}\"; exactly one of sun, carrier, ring must "
@@ -380,7 +381,7 @@ class Bearing(_Entry):
         if self.element_diameter >= self.pitch_diameter:
             raise _error(
                 label, "element_diameter", self.element_diameter,
-                f"must be smaller than pitch_diameter = {_fmt(self.pitch_diameter)} "
+                f"must be smaller than pitch_diameter = {show(self.pitch_diameter)} "
                 "(same length unit)",
             )
         angle = _check_real(label, "contact_angle_deg", self.contact_angle_deg)

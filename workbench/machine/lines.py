@@ -11,6 +11,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from workbench.checks import describe, show
 from workbench.errors import InputError
 from workbench.machine._fields import _check_int, _check_real, _set
 
@@ -103,15 +104,14 @@ class Line:
     def __post_init__(self) -> None:
         label = f"line '{self.name}'"
         if not isinstance(self.name, str) or not self.name:
-            raise InputError(f"line name = {self.name!r}: must be a non-empty string")
+            raise InputError(describe("line name", self.name, "must be a non-empty string"))
         if self.kind not in LINE_KINDS:
-            raise InputError(
-                f"{label}: kind = {self.kind!r}: must be one of {', '.join(LINE_KINDS)}"
-            )
+            raise InputError(f"{label}: " + describe("kind", self.kind, "must be one of "
+                                                     + ", ".join(LINE_KINDS)))
         _set(self, "harmonic", _check_int(label, "harmonic", self.harmonic, 1, cls=InputError))
         if (self.order is None) == (self.hz is None):
             raise InputError(
-                f"{label}: order = {self.order!r}, hz = {self.hz!r}: give exactly one of "
+                f"{label}: order = {show(self.order)}, hz = {show(self.hz)}: give exactly one of "
                 "order (a line that moves with speed) or hz (a fixed line)"
             )
         for field in ("order", "hz"):

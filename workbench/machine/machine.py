@@ -9,13 +9,13 @@ orders relative to the reference shaft.
 
 from __future__ import annotations
 
-import difflib
 import math
 from collections import deque
 from dataclasses import dataclass
 
 from workbench.errors import InputError, MachineFileError, TrainError
-from workbench.machine._fields import _check_name, _error, _set, _suggest
+from workbench.checks import close_names, suggest
+from workbench.machine._fields import _check_name, _error, _set
 from workbench.machine.entries import (SOURCE_TYPES, Critical, Resonance, Shaft, Source,
                                        _Entry)
 from workbench.machine.lines import Line
@@ -118,7 +118,7 @@ class Machine:
             raise _error(
                 label, "reference", self.reference,
                 f"is not a shaft; shafts are {_names(shaft_names)}"
-                + _suggest(self.reference, shaft_names),
+                + suggest(self.reference, shaft_names),
             )
         for item in self.sources:
             for field, shaft in item.shafts_used():
@@ -126,7 +126,7 @@ class Machine:
                     raise _error(
                         item.label, field, shaft,
                         f"no such [[shaft]]; shafts are {_names(shaft_names)}"
-                        + _suggest(shaft, shaft_names),
+                        + suggest(shaft, shaft_names),
                     )
 
     @property
@@ -249,7 +249,7 @@ class Machine:
         lines = {line.name: line for line in self.lines()}
         if name in lines:
             return lines[name]
-        close = difflib.get_close_matches(name, list(lines), n=3, cutoff=0.6)
+        close = close_names(name, lines, n=3)
         hint = f"; did you mean {_names(close)}?" if close else ""
         raise MachineFileError(
             f"[machine] '{self.name}': no line named '{name}'{hint} "

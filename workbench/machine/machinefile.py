@@ -31,7 +31,6 @@ machine whose sources are grouped by kind (every machine read from a file is).
 from __future__ import annotations
 
 import contextlib
-import difflib
 import os
 import tomllib
 import warnings
@@ -39,6 +38,7 @@ from collections.abc import Mapping
 from dataclasses import MISSING, fields
 
 from workbench.machine.filekind import wrong_file_hint
+from workbench.checks import close_names
 from workbench.errors import FoldlineWarning, InputError, MachineFileError, where
 from workbench.fileio import write_text
 from workbench.machine.entries import MODE_TYPES, SOURCE_TYPES, Shaft
@@ -90,7 +90,7 @@ def _located(source: str):
 def _check_keys(source: str, label: str, entry: Mapping, allowed, required) -> None:
     for key in entry:
         if key not in allowed:
-            close = difflib.get_close_matches(str(key), allowed, n=1, cutoff=0.6)
+            close = close_names(key, allowed)
             hint = f"did you mean '{close[0]}'? " if close else ""
             raise MachineFileError(
                 f"{where(source, label)}: unknown key '{key}'; {hint}"
@@ -144,7 +144,7 @@ def machine_from_dict(d: Mapping, source: str = "<dict>") -> Machine:
         )
     for table in d:
         if table not in _TABLES:
-            close = difflib.get_close_matches(str(table), _TABLES, n=1, cutoff=0.6)
+            close = close_names(table, _TABLES)
             hint = f"did you mean {_table_label(close[0])}? " if close else ""
             raise MachineFileError(
                 f"{source}: unknown table [{table}]; {hint}allowed tables are "

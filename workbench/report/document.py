@@ -40,6 +40,7 @@ from workbench.fileio import file_sha256
 from workbench.machine.lines import kind_name
 from workbench.runs.cut_orders import default_cut_orders
 from workbench.sampling import ANALYSER_FACTOR
+from workbench.sampling.foldmap import COLLISION_COLUMNS, COLLISION_DECIMALS, COLLISION_HEADINGS
 from workbench.report.html import (Column, esc, figure_svg, fixed, general, key_value_html, page,
                                    table_html, yes_no)
 
@@ -215,15 +216,11 @@ _CANDIDATE_COLUMNS = (
     Column("captures_max_order", "captures highest order", yes_no),
 )
 
-_COLLISION_COLUMNS = (
-    Column("line", "line"),
-    Column("band", "band"),
-    Column("rpm_min", "from (rpm)", fixed(0), numeric=True),
-    Column("rpm_max", "to (rpm)", fixed(0), numeric=True),
-    Column("zone", "zone", str, numeric=True),
-    Column("apparent_hz_min", "apparent from (Hz)", fixed(1), numeric=True),
-    Column("apparent_hz_max", "apparent to (Hz)", fixed(1), numeric=True),
-    Column("residual_db", "residual (dB)", fixed(1), numeric=True),
+_COLLISION_COLUMNS = tuple(
+    Column(key, COLLISION_HEADINGS[key],
+           None if key not in COLLISION_DECIMALS else str if key == "zone"
+           else fixed(COLLISION_DECIMALS[key]), numeric=key in COLLISION_DECIMALS)
+    for key in COLLISION_COLUMNS
 )
 
 _BAND_COLUMNS = (

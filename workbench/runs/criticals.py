@@ -18,12 +18,12 @@ import math
 import warnings
 from dataclasses import dataclass, field
 
-import numpy as np
 
 from workbench.angle import iter_resample_to_angle, frequency_map
 from workbench.angle.order_tracks import (DEFAULT_TRACK_ORDERS, DEFAULT_TRACK_REVS_PER_BLOCK,
                                           CriticalSpeed, OrderTrack, RejectedPeak,
                                           find_track_criticals, order_tracks)
+from workbench.checks import positive, positive_int
 from workbench.errors import FoldlineWarning, InputError
 from workbench.runs.analysis import (CHUNK_S, SPEED_OPTIONS, _channel_index, _machine_for,
                                      _vibration_channel, run_speed)
@@ -206,15 +206,10 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
                          f"{', '.join(SPEED_OPTIONS)}")
     run = run_or_path if isinstance(run_or_path, Run) else read_run(run_or_path, rate_hz=rate_hz)
     source = str(run.source or "<memory>")
-    spr = samples_per_rev
-    if isinstance(spr, bool) or not isinstance(spr, (int, np.integer)) or \
-            not MIN_SAMPLES_PER_REV <= spr <= MAX_SAMPLES_PER_REV:
-        raise InputError(f"--samples-per-rev {samples_per_rev!r}: must be a whole number from "
-                         f"{MIN_SAMPLES_PER_REV} to {MAX_SAMPLES_PER_REV}")
-    rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else float(revs_per_block)
-    if not math.isfinite(rpb) or rpb <= 0:
-        raise InputError(f"--revs-per-block {revs_per_block!r}: must be a positive number of "
-                         "revolutions")
+    spr = positive_int(None, "--samples-per-rev", samples_per_rev, low=MIN_SAMPLES_PER_REV,
+                       high=MAX_SAMPLES_PER_REV, whole_float=False)
+    rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else positive(
+        None, "--revs-per-block", revs_per_block, unit="revolutions")
     orders = tuple(float(o) for o in orders)
     if max(orders) >= usable_max_order(spr):
         raise InputError(f"--orders {','.join(f'{o:g}' for o in orders)}: order {max(orders):g} "

@@ -32,7 +32,6 @@ for MDF4 and HDF5, whose channels have names, it picks channels by name and only
 
 from __future__ import annotations
 
-import math
 import os
 import warnings
 from collections.abc import Callable, Sequence
@@ -41,6 +40,7 @@ from typing import Any
 
 import numpy as np
 
+from workbench.checks import describe, rate_hz as check_rate
 from workbench.errors import FoldlineWarning, InputError, RunFileError
 from workbench.fileio import atomic_output, check_writable
 from workbench.runs.formats import (RunFormat, ReadRequest, format_for, known_suffixes,
@@ -109,8 +109,8 @@ def _wanted(channels: Sequence[str] | None, meta: Sidecar | None,
     if channels is not None:
         if isinstance(channels, str) or not all(isinstance(c, str) and c for c in channels) \
                 or not channels:
-            raise InputError(f"channels {channels!r} is not valid; allowed: a non-empty list of "
-                             "channel names")
+            raise InputError(describe("channels", channels, "must be a non-empty list of "
+                                      "channel names"))
         names = list(dict.fromkeys(channels))
     elif fmt.selects_channels and meta and meta.channels:
         names = [c.name for c in meta.channels]
@@ -228,9 +228,8 @@ def read_run(path: str | os.PathLike, *, rate_hz: float | None = None,
         raise RunFileError(f"{path}: no such file")
     if path.stat().st_size == 0:
         raise RunFileError(f"{path}: is empty (0 bytes)")
-    if rate_hz is not None and (isinstance(rate_hz, bool) or not isinstance(
-            rate_hz, (int, float, np.number)) or not math.isfinite(rate_hz) or rate_hz <= 0):
-        raise InputError(f"rate {rate_hz!r} is not valid; allowed: a number > 0 (Hz)")
+    if rate_hz is not None:
+        check_rate(None, "rate_hz", rate_hz)
     if isinstance(sidecar, Sidecar):
         meta: Sidecar | None = sidecar
     elif sidecar is not None:

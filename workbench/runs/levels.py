@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from workbench.checks import positive
 from workbench.errors import InputError
 
 __all__ = ["band_levels", "band_level_series"]
@@ -57,9 +58,7 @@ def band_level_series(order_map, band, lines=()) -> np.ndarray:
     if amp.shape != (rpm.size, order.size):
         raise InputError(f"order map amplitude has shape {amp.shape}; expected (len(rpm), "
                          f"len(order)) = ({rpm.size}, {order.size})")
-    enbw = float(getattr(order_map, "enbw_bins", 1.5))
-    if not np.isfinite(enbw) or enbw <= 0:
-        raise InputError(f"order map enbw_bins = {enbw!r}: must be a positive number of bins")
+    enbw = positive("order map", "enbw_bins", getattr(order_map, "enbw_bins", 1.5), unit="bins")
     out = np.full(rpm.shape, np.nan)
     good = np.isfinite(rpm) & (rpm > 0)
     if not good.any():

@@ -22,9 +22,9 @@ operator="A. Test"``, ``--meta vibration.position="gearbox input"`` for a channe
 from __future__ import annotations
 
 import datetime as _dt
-import difflib
 from dataclasses import dataclass, replace
 
+from workbench.checks import close_names, show
 from workbench.errors import InputError
 
 __all__ = ["TestMetadata", "SensorInfo", "META_KEYS", "SENSOR_KEYS", "META_LABELS",
@@ -43,7 +43,7 @@ META_LABELS = {"unit_under_test": "unit under test", "serial_number": "serial nu
 def check_date(value, loc: str) -> str:
     """``value`` if it is an ISO 8601 date or date and time, else InputError naming ``loc``."""
     if not isinstance(value, str) or not value.strip():
-        raise InputError(f"{loc}: {value!r} is not valid; allowed: an ISO 8601 date such as "
+        raise InputError(f"{loc} = {show(value)}: must be an ISO 8601 date such as "
                          "2026-11-30 (or date and time, 2026-11-30T14:05)")
     text = value.strip()
     try:
@@ -52,14 +52,14 @@ def check_date(value, loc: str) -> str:
         else:
             _dt.datetime.fromisoformat(text)
     except ValueError:
-        raise InputError(f"{loc}: {value!r} is not a date; allowed: an ISO 8601 date such as "
-                         "2026-11-30 (or date and time, 2026-11-30T14:05)") from None
+        raise InputError(f"{loc} = {show(value)}: is not a date; allowed: an ISO 8601 date "
+                         "such as 2026-11-30 (or date and time, 2026-11-30T14:05)") from None
     return text
 
 
 def _text(value, loc: str) -> str:
     if not isinstance(value, str):
-        raise InputError(f"{loc}: {value!r} is not valid; allowed: a text in quotes")
+        raise InputError(f"{loc} = {show(value)}: must be a text in quotes")
     return value.strip()
 
 
@@ -156,7 +156,7 @@ class TestMetadata:
                 continue
             channel, _, field_ = key.rpartition(".")
             if not channel or field_ not in SENSOR_KEYS:
-                hint = difflib.get_close_matches(key, META_KEYS + SENSOR_KEYS, n=1, cutoff=0.6)
+                hint = close_names(key, META_KEYS + SENSOR_KEYS)
                 raise InputError(
                     f"--meta {key}={value}: unknown key{f' (did you mean {hint[0]!r}?)' if hint else ''}; "
                     f"allowed: {', '.join(META_KEYS)}, or CHANNEL.{'/'.join(SENSOR_KEYS)} for a "

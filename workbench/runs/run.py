@@ -24,7 +24,6 @@ import mmap
 
 import dataclasses
 import datetime as _dt
-import math
 import numbers
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -32,6 +31,7 @@ from typing import Any
 
 import numpy as np
 
+from workbench.checks import FieldError, positive, positive_int, rate_hz, show
 from workbench.errors import InputError
 
 __all__ = ["Channel", "Run", "LogEntry", "full_scale", "log_entry", "describe_log_entry"]
@@ -112,16 +112,12 @@ class Channel:
 
     def __post_init__(self) -> None:
         if not isinstance(self.name, str) or not self.name.strip():
-            raise InputError(f"channel name {self.name!r} is not valid; allowed: a non-empty "
-                             "string")
+            raise FieldError("Channel", "name", "must be a non-empty string", self.name)
         if not isinstance(self.unit, str):
-            raise InputError(f"channel '{self.name}': unit {self.unit!r} is not valid; allowed: "
-                             "a string")
-        s = self.sensitivity
-        if isinstance(s, bool) or not isinstance(s, numbers.Real) or not math.isfinite(s) or s <= 0:
-            raise InputError(f"channel '{self.name}': sensitivity {s!r} is not valid; allowed: a "
-                             "finite number > 0 (raw units per physical unit)")
-        object.__setattr__(self, "sensitivity", float(s))
+            raise FieldError(f"channel '{self.name}'", "unit", "must be a string", self.unit)
+        object.__setattr__(self, "sensitivity", positive(
+            f"channel '{self.name}'", "sensitivity", self.sensitivity,
+            unit="raw units per physical unit"))
 
 
 def _now_iso() -> str:
@@ -161,10 +157,10 @@ def _as_log_entry(entry: Any, parameters: Mapping[str, Any] | None) -> LogEntry:
         stamp, action, params = entry
         if not isinstance(stamp, str) or not isinstance(action, str) or not isinstance(
                 params, Mapping):
-            raise InputError(f"log entry {entry!r} is not valid; allowed: (timestamp str, action "
-                             "str, parameters mapping)")
+            raise InputError(f"log entry = {show(entry)}: must be (timestamp str, action str, "
+                             "parameters mapping)")
         return (stamp, action, dict(params))
-    raise InputError(f"log entry {entry!r} is not valid; allowed: an action string, (action, "
+    raise InputError(f"log entry = {show(entry)}: must be an action string, (action, "
                      "parameters) or (timestamp, action, parameters)")
 
 
@@ -216,10 +212,7 @@ class Run:
             raise InputError(f"run data has shape {data.shape}; allowed: (n_channels, n_samples)")
         full_scale(data.dtype)  # rejects unsupported dtypes
         object.__setattr__(self, "data", data)
-        r = self.rate_hz
-        if isinstance(r, bool) or not isinstance(r, numbers.Real) or not math.isfinite(r) or r <= 0:
-            raise InputError(f"rate_hz {r!r} is not valid; allowed: a finite number > 0 (Hz)")
-        object.__setattr__(self, "rate_hz", float(r))
+        object.__setattr__(self, "rate_hz", rate_hz(None, "rate_hz", self.rate_hz))
         if isinstance(self.channels, (str, Channel)) or not isinstance(self.channels, Sequence):
             raise InputError("channels must be a sequence of Channel objects or names")
         chans = tuple(c if isinstance(c, Channel) else Channel(c) for c in self.channels)
@@ -231,14 +224,12 @@ class Run:
         if dup:
             raise InputError(f"channel names must be unique; repeated: {', '.join(dup)}")
         object.__setattr__(self, "channels", chans)
-        if not _is_int(self.pulses_per_rev) or self.pulses_per_rev < 1:
-            raise InputError(f"pulses_per_rev {self.pulses_per_rev!r} is not valid; allowed: an "
-                             "integer >= 1 (tooth positions per revolution, missing ones included)")
-        if not _is_int(self.missing_pulses) or not 0 <= self.missing_pulses < self.pulses_per_rev:
-            raise InputError(f"missing_pulses {self.missing_pulses!r} is not valid; allowed: an "
-                             f"integer from 0 to pulses_per_rev - 1 = {self.pulses_per_rev - 1}")
-        object.__setattr__(self, "pulses_per_rev", int(self.pulses_per_rev))
-        object.__setattr__(self, "missing_pulses", int(self.missing_pulses))
+        ppr = positive_int(None, "pulses_per_rev", self.pulses_per_rev, whole_float=False,
+                           what="tooth positions per revolution, missing ones included")
+        object.__setattr__(self, "pulses_per_rev", ppr)
+        object.__setattr__(self, "missing_pulses", positive_int(
+            None, "missing_pulses", self.missing_pulses, low=0, high=ppr - 1, whole_float=False,
+            what="pulses_per_rev - 1 at most"))
         if self.tacho is not None:
             object.__setattr__(self, "tacho", chans[self.channel_index(self.tacho)].name)
         for name in ("machine_file", "source"):
@@ -358,12 +349,9 @@ class Run:
             A new array per chunk; only that chunk is read from a memory-mapped file.
         """
         i = self.channel_index(ch)
-        if not _is_int(chunk_samples) or chunk_samples < 1:
-            raise InputError(f"chunk_samples {chunk_samples!r} is not valid; allowed: an integer "
-                             ">= 1")
-        if not _is_int(overlap) or not 0 <= overlap < chunk_samples:
-            raise InputError(f"overlap {overlap!r} is not valid; allowed: an integer from 0 to "
-                             f"chunk_samples - 1 = {chunk_samples - 1}")
+        positive_int(None, "chunk_samples", chunk_samples, whole_float=False)
+        positive_int(None, "overlap", overlap, low=0, high=chunk_samples - 1, whole_float=False,
+                     what="chunk_samples - 1 at most")
         step = chunk_samples - overlap
         n = self.n_samples
         start = 0
@@ -401,9 +389,7 @@ class Run:
         rows = [self.channel_index(c) for c in chs]
         if not rows:
             raise InputError("no channel to read; give at least one")
-        if not _is_int(chunk_samples) or chunk_samples < 1:
-            raise InputError(f"chunk_samples {chunk_samples!r} is not valid; allowed: an integer "
-                             ">= 1")
+        positive_int(None, "chunk_samples", chunk_samples, whole_float=False)
         fs = full_scale(self.data.dtype)
         scale = np.array([1.0 / (fs * self.channels[i].sensitivity) for i in rows]).astype(dtype)
         n = self.n_samples

@@ -28,15 +28,13 @@ and the message suggests the closest known key.
 
 from __future__ import annotations
 
-import difflib
 import json
-import math
-import numbers
 import os
 from dataclasses import dataclass
 from pathlib import Path, PurePosixPath, PureWindowsPath
 from typing import Any
 
+from workbench.checks import FieldError, close_names, describe, positive, positive_int, rate_hz, show
 from workbench.errors import InputError, RunFileError, where
 from workbench.runs.metadata import META_KEYS, SENSOR_KEYS, SensorInfo, TestMetadata
 from workbench.fileio import atomic_output
@@ -56,7 +54,7 @@ def sidecar_path(run_path: str | os.PathLike) -> Path:
 
 
 def _unknown(key: str, allowed: tuple[str, ...], loc: str) -> RunFileError:
-    close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.6)
+    close = close_names(key, allowed)
     hint = f" (did you mean '{close[0]}'?)" if close else ""
     return RunFileError(f"{loc}: unknown key '{key}'{hint}; allowed: {', '.join(allowed)}")
 
@@ -85,38 +83,34 @@ def resolve_inside(folder: str | os.PathLike, rel: str, loc: str) -> Path:
         (through a symbolic link) outside ``folder``.
     """
     if not isinstance(rel, str) or not rel.strip():
-        raise RunFileError(f"{loc}: {rel!r} is not valid; allowed: a file name relative to the "
+        raise RunFileError(f"{loc} = {show(rel)}: must be a file name relative to the "
                            "sidecar's folder")
     pure = PurePosixPath(rel.replace("\\", "/"))
     if pure.is_absolute() or PureWindowsPath(rel).is_absolute() or PureWindowsPath(rel).drive \
             or rel.startswith("~"):
-        raise RunFileError(f"{loc}: {rel!r} is an absolute path; allowed: a file in the "
+        raise RunFileError(f"{loc} = {show(rel)}: is an absolute path; allowed: a file in the "
                            "sidecar's own folder, given relative to it")
     if ".." in pure.parts:
-        raise RunFileError(f"{loc}: {rel!r} leads out of the sidecar's folder ('..'); allowed: "
-                           "a file in the sidecar's own folder")
+        raise RunFileError(f"{loc} = {show(rel)}: leads out of the sidecar's folder ('..'); "
+                           "allowed: a file in the sidecar's own folder")
     base = Path(folder).resolve()
     target = (base / Path(*pure.parts)).resolve()
     if not target.is_relative_to(base):
-        raise RunFileError(f"{loc}: {rel!r} resolves to {target} through a symbolic link, "
+        raise RunFileError(f"{loc} = {show(rel)}: resolves to {target} through a symbolic link, "
                            f"outside the sidecar's folder {base}; copy the file into the folder")
     return target
 
 
-def _check_rate(value: Any, loc: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real) or not math.isfinite(
-            value) or value <= 0:
-        raise RunFileError(f"{loc}: {value!r} is not valid; allowed: a number > 0 (Hz)")
-    return float(value)
+def _bad(loc: str, field: str, value: Any, rule: str, cls=RunFileError) -> Exception:
+    """``loc: field = value: rule`` as a RunFileError (or `cls`)."""
+    return cls(f"{loc}: {describe(field, value, rule)}")
 
 
-def _check_int(value: Any, lo: int, hi: int | None, loc: str, what: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < lo or (
-            hi is not None and value > hi):
-        upper = f" to {hi}" if hi is not None else " or more"
-        raise RunFileError(f"{loc}: {value!r} is not valid; allowed: a whole number from "
-                           f"{lo}{upper} ({what})")
-    return int(value)
+def _check_int(value: Any, lo: int, hi: int | None, loc: str, field: str, what: str) -> int:
+    try:
+        return positive_int(None, field, value, low=lo, high=hi, whole_float=False, what=what)
+    except FieldError as exc:
+        raise RunFileError(f"{loc}: {exc}") from None
 
 
 @dataclass(frozen=True)
@@ -160,11 +154,13 @@ class Sidecar:
         loc = self.source or "<sidecar>"
         object.__setattr__(self, "channels", tuple(self.channels))
         if self.rate_hz is not None:
-            object.__setattr__(self, "rate_hz", _check_rate(self.rate_hz, where(loc, None,
-                                                                                "rate_hz")))
-        ppr = _check_int(self.pulses_per_rev, 1, None, where(loc, None, "pulses_per_rev"),
+            try:
+                object.__setattr__(self, "rate_hz", rate_hz(None, "rate_hz", self.rate_hz))
+            except FieldError as exc:
+                raise RunFileError(f"{loc}: {exc}") from None
+        ppr = _check_int(self.pulses_per_rev, 1, None, loc, "pulses_per_rev",
                          "tooth positions per revolution, missing ones included")
-        _check_int(self.missing_pulses, 0, ppr - 1, where(loc, None, "missing_pulses"),
+        _check_int(self.missing_pulses, 0, ppr - 1, loc, "missing_pulses",
                    "consecutive missing tooth positions, fewer than pulses_per_rev")
         names = [c.name for c in self.channels]
         dup = sorted({n for n in names if names.count(n) > 1})
@@ -172,18 +168,17 @@ class Sidecar:
             raise RunFileError(f"{where(loc, None, 'channels')}: names must be unique; repeated: "
                                f"{', '.join(dup)}")
         t = self.tacho_channel
-        tloc = where(loc, None, "tacho_channel")
         if isinstance(t, str) and t.strip() and not t.strip().isdigit():
             if names and t not in names:
-                raise RunFileError(f"{tloc}: {t!r} is not one of the channels "
-                                   f"({', '.join(names)})")
+                raise _bad(loc, "tacho_channel", t, f"is not one of the channels "
+                                                    f"({', '.join(names)})")
         elif t is not None:
             index = int(t) if isinstance(t, str) and t.strip().isdigit() else t
-            _check_int(index, 1, len(names) or None, tloc, "a channel name, or a 1-based "
-                       "channel index")
+            _check_int(index, 1, len(names) or None, loc, "tacho_channel", "a channel name, or "
+                       "a 1-based channel index")
         if self.machine_file is not None and not isinstance(self.machine_file, str):
-            raise RunFileError(f"{where(loc, None, 'machine_file')}: {self.machine_file!r} is not "
-                               "valid; allowed: a file name relative to the sidecar's folder")
+            raise _bad(loc, "machine_file", self.machine_file, "must be a file name relative "
+                                                               "to the sidecar's folder")
 
     @property
     def machine_path(self) -> Path | None:
@@ -234,7 +229,7 @@ def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
 def _channel(entry: Any, i: int, loc: str) -> Channel:
     cloc = where(loc, f"channels[{i + 1}]")
     if not isinstance(entry, dict):
-        raise RunFileError(f"{cloc}: {entry!r} is not valid; allowed: an object with name, unit, "
+        raise RunFileError(f"{cloc} = {show(entry)}: must be an object with name, unit, "
                            "sensitivity")
     for key in entry:
         if key not in _CHANNEL_KEYS:
@@ -243,16 +238,14 @@ def _channel(entry: Any, i: int, loc: str) -> Channel:
         raise RunFileError(f"{cloc}: 'name' is missing; every channel needs a name")
     name, unit, sens = entry["name"], entry.get("unit", ""), entry.get("sensitivity", 1.0)
     if not isinstance(name, str) or not name.strip():
-        raise RunFileError(f"{where(cloc, None, 'name')}: {name!r} is not valid; allowed: a "
-                           "non-empty string")
+        raise _bad(cloc, "name", name, "must be a non-empty string")
     if not isinstance(unit, str):
-        raise RunFileError(f"{where(cloc, None, 'unit')}: {unit!r} is not valid; allowed: a "
-                           "string such as \"m/s^2\", \"g\" or \"V\"")
-    if isinstance(sens, bool) or not isinstance(sens, numbers.Real) or not math.isfinite(
-            sens) or sens <= 0:
-        raise RunFileError(f"{where(cloc, None, 'sensitivity')}: {sens!r} is not valid; allowed: "
-                           "a number > 0 (raw units per physical unit)")
-    return Channel(name, unit, float(sens))
+        raise _bad(cloc, "unit", unit, "must be a string such as \"m/s^2\", \"g\" or \"V\"")
+    try:
+        sens = positive(None, "sensitivity", sens, unit="raw units per physical unit")
+    except FieldError as exc:
+        raise RunFileError(f"{cloc}: {exc}") from None
+    return Channel(name, unit, sens)
 
 
 def _metadata(d: dict, chans: list, loc: str) -> TestMetadata:
@@ -263,15 +256,14 @@ def _metadata(d: dict, chans: list, loc: str) -> TestMetadata:
             cloc = where(loc, f"channels[{i + 1}]")
             for key in SENSOR_KEYS:
                 if key in entry and not isinstance(entry[key], str):
-                    raise InputError(f"{where(cloc, None, key)}: {entry[key]!r} is not valid; "
-                                     "allowed: a text in quotes")
+                    raise _bad(cloc, key, entry[key], "must be a text in quotes", InputError)
             sensors.append(SensorInfo(entry["name"], **{k: entry[k] for k in SENSOR_KEYS
                                                         if k in entry}))
         for key in META_KEYS:
             if key in d and not isinstance(d[key], str):
-                raise InputError(f"{where(loc, None, key)}: {d[key]!r} is not valid; allowed: "
-                                 + ("an ISO 8601 date in quotes, e.g. \"2026-11-30\""
-                                    if key == "date" else "a text in quotes"))
+                raise _bad(loc, key, d[key], "must be "
+                           + ("an ISO 8601 date in quotes, e.g. \"2026-11-30\""
+                              if key == "date" else "a text in quotes"), InputError)
         if "date" in d:
             from workbench.runs.metadata import check_date
 
@@ -308,8 +300,8 @@ def sidecar_from_dict(d: Any, source: str = "<dict>") -> Sidecar:
             raise _unknown(key, _KEYS, source)
     chans = d.get("channels", [])
     if not isinstance(chans, list):
-        raise RunFileError(f"{where(source, None, 'channels')}: {chans!r} is not valid; allowed: "
-                           "a list of {\"name\", \"unit\", \"sensitivity\"} objects")
+        raise _bad(source, "channels", chans, "must be a list of {\"name\", \"unit\", "
+                                              "\"sensitivity\"} objects")
     channels = tuple(_channel(c, i, source) for i, c in enumerate(chans))
     metadata = _metadata(d, chans, source)
     machine = d.get("machine_file")

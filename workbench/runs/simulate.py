@@ -54,6 +54,7 @@ from typing import Any
 
 import numpy as np
 
+from workbench.checks import FieldError, positive, positive_int, rate_hz as check_rate, real
 from workbench.errors import FoldlineWarning, InputError
 from workbench.runs.files import sidecar_for_run
 from workbench.fileio import atomic_output, check_writable
@@ -192,62 +193,42 @@ class _Settings:
     tacho_rise_s: float
 
 
-def _number(name: str, value: Any, *, positive: bool = False, allow_none: bool = False,
-            minus_inf: bool = False) -> float | None:
-    if value is None and allow_none:
-        return None
-    ok = not isinstance(value, bool) and isinstance(value, (int, float, np.number))
-    if ok:
-        value = float(value)
-        ok = math.isfinite(value) or (minus_inf and value == -math.inf)
-        ok = ok and (value > 0 if positive else True)
-    if not ok:
-        rule = "a number > 0" if positive else "a finite number"
-        rule += " or None" if allow_none else ""
-        rule += " (-inf for none)" if minus_inf else ""
-        raise InputError(f"{name} {value!r} is not valid; allowed: {rule}")
-    return value
-
-
 def _settings(plan: Any, rate_hz: float, seed: int, duration_s: float | None, noise_db: float,
               resonance_hz: float | None, resonance_q: float, resonance_gain_db: float,
               pulses_per_rev: int, missing_pulses: int, tacho_channel: bool, chunk_s: float,
               tacho_rise_s: float) -> _Settings:
-    rate = _number("rate_hz", rate_hz, positive=True)
-    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
-        raise InputError(f"seed {seed!r} is not valid; allowed: a whole number >= 0")
+    rate = check_rate(None, "rate_hz", rate_hz)
+    seed = positive_int(None, "seed", seed, low=0, whole_float=False)
     total = plan.speed.duration_s
     if duration_s is None:
         duration = total
     else:
-        duration = _number("duration_s", duration_s, positive=True)
+        duration = positive(None, "duration_s", duration_s, unit="s")
         if duration > total * (1 + 1e-12):
-            raise InputError(f"duration_s {duration:g} s is longer than the plan's speed profile "
-                             f"({total:g} s); allowed: up to {total:g} s")
+            raise FieldError(None, "duration_s", f"is longer than the plan's speed profile; "
+                                                 f"allowed: up to {total:g} s", duration_s)
     n = int(round(duration * rate))
     if n < 1:
-        raise InputError(f"duration_s {duration:g} s at {rate:g} Hz gives no sample; make it "
-                         f"at least 1 / rate = {1 / rate:g} s")
-    noise = _number("noise_db", noise_db, minus_inf=True)
-    fn = _number("resonance_hz", resonance_hz, positive=True, allow_none=True)
-    q = _number("resonance_q", resonance_q, positive=True)
-    gain = _number("resonance_gain_db", resonance_gain_db)
-    chunk = _number("chunk_s", chunk_s, positive=True)
+        raise FieldError(None, "duration_s", f"gives no sample at {rate:g} Hz; allowed: at "
+                                             f"least 1 / rate = {1 / rate:g} s", duration_s)
+    noise = -math.inf if noise_db == -math.inf else real(None, "noise_db", noise_db, unit="dB; "
+                                                         "-inf for none")
+    fn = None if resonance_hz is None else positive(None, "resonance_hz", resonance_hz,
+                                                    unit="Hz, or None")
+    q = positive(None, "resonance_q", resonance_q)
+    gain = real(None, "resonance_gain_db", resonance_gain_db, unit="dB")
+    chunk = positive(None, "chunk_s", chunk_s, unit="s")
     # Default: edges that take 4 samples, as a real tacho edge does at usual rates; ideal steps
     # (0) time the pulses only to the nearest sample.
-    rise = 4.0 / rate if tacho_rise_s is None else _number("tacho_rise_s", tacho_rise_s)
-    if rise < 0:
-        raise InputError(f"tacho_rise_s {rise!r} is not valid; allowed: a number >= 0 (s)")
-    if isinstance(pulses_per_rev, bool) or not isinstance(pulses_per_rev, (int, np.integer)) \
-            or pulses_per_rev < 1:
-        raise InputError(f"pulses_per_rev {pulses_per_rev!r} is not valid; allowed: a whole "
-                         "number >= 1 (tooth positions per revolution, missing ones included)")
-    if isinstance(missing_pulses, bool) or not isinstance(missing_pulses, (int, np.integer)) \
-            or not 0 <= missing_pulses < pulses_per_rev:
-        raise InputError(f"missing_pulses {missing_pulses!r} is not valid; allowed: a whole "
-                         f"number from 0 to pulses_per_rev - 1 = {pulses_per_rev - 1}")
+    rise = 4.0 / rate if tacho_rise_s is None else real(None, "tacho_rise_s", tacho_rise_s,
+                                                        low=0.0, unit="s")
+    pulses_per_rev = positive_int(None, "pulses_per_rev", pulses_per_rev, whole_float=False,
+                                  what="tooth positions per revolution, missing ones included")
+    missing_pulses = positive_int(None, "missing_pulses", missing_pulses, low=0,
+                                  high=pulses_per_rev - 1, whole_float=False,
+                                  what="pulses_per_rev - 1 at most")
     if not isinstance(tacho_channel, bool):
-        raise InputError(f"tacho_channel {tacho_channel!r} is not valid; allowed: True or False")
+        raise FieldError(None, "tacho_channel", "must be true or false", tacho_channel)
     return _Settings(rate, n, max(1, int(round(chunk * rate))), int(seed),
                      0.0 if noise == -math.inf else 10.0 ** (noise / 20.0),
                      DEFAULT_RESONANCE_HZ if fn is None else fn, q, gain, int(pulses_per_rev),

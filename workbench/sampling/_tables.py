@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from workbench.checks import describe
 from workbench.errors import InputError, where
 
 
@@ -69,7 +70,7 @@ def read_numeric_csv(path, layouts: tuple[tuple[str, ...], ...], what: str
         bad = ~np.isfinite(numbers)
         if bad.any():
             i = int(np.argmax(bad))
-            raise InputError(f"{where(name, f'line {i + 2}', column)}: must be a finite "
-                             f"number, got {text.iloc[i]!r}")
+            raise InputError(f"{where(name, f'line {i + 2}')}: "
+                             + describe(column, text.iloc[i], "must be a finite number"))
         columns[column] = numbers
     return layout, columns

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from workbench.checks import positive
 from workbench.errors import FoldlineWarning, InputError
 from workbench.sampling.foldmap import MONOTONE_FILTERS, find_collisions, fold_map
 
@@ -234,13 +235,11 @@ def angle_settings(lines, plan, *, max_order=None, order_resolution=None) -> Ang
         lines = lines.lines()
     lines = tuple(lines)
     mo = max_order if max_order is not None else plan.max_order
-    mo = float(mo) if mo is not None else _default_max_order(lines)
-    if not np.isfinite(mo) or mo <= 0:
-        raise InputError(f"max_order = {mo!r}: must be a positive number of orders")
+    mo = positive(None, "max_order", mo if mo is not None else _default_max_order(lines),
+                  unit="orders")
     res = order_resolution if order_resolution is not None else plan.order_resolution
-    res = float(res) if res is not None else _default_resolution(lines, mo)
-    if not np.isfinite(res) or res <= 0:
-        raise InputError(f"order_resolution = {res!r}: must be a positive number of orders")
+    res = positive(None, "order_resolution",
+                   res if res is not None else _default_resolution(lines, mo), unit="orders")
     spr = _next_pow2(ANALYSER_FACTOR * mo)
     top_rpm = float(plan.speed.rpm_max)
     min_rate = min_rate_for(plan.filter, mo * top_rpm / 60.0)

@@ -39,9 +39,8 @@ from functools import cached_property
 
 import numpy as np
 
-from workbench.errors import InputError
-from workbench.checks import (FieldError, freq_array, one_of, positive_int,
-                                        rate_array, real, real_vector)
+from workbench.checks import (FieldError, choice, freq_array, positive_int, rate_array, real,
+                              real_vector)
 
 __all__ = ["FILTER_KINDS", "ANALOG_KINDS", "TABLE_UNITS", "MAX_ANALOG_ORDER", "AntiAliasFilter"]
 
@@ -162,9 +161,9 @@ class AntiAliasFilter:
     table_units: str = "hz"
 
     def __post_init__(self):
-        kind = one_of(_OWNER, "kind", self.kind, FILTER_KINDS)
+        kind = choice(_OWNER, "kind", self.kind, FILTER_KINDS)
         analog = kind in ANALOG_KINDS
-        self._set("table_units", one_of(_OWNER, "table_units", self.table_units, TABLE_UNITS))
+        self._set("table_units", choice(_OWNER, "table_units", self.table_units, TABLE_UNITS))
 
         if analog:
             if self.order is None:
@@ -172,8 +171,8 @@ class AntiAliasFilter:
             self._set("order", positive_int(_OWNER, "order", self.order,
                                             high=MAX_ANALOG_ORDER))
         elif self.order is not None:
-            raise FieldError(_OWNER, "order", f"is not used by filter kind {kind!r}; "
-                             f"got {self.order!r} (remove it)")
+            raise FieldError(_OWNER, "order", f"is not used by filter kind {kind!r} (remove it)",
+                             self.order)
 
         if analog or kind == "ideal":
             if self.cutoff is None:
@@ -185,21 +184,21 @@ class AntiAliasFilter:
                 # An anti-alias filter passing Nyquist lets everything between Nyquist and
                 # its cutoff fold unattenuated: it protects nothing (common practice, no
                 # source: the cutoff sits well below Nyquist, about 0.4 x rate).
-                raise FieldError(_OWNER, "cutoff", f"{cutoff:g} x rate lies at or above Nyquist "
-                                 "(0.5 x rate), where the filter protects nothing; give a cutoff "
-                                 "below 0.5 (about 0.4 is usual), or filter \"none\" for no filter")
+                raise FieldError(_OWNER, "cutoff", "lies at or above Nyquist (0.5 x rate), where "
+                                 "the filter protects nothing; allowed: a cutoff below 0.5 "
+                                 "(about 0.4 is usual), or filter \"none\" for no filter", cutoff)
             self._set("cutoff", cutoff)
         elif self.cutoff is not None:
-            raise FieldError(_OWNER, "cutoff", f"is not used by filter kind {kind!r}; "
-                             f"got {self.cutoff!r} (remove it)")
+            raise FieldError(_OWNER, "cutoff", f"is not used by filter kind {kind!r} (remove it)",
+                             self.cutoff)
 
         pb = real(_OWNER, "passband_edge", self.passband_edge, low=0.0, high=1.0,
                   low_open=True, high_open=True)
         sb = real(_OWNER, "stopband_edge", self.stopband_edge, low=0.0, high=1.0,
                   low_open=True, high_open=True)
         if not pb < sb:
-            raise FieldError(_OWNER, "stopband_edge", f"must be above passband_edge ({pb:g}), "
-                             f"got {sb:g}")
+            raise FieldError(_OWNER, "stopband_edge", f"must be above passband_edge ({pb:g})",
+                             sb)
         self._set("passband_edge", pb)
         self._set("stopband_edge", sb)
         stop = real(_OWNER, "stopband_db", self.stopband_db, low=0.0, low_open=True)
@@ -208,7 +207,7 @@ class AntiAliasFilter:
                       low_open=True)
         if kind == "elliptic" and not ripple < stop:
             raise FieldError(_OWNER, "passband_ripple_db", f"must be below stopband_db "
-                             f"({stop:g} dB), got {ripple:g}")
+                             f"({stop:g} dB)", ripple)
         self._set("passband_ripple_db", ripple)
 
         if kind == "table":
@@ -217,7 +216,7 @@ class AntiAliasFilter:
             for field in ("table_hz_or_fraction", "table_db"):
                 if getattr(self, field) is not None:
                     raise FieldError(_OWNER, field, f"is only used by filter kind 'table', "
-                                     f"not {kind!r} (remove it)")
+                                     f"not {kind!r} (remove it)", getattr(self, field))
 
     def _set(self, name, value):
         object.__setattr__(self, name, value)
@@ -231,20 +230,20 @@ class AntiAliasFilter:
         db = real_vector(_OWNER, "table_db", self.table_db, min_len=2)
         if len(freq) != len(db):
             raise FieldError(_OWNER, "table_db", f"must have one value per frequency "
-                             f"({len(freq)}), got {len(db)}")
+                             f"({len(freq)}), got {len(db)}", db)
         for i, f in enumerate(freq):
             if f <= 0:
                 raise FieldError(_OWNER, "table_hz_or_fraction", f"point {i + 1}: frequencies "
-                                 f"must be positive (the table is interpolated in log "
-                                 f"frequency), got {f:g}")
+                                 "must be positive (the table is interpolated in log "
+                                 "frequency)", freq)
             if i and not f > freq[i - 1]:
                 raise FieldError(_OWNER, "table_hz_or_fraction", f"point {i + 1}: frequencies "
-                                 f"must increase strictly, got {f:g} after {freq[i - 1]:g}")
+                                 "must increase strictly", freq)
         for i, d in enumerate(db):
             if d < _TABLE_MIN_DB:
-                raise FieldError(_OWNER, "table_db", f"point {i + 1}: attenuation is positive "
-                                 f"dB (40 means 40 dB down), got {d:g}; if the table gives "
-                                 "gain, change the signs")
+                raise FieldError(_OWNER, "table_db", f"point {i + 1}: attenuation is "
+                                 "positive dB (40 means 40 dB down); if the table gives gain, "
+                                 "change the signs", db)
         self._set("table_hz_or_fraction", freq)
         self._set("table_db", db)
 
@@ -340,8 +339,10 @@ class AntiAliasFilter:
         InputError
             A frequency is negative or not finite, or a rate is not positive and finite.
         """
-        f = freq_array(f_hz)
-        rate = rate_array(rate_hz)
+        return self._db(freq_array(f_hz), rate_array(rate_hz))
+
+    def _db(self, f, rate):
+        """:meth:`attenuation_db` of checked float arrays (callers inside the layer)."""
         f, rate = np.broadcast_arrays(f, rate)
         x = f / rate
         kind = self.kind
@@ -384,10 +385,9 @@ class AntiAliasFilter:
         """
         rate = rate_array(rate_hz)
         if rate.ndim != 0:
-            raise InputError(f"rate_hz: usable_edge_hz takes one sample rate, got shape "
-                             f"{rate.shape}")
+            raise FieldError(None, "rate_hz", "usable_edge_hz takes one sample rate", rate_hz)
         rate = float(rate)
-        tol = real(_OWNER, "tolerance_db", tolerance_db, low=0.0, low_open=True)
+        tol = real(None, "tolerance_db", tolerance_db, low=0.0, low_open=True)
         nyquist = rate / 2.0
         if self.kind == "none":
             return nyquist
@@ -400,10 +400,10 @@ class AntiAliasFilter:
         level = tol + 1e-9  # ripple peaks equal the ripple to rounding; do not stop on them
 
         def excess(x):
-            return float(self.attenuation_db(x * rate, rate)) - level
+            return float(self._db(np.asarray(x * rate), np.asarray(rate))) - level
 
         grid = np.linspace(0.0, 0.5, _EDGE_GRID)
-        above = np.nonzero(np.asarray(self.attenuation_db(grid * rate, rate)) > level)[0]
+        above = np.nonzero(np.asarray(self._db(grid * rate, np.asarray(rate))) > level)[0]
         if above.size == 0:
             return nyquist
         i = int(above[0])

@@ -21,10 +21,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from workbench.errors import InputError
-from workbench.checks import freq_array, rate_array
+from workbench.checks import FieldError, freq_array, rate_array, real_array
 
-__all__ = ["apparent_frequency", "nyquist_zone", "apparent_order", "fold"]
+__all__ = ["apparent_frequency", "nyquist_zone", "apparent_order", "fold", "fold_arrays"]
 
 # Beyond this many half-rates the zone index no longer fits a float mantissa exactly.
 _MAX_ZONE = 2.0**52
@@ -32,8 +31,15 @@ _MAX_ZONE = 2.0**52
 
 def _fold(f_hz, rate_hz) -> tuple[np.ndarray, np.ndarray]:
     """Shared worker: (apparent frequency in Hz, zone as int64), broadcast over both inputs."""
-    f = freq_array(f_hz)
-    rate = rate_array(rate_hz)
+    return fold_arrays(freq_array(f_hz), rate_array(rate_hz))
+
+
+def fold_arrays(f: np.ndarray, rate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(apparent frequency in Hz, zone as int64) of float arrays already checked.
+
+    For callers inside the layer that checked `f` (finite, >= 0) and `rate` (positive,
+    finite) at their own entry; :func:`fold` checks them itself.
+    """
     f, rate = np.broadcast_arrays(f, rate)
     half = rate / 2.0  # exact in binary floating point
     with np.errstate(over="ignore"):
@@ -41,10 +47,10 @@ def _fold(f_hz, rate_hz) -> tuple[np.ndarray, np.ndarray]:
     if np.any(n > _MAX_ZONE):
         i = np.argmax(n > _MAX_ZONE)
         f_bad, rate_bad = float(f.flat[i]), float(rate.flat[i])
-        raise InputError(
-            f"f_hz: {f_bad:g} Hz lies more than 2**52 half-rates above rate_hz {rate_bad:g} Hz; "
-            f"folding cannot be computed exactly there: allowed are sample rates above "
-            f"{f_bad / 2.0**51:.3g} Hz for this frequency")
+        raise FieldError(
+            None, "f_hz", f"lies more than 2**52 half-rates above rate_hz = {rate_bad:g}; "
+            f"folding cannot be computed exactly there; allowed: sample rates above "
+            f"{f_bad / 2.0**51:.3g} Hz for this frequency", f_bad)
     # f / half can round across a zone edge; move n so that n * half <= f < (n + 1) * half.
     # n * half is exact whenever f is an exact multiple of half, so edges land exactly.
     n = np.where(n * half > f, n - 1.0, n)
@@ -175,10 +181,6 @@ def apparent_order(f_hz, rate_hz, rpm):
     >>> float(apparent_order(9000.0, 12800.0, 6000.0))   # 3800 Hz at 100 rev/s
     38.0
     """
-    speed = np.asarray(rpm, dtype=float)
-    bad = ~np.isfinite(speed) | (speed <= 0)
-    if np.any(bad):
-        raise InputError(f"rpm: shaft speeds must be positive and finite (rev/min), "
-                         f"got {speed[bad].flat[0]!r}")
+    speed = real_array(rpm, "rpm", "shaft speeds", "rev/min", positive=True)
     apparent, _ = _fold(f_hz, rate_hz)
     return (apparent / (speed / 60.0))[()]

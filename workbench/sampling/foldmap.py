@@ -18,10 +18,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from workbench.checks import FieldError, choice, positive_int, rate_hz as check_rate, real_array
 from workbench.errors import FoldlineWarning, InputError
-from workbench.sampling.folding import fold
+from workbench.sampling.folding import fold_arrays
 
-__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "MONOTONE_FILTERS"]
+__all__ = ["FoldMap", "fold_map", "find_collisions", "COLLISION_COLUMNS", "COLLISION_HEADINGS",
+           "COLLISION_DECIMALS", "MONOTONE_FILTERS"]
 
 #: Column order of the collision and overlap tables (the JSON contract's keys, then ``kind``).
 COLLISION_COLUMNS = (
@@ -34,6 +36,29 @@ COLLISION_COLUMNS = (
     "apparent_hz_max",
     "residual_db",
 )
+
+#: Heading (with its unit) of each column of the collision table, for every display of it
+#: (the report, the notebook panels); the columns after ``kind`` are the extra ones of
+#: :func:`find_collisions`.
+COLLISION_HEADINGS = {
+    "line": "line",
+    "band": "band",
+    "rpm_min": "from (rpm)",
+    "rpm_max": "to (rpm)",
+    "zone": "zone",
+    "apparent_hz_min": "apparent from (Hz)",
+    "apparent_hz_max": "apparent to (Hz)",
+    "residual_db": "residual (dB)",
+    "kind": "kind",
+    "true_hz_min": "true from (Hz)",
+    "true_hz_max": "true to (Hz)",
+}
+
+#: Decimals shown for each numeric column of the collision table (rpm to the whole rpm, Hz and
+#: dB to a tenth).
+COLLISION_DECIMALS = {"rpm_min": 0, "rpm_max": 0, "zone": 0, "apparent_hz_min": 1,
+                      "apparent_hz_max": 1, "residual_db": 1, "true_hz_min": 1,
+                      "true_hz_max": 1}
 
 # Attenuation used in place of an infinite one (ideal filter stopband) in root finding.
 _FINITE_DB = 1000.0
@@ -99,7 +124,7 @@ class FoldMap:
 
     def _folded(self):
         if "apparent" not in self._cache:
-            self._cache["apparent"], self._cache["zone"] = fold(self.true_hz, self.rate_hz)
+            self._cache["apparent"], self._cache["zone"] = fold_arrays(self.true_hz, np.asarray(self.rate_hz))
         return self._cache["apparent"], self._cache["zone"]
 
     @property
@@ -159,11 +184,10 @@ class FoldMap:
         )
 
 
-def _check_rate(rate_hz) -> float:
-    rate = float(rate_hz)
-    if not np.isfinite(rate) or rate <= 0:
-        raise InputError(f"rate_hz = {rate_hz!r}: the sample rate must be a positive number of Hz")
-    return rate
+def _attenuation(filt, f, rate) -> np.ndarray:
+    """The filter's attenuation (dB) of frequencies and a rate the caller has checked."""
+    return np.asarray(filt._db(np.asarray(f, dtype=float), np.asarray(rate, dtype=float)),
+                      dtype=float)
 
 
 def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true_hz=None) -> FoldMap:
@@ -201,16 +225,14 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true
     if hasattr(lines, "lines") and callable(lines.lines):
         lines = lines.lines()
     lines = tuple(lines)
-    rate = _check_rate(rate_hz)
+    rate = check_rate(None, "rate_hz", rate_hz)
     if true_hz is None:  # the advisor, which passes true_hz, warns once per candidate itself
         from workbench.sampling.guards import warn_implausible_rate
 
         warn_implausible_rate(rate, lines=lines, top_rpm=plan.speed.rpm_max)
     if rpm is None:
-        if int(n_speeds) < 2:
-            raise InputError(f"n_speeds = {n_speeds!r}: need at least 2 speeds on the grid")
-        rpm = np.linspace(plan.speed.rpm_min, plan.speed.rpm_max, int(n_speeds))
-    rpm = np.asarray(rpm, dtype=float)
+        rpm = plan.speed.rpm_grid(positive_int(None, "n_speeds", n_speeds, low=2))
+    rpm = real_array(rpm, "rpm", "speeds", "rpm")
     filt = plan.filter if filter is None else filter
     if true_hz is None:
         orders, fixed, _ = _line_arrays(lines)
@@ -218,8 +240,9 @@ def fold_map(lines, plan, rate_hz, *, n_speeds=2000, rpm=None, filter=None, true
     else:
         true = np.asarray(true_hz, dtype=float)
         if true.shape != (len(lines), len(rpm)):
-            raise InputError(f"true_hz has shape {true.shape}; expected (lines, speeds) = ({len(lines)}, {len(rpm)})")
-    att = np.asarray(filt.attenuation_db(true, rate), dtype=float)
+            raise FieldError(None, "true_hz", f"must have shape (lines, speeds) = ({len(lines)}, "
+                             f"{len(rpm)})", true)
+    att = _attenuation(filt, true, rate)
     return FoldMap(
         rpm=rpm,
         lines=lines,
@@ -257,12 +280,12 @@ class _Edges:
         return np.where(np.isnan(o), self.fixed[idx], o * rpm / 60.0)
 
     def limits(self, rpm):
-        lo, hi = self.band.limits_hz(rpm, self.lines)
+        lo, hi = self.band._limits(np.asarray(rpm, dtype=float), self.lines)
         return (np.broadcast_to(np.asarray(lo, dtype=float), rpm.shape),
                 np.broadcast_to(np.asarray(hi, dtype=float), rpm.shape))
 
     def residual(self, idx, f):
-        att = np.asarray(self.filt.attenuation_db(f, self.rate), dtype=float)
+        att = _attenuation(self.filt, f, self.rate)
         return self.levels[idx] - np.minimum(att, _FINITE_DB)
 
     def _threshold_speed(self, idx, a, c, ga, gc):
@@ -301,7 +324,7 @@ class _Edges:
             return a
         nyq = self.rate / 2.0
         fa = self.true_hz(idx, a)
-        _, za = fold(fa, self.rate)
+        _, za = fold_arrays(fa, np.asarray(self.rate))
         o = self.orders[idx]
         moving = ~np.isnan(o) & (o > 0)
         # Nearest zone edge from a towards b (speed where f = k * Nyquist).
@@ -384,8 +407,7 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
     if hasattr(lines, "lines") and callable(lines.lines):
         lines = lines.lines()
     lines = tuple(lines)
-    if method not in ("auto", "exact", "grid"):
-        raise InputError(f"method = {method!r}: choose 'auto', 'exact' or 'grid'")
+    choice(None, "method", method, ("auto", "exact", "grid"))
     thr = plan.threshold_db if threshold_db is None else float(threshold_db)
     exact_ok = plan.filter.kind in MONOTONE_FILTERS
     if method == "exact" and not exact_ok:
@@ -399,7 +421,7 @@ def find_collisions(lines, plan, rate_hz, *, fmap=None, n_speeds=2000, threshold
             rate = fmap.rate_hz
         else:
             r0, r1 = float(plan.speed.rpm_min), float(plan.speed.rpm_max)
-            rate = _check_rate(rate_hz)
+            rate = check_rate(None, "rate_hz", rate_hz)
         crossed = _zones_crossed(lines, rate, r0, r1)
         if crossed <= MAX_EXACT_SEGMENTS:
             return _table(_exact_rows(lines, plan, rate, thr, r0, r1))
@@ -529,7 +551,7 @@ def _threshold_hz(filt, rate, allowed_db):
     """
     allowed = np.asarray(allowed_db, dtype=float)
     out = np.full(allowed.shape, np.inf)
-    at_dc = float(np.asarray(filt.attenuation_db(0.0, rate)))
+    at_dc = float(_attenuation(filt, 0.0, rate))
     out[allowed <= at_dc] = 0.0
     need = np.flatnonzero(allowed > at_dc)
     if not len(need):
@@ -547,10 +569,10 @@ def _threshold_hz(filt, rate, allowed_db):
         return out
     lo = np.full(len(a), np.log(rate * 1e-9))
     hi = np.full(len(a), np.log(rate * 1e9))
-    reach = np.minimum(np.asarray(filt.attenuation_db(np.exp(hi), rate), dtype=float), _FINITE_DB) >= a
+    reach = np.minimum(_attenuation(filt, np.exp(hi), rate), _FINITE_DB) >= a
     for _ in range(80):
         mid = 0.5 * (lo + hi)
-        below = np.asarray(filt.attenuation_db(np.exp(mid), rate), dtype=float) < a
+        below = _attenuation(filt, np.exp(mid), rate) < a
         lo = np.where(below, mid, lo)
         hi = np.where(below, hi, mid)
         if np.max(hi - lo) < 1e-13:
@@ -571,8 +593,8 @@ def _exact_rows(lines, plan, rate, thr, r0, r1):
     # Segments: one per line and Nyquist zone crossed over [r0, r1].
     f_lo = np.where(moving, o * r0 / 60.0, fixed)
     f_hi = np.where(moving, o * r1 / 60.0, fixed)
-    _, z_lo = fold(f_lo, rate)
-    _, z_hi = fold(f_hi, rate)
+    _, z_lo = fold_arrays(f_lo, np.asarray(rate))
+    _, z_hi = fold_arrays(f_hi, np.asarray(rate))
     counts = (z_hi - z_lo + 1).astype(int)
     li = np.repeat(np.arange(len(lines)), counts)
     z = np.repeat(z_lo, counts) + (np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts))
@@ -625,7 +647,7 @@ def _exact_rows(lines, plan, rate, thr, r0, r1):
         lj = np.concatenate([li[j], li[j]])
         f_end = np.where(moving[lj], orders[lj] * ends / 60.0, fixed[lj])
         app_end = np.concatenate([a1[j], a1[j]]) * ends + np.concatenate([a0[j], a0[j]])
-        att_end = np.minimum(np.asarray(plan.filter.attenuation_db(f_end, rate), dtype=float), _FINITE_DB)
+        att_end = np.minimum(_attenuation(plan.filter, f_end, rate), _FINITE_DB)
         res_end = levels[lj] - att_end
         n = len(j)
         frames.append(

@@ -12,13 +12,12 @@ minus the filter's attenuation at its true frequency -- is above this value.  Wi
 
 from __future__ import annotations
 
-import difflib
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from workbench.errors import InputError, PlanFileError, where
-from workbench.checks import FieldError, real, real_vector, show
+from workbench.checks import RATE_RULE, FieldError, close_names, real, real_array, real_vector
 from workbench.sampling.filters import AntiAliasFilter
 from workbench.sampling.profiles import SpeedProfile
 
@@ -31,7 +30,7 @@ _BAND_KINDS = ("hz", "orders", "around")
 
 def _close(word: str, options) -> str:
     """' (did you mean ...?)' for the nearest of `options`, or ''."""
-    match = difflib.get_close_matches(str(word), [str(o) for o in options], n=3, cutoff=0.6)
+    match = close_names(word, options, n=3)
     if not match:
         return ""
     return " (did you mean " + " or ".join(repr(m) for m in match) + "?)"
@@ -77,7 +76,7 @@ class Band:
     def __post_init__(self):
         owner = "Band"
         if not isinstance(self.name, str) or not self.name.strip():
-            raise FieldError(owner, "name", f"must be a non-empty text, got {show(self.name)}")
+            raise FieldError(owner, "name", "must be a non-empty text", self.name)
         owner = f"Band {self.name!r}"
         given = [k for k in _BAND_KINDS if getattr(self, k) is not None]
         if len(given) != 1:
@@ -87,8 +86,7 @@ class Band:
         kind = given[0]
         if kind == "around":
             if not isinstance(self.around, str) or not self.around.strip():
-                raise FieldError(owner, "around", f"must be a line name, got "
-                                 f"{show(self.around)}")
+                raise FieldError(owner, "around", "must be a line name", self.around)
             if self.width_pct is None:
                 raise FieldError(owner, "width_pct", "is required with around (the band's "
                                  "total width, percent of the line's frequency)")
@@ -98,16 +96,16 @@ class Band:
             return
         if self.width_pct is not None:
             raise FieldError(owner, "width_pct", f"is only used with around, not with {kind} "
-                             "(remove it)")
+                             "(remove it)", self.width_pct)
         limits = real_vector(owner, kind, getattr(self, kind), min_len=2)
         if len(limits) != 2:
-            raise FieldError(owner, kind, f"must be two numbers [lo, hi], got {len(limits)}")
+            raise FieldError(owner, kind, "must be two numbers [lo, hi]", getattr(self, kind))
         lo, hi = limits
         if lo < 0:
-            raise FieldError(owner, kind, f"lower limit must not be negative, got {lo:g}")
+            raise FieldError(owner, kind, "lower limit must not be negative", getattr(self, kind))
         if not lo < hi:
-            raise FieldError(owner, kind, f"lower limit must be below the upper one, got "
-                             f"[{lo:g}, {hi:g}]")
+            raise FieldError(owner, kind, "lower limit must be below the upper one",
+                             getattr(self, kind))
         object.__setattr__(self, kind, limits)
 
     @property
@@ -138,14 +136,10 @@ class Band:
         InputError
             A speed is negative or not finite, or the ``around`` line is not among `lines`.
         """
-        try:
-            speed = np.asarray(rpm, dtype=float)
-        except (TypeError, ValueError):
-            raise InputError(f"rpm: must be numbers (rev/min), got {show(rpm)}") from None
-        bad = ~np.isfinite(speed) | (speed < 0)
-        if np.any(bad):
-            raise InputError(f"rpm: speeds must be finite and not negative (rev/min), got "
-                             f"{speed[bad].flat[0]!r}")
+        return self._limits(real_array(rpm, "rpm", "speeds", "rev/min"), lines)
+
+    def _limits(self, speed: np.ndarray, lines=()) -> tuple[np.ndarray, np.ndarray]:
+        """:meth:`limits_hz` of a float array of speeds already checked (inside the layer)."""
         if self.hz is not None:
             lo, hi = self.hz
             return np.full(speed.shape, lo), np.full(speed.shape, hi)
@@ -156,8 +150,8 @@ class Band:
         line = _find_line(lines, self.around)
         if line is None:
             names = [getattr(item, "name", "") for item in lines]
-            raise InputError(f"band {self.name!r}: around: no line named {self.around!r} in "
-                             f"the machine{_close(self.around, names)}")
+            raise FieldError(f"band {self.name!r}", "around", "the machine has no line of this "
+                             f"name{_close(self.around, names)}", self.around)
         f = np.broadcast_to(np.asarray(line.hz_at(speed), dtype=float), speed.shape)
         half = self.width_pct / 200.0
         return f * (1.0 - half), f * (1.0 + half)
@@ -218,7 +212,7 @@ class Limit:
     def __post_init__(self):
         owner = "Limit"
         if not isinstance(self.name, str) or not self.name.strip():
-            raise FieldError(owner, "name", f"must be a non-empty text, got {show(self.name)}")
+            raise FieldError(owner, "name", "must be a non-empty text", self.name)
         owner = f"Limit {self.name!r}"
         object.__setattr__(self, "max", real(owner, "max", self.max, low=0.0, low_open=True))
         if (self.band is None) == (self.order is None):
@@ -227,11 +221,11 @@ class Limit:
                              f"order = K (with bandwidth in orders); got {got}")
         if self.band is not None:
             if not isinstance(self.band, str) or not self.band.strip():
-                raise FieldError(owner, "band", f"must be the name of a [[band]] of the plan, "
-                                 f"got {show(self.band)}")
+                raise FieldError(owner, "band", "must be the name of a [[band]] of the plan",
+                                 self.band)
             if self.bandwidth is not None:
                 raise FieldError(owner, "bandwidth", "is only used with order, not with band "
-                                 "(the band gives the width; remove it)")
+                                 "(the band gives the width; remove it)", self.bandwidth)
         else:
             object.__setattr__(self, "order", real(owner, "order", self.order, low=0.0,
                                                    low_open=True))
@@ -241,17 +235,15 @@ class Limit:
             object.__setattr__(self, "bandwidth", real(owner, "bandwidth", self.bandwidth,
                                                        low=0.0, low_open=True))
         if self.amplitude not in LIMIT_AMPLITUDES:
-            raise FieldError(owner, "amplitude", f"must be one of {', '.join(LIMIT_AMPLITUDES)};"
-                             f" got {show(self.amplitude)}{_close(self.amplitude, LIMIT_AMPLITUDES)}")
+            raise FieldError(owner, "amplitude", f"must be one of {', '.join(LIMIT_AMPLITUDES)}"
+                             f"{_close(self.amplitude, LIMIT_AMPLITUDES)}", self.amplitude)
         if self.rpm is not None:
             limits = real_vector(owner, "rpm", self.rpm, min_len=2)
             if len(limits) != 2:
-                raise FieldError(owner, "rpm", f"must be two speeds [lo, hi] in rpm, got "
-                                 f"{len(limits)} numbers")
+                raise FieldError(owner, "rpm", "must be two speeds [lo, hi] in rpm", self.rpm)
             lo, hi = limits
             if lo < 0 or not lo < hi:
-                raise FieldError(owner, "rpm", f"must satisfy 0 <= lo < hi (rpm), got "
-                                 f"[{lo:g}, {hi:g}]")
+                raise FieldError(owner, "rpm", "must satisfy 0 <= lo < hi (rpm)", self.rpm)
             object.__setattr__(self, "rpm", limits)
 
     @property
@@ -334,13 +326,13 @@ class Plan:
             raise FieldError(owner, "filter", f"must be an AntiAliasFilter, got "
                              f"{type(self.filter).__name__}")
         rates = real_vector(owner, "rates_hz", self.rates_hz, min_len=1)
-        for r in rates:
+        for i, r in enumerate(rates):
             if r <= 0:
-                raise FieldError(owner, "rates_hz", f"sample rates must be positive (Hz), "
-                                 f"got {r:g}")
+                raise FieldError(owner, "rates_hz", f"item {i + 1} {RATE_RULE}", self.rates_hz)
         if len(set(rates)) != len(rates):
             twice = next(r for r in rates if rates.count(r) > 1)
-            raise FieldError(owner, "rates_hz", f"lists {twice:g} more than once")
+            raise FieldError(owner, "rates_hz", f"lists {twice:g} more than once; give each "
+                             "rate once", self.rates_hz)
         object.__setattr__(self, "rates_hz", rates)
         object.__setattr__(self, "threshold_db", real(owner, "threshold_db", self.threshold_db))
         bands = _named_entries(owner, "bands", self.bands, Band, "band")
@@ -352,7 +344,7 @@ class Plan:
                 object.__setattr__(self, name, real(owner, name, value, low=0.0,
                                                     low_open=True))
         if not isinstance(self.source, str):
-            raise FieldError(owner, "source", f"must be a text, got {show(self.source)}")
+            raise FieldError(owner, "source", "must be a text", self.source)
         limits = _named_entries(owner, "limits", self.limits, Limit, "limit")
         for lim in limits:
             if lim.band is not None and lim.band not in seen:

@@ -70,7 +70,7 @@ import numpy as np
 from workbench.errors import InputError, OutputExistsError, PlanFileError, where
 from workbench.fileio import write_text
 from workbench.machine.filekind import wrong_file_hint
-from workbench.checks import FieldError, is_number, real, real_vector, show
+from workbench.checks import NO_VALUE, FieldError, describe, is_number, real, real_vector, show
 from workbench.sampling._tables import read_numeric_csv
 from workbench.sampling.filters import ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter
 from workbench.sampling.plan import DEFAULT_THRESHOLD_DB, Band, Limit, Plan, _close
@@ -117,13 +117,17 @@ class _Reader:
         self.source = source
         self.base_dir = base_dir
 
-    def fail(self, entry, key, problem):
-        key = None if key is None else str(key)
-        raise PlanFileError(f"{where(self.source, entry, key)}: {problem}")
+    def fail(self, entry, key, problem, value=NO_VALUE):
+        """Raise ``file: entry: key = value: problem`` (no ``= value`` when none is given)."""
+        if key is None:
+            raise PlanFileError(f"{where(self.source, entry)}: {problem}")
+        raise PlanFileError(f"{where(self.source, entry)}: {describe(str(key), value, problem)}")
 
     def from_field_error(self, exc: FieldError, entry, prefix=""):
         key = _KEY_OF.get(exc.owner, {}).get(exc.field, exc.field)
-        self.fail(entry, key, prefix + exc.problem)
+        # A table's columns are not written under their own keys: no value to show.
+        value = NO_VALUE if key == "table" else exc.value
+        self.fail(entry, key, prefix + exc.problem, value)
 
     def table(self, d, name, required):
         if name not in d:
@@ -132,7 +136,7 @@ class _Reader:
             return {}
         value = d[name]
         if not isinstance(value, dict):
-            self.fail(None, f"[{name}]", f"must be a table of keys, got {show(value)}")
+            self.fail(None, f"[{name}]", "must be a table of keys", value)
         return value
 
     def unknown_keys(self, d, allowed, entry):
@@ -147,25 +151,25 @@ class _Reader:
         try:
             return real("", key, d[key], **limits)
         except FieldError as exc:
-            self.fail(entry, key, exc.problem)
+            self.fail(entry, key, exc.problem, exc.value)
 
     def text(self, d, key, entry, default=None):
         if key not in d:
             return default
         value = d[key]
         if not isinstance(value, str):
-            self.fail(entry, key, f"must be a text in quotes, got {show(value)}")
+            self.fail(entry, key, "must be a text in quotes", value)
         return value
 
     def csv_path(self, value, entry) -> Path:
         if not isinstance(value, str) or not value.strip():
-            self.fail(entry, "table", f"must name a CSV file (a path relative to the plan's "
-                      f"folder) or give the columns inline, got {show(value)}")
+            self.fail(entry, "table", "must name a CSV file (a path relative to the plan's "
+                      "folder) or give the columns inline", value)
         base = self.base_dir.resolve()
         path = (base / value).resolve()
         if not path.is_relative_to(base):
-            self.fail(entry, "table", f"{value!r} lies outside the plan's folder {str(base)!r}; "
-                      "put the CSV file in that folder (or below it) and name it relative to it")
+            self.fail(entry, "table", f"lies outside the plan's folder {str(base)!r}; put the "
+                      "CSV file in that folder (or below it) and name it relative to it", value)
         return path
 
     def inline_columns(self, value, layouts, entry):
@@ -179,7 +183,7 @@ class _Reader:
         try:
             columns = {k: np.asarray(real_vector("", k, value[k], min_len=2)) for k in layout}
         except FieldError as exc:
-            self.fail(entry, f"table.{exc.field}", exc.problem)
+            self.fail(entry, f"table.{exc.field}", exc.problem, exc.value)
         lengths = {len(c) for c in columns.values()}
         if len(lengths) != 1:
             self.fail(entry, "table", "inline columns must have the same length, got "
@@ -196,8 +200,7 @@ class _Reader:
         kind = sec["profile"]
         if not isinstance(kind, str) or kind not in PROFILE_KINDS:
             hint = _close(kind, PROFILE_KINDS) if isinstance(kind, str) else ""
-            self.fail(entry, "profile", f"must be one of {', '.join(PROFILE_KINDS)}; got "
-                      f"{show(kind)}{hint}")
+            self.fail(entry, "profile", f"must be one of {', '.join(PROFILE_KINDS)}{hint}", kind)
         prefix = ""
         if kind == "table":
             for key in ("start_rpm", "end_rpm", "duration_s"):
@@ -242,13 +245,13 @@ class _Reader:
                       "e.g. [12800, 25600]")
         rates = sec["rates_hz"]
         if not isinstance(rates, list):
-            self.fail(entry, "rates_hz", f"must be a list of sample rates in Hz, e.g. "
-                      f"[12800, 25600]; got {show(rates)}")
+            self.fail(entry, "rates_hz", "must be a list of sample rates in Hz, e.g. "
+                      "[12800, 25600]", rates)
 
         kind = self.text(sec, "filter", entry, default="none")
         if kind not in FILTER_KINDS:
-            self.fail(entry, "filter", f"must be one of {', '.join(FILTER_KINDS)}; got "
-                      f"{kind!r}{_close(kind, FILTER_KINDS)}")
+            self.fail(entry, "filter", f"must be one of {', '.join(FILTER_KINDS)}"
+                      f"{_close(kind, FILTER_KINDS)}", kind)
         for key, kinds in _FILTER_USES.items():
             if key in sec and kind not in kinds:
                 self.fail(entry, key, f"is not used by filter {kind!r} (it applies to "
@@ -304,7 +307,7 @@ class _Reader:
             if "name" not in sec:
                 self.fail(entry, "name", "is required")
             if not isinstance(name, str) or not name.strip():
-                self.fail(entry, "name", f"must be a non-empty text, got {show(name)}")
+                self.fail(entry, "name", "must be a non-empty text", name)
             if name in seen:
                 self.fail(entry, "name", f"is used by {table} #{seen[name]} already; {table} "
                           "names must be unique")
@@ -316,12 +319,11 @@ class _Reader:
         for entry, sec in self.named_entries(d, "band", _BAND_KEYS):
             for key in ("hz", "orders"):
                 if key in sec and not isinstance(sec[key], list):
-                    self.fail(entry, key, f"must be a list of two numbers [lo, hi], got "
-                              f"{show(sec[key])}")
+                    self.fail(entry, key, "must be a list of two numbers [lo, hi]", sec[key])
             try:
                 bands.append(Band(**sec))
             except FieldError as exc:
-                self.fail(entry, exc.field, exc.problem)
+                self.fail(entry, exc.field, exc.problem, exc.value)
         return tuple(bands)
 
     def limits(self, d, bands) -> tuple[Limit, ...]:
@@ -332,17 +334,17 @@ class _Reader:
                 self.fail(entry, "max", "is required: the highest allowed level in the "
                           "channel's unit, from the user, the machine maker or the standard")
             if "rpm" in sec and not isinstance(sec["rpm"], list):
-                self.fail(entry, "rpm", f"must be a list of two speeds [lo, hi] in rpm, got "
-                          f"{show(sec['rpm'])}")
+                self.fail(entry, "rpm", "must be a list of two speeds [lo, hi] in rpm",
+                          sec["rpm"])
             band = sec.get("band")
             if isinstance(band, str) and band not in band_names:
-                self.fail(entry, "band", f"the plan has no [[band]] named {band!r}"
+                self.fail(entry, "band", f"the plan has no [[band]] of this name"
                           f"{_close(band, band_names)}; known bands: "
-                          f"{', '.join(band_names) or 'none'}")
+                          f"{', '.join(band_names) or 'none'}", band)
             try:
                 limits.append(Limit(**sec))
             except FieldError as exc:
-                self.fail(entry, exc.field, exc.problem)
+                self.fail(entry, exc.field, exc.problem, exc.value)
         return tuple(limits)
 
     def resampling(self, d) -> tuple[float | None, float | None]:
@@ -371,7 +373,7 @@ class _Reader:
                         bands=bands, max_order=max_order, order_resolution=resolution,
                         source=self.source, limits=limits)
         except FieldError as exc:  # checks that live on Plan itself (rates_hz)
-            self.fail(_PLAN_ENTRY.get(exc.field), exc.field, exc.problem)
+            self.fail(_PLAN_ENTRY.get(exc.field), exc.field, exc.problem, exc.value)
 
 
 def plan_from_dict(d: dict, source: str = "<dict>", *, base_dir=None) -> Plan:

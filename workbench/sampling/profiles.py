@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from workbench.errors import InputError, where
-from workbench.checks import FieldError, is_number, one_of, real, real_vector, show
+from workbench.checks import FieldError, choice, is_number, positive_int, real, real_vector
 from workbench.sampling._tables import read_numeric_csv
 
 __all__ = ["PROFILE_KINDS", "SpeedProfile", "read_speed_table"]
@@ -73,14 +73,14 @@ class SpeedProfile:
     table_rpm: tuple[float, ...] | None = None
 
     def __post_init__(self):
-        kind = one_of(_OWNER, "kind", self.kind, PROFILE_KINDS)
+        kind = choice(_OWNER, "kind", self.kind, PROFILE_KINDS)
         if kind == "table":
             self._check_table()
             return
         for field in ("table_time_s", "table_rpm"):
             if getattr(self, field) is not None:
                 raise FieldError(_OWNER, field, f"is only used by profile kind 'table', not "
-                                 f"{kind!r} (remove it)")
+                                 f"{kind!r} (remove it)", getattr(self, field))
         for field in ("start_rpm", "end_rpm", "duration_s"):
             if getattr(self, field) is None:
                 raise FieldError(_OWNER, field, f"is required by profile kind {kind!r}")
@@ -99,24 +99,24 @@ class SpeedProfile:
         rpm = real_vector(_OWNER, "table_rpm", self.table_rpm, min_len=2)
         if len(time) != len(rpm):
             raise FieldError(_OWNER, "table_rpm", f"must have one speed per time "
-                             f"({len(time)}), got {len(rpm)}")
+                             f"({len(time)}), got {len(rpm)}", rpm)
         if time[0] != 0.0:
-            raise FieldError(_OWNER, "table_time_s", f"the first time must be 0 s (profile "
-                             f"time starts at 0), got {time[0]:g}")
+            raise FieldError(_OWNER, "table_time_s", "the first time must be 0 s (profile "
+                             "time starts at 0)", time)
         for i in range(1, len(time)):
             if not time[i] > time[i - 1]:
                 raise FieldError(_OWNER, "table_time_s", f"row {i + 1}: times must increase "
-                                 f"strictly, got {time[i]:g} after {time[i - 1]:g}")
+                                 "strictly", time)
         for i, r in enumerate(rpm):
             if r < 0:
                 raise FieldError(_OWNER, "table_rpm", f"row {i + 1}: speeds must not be "
-                                 f"negative, got {r:g}")
+                                 "negative", rpm)
         derived = {"start_rpm": rpm[0], "end_rpm": rpm[-1], "duration_s": time[-1]}
         for field, value in derived.items():
             given = getattr(self, field)
             if given is not None and not (_is_real(given) and float(given) == value):
                 raise FieldError(_OWNER, field, f"follows from the table of a 'table' profile "
-                                 f"({value:g}); got {show(given)} (remove it)")
+                                 f"({value:g}) (remove it)", given)
             object.__setattr__(self, field, value)
         object.__setattr__(self, "table_time_s", time)
         object.__setattr__(self, "table_rpm", rpm)
@@ -164,12 +164,12 @@ class SpeedProfile:
         try:
             t = np.asarray(t_s, dtype=float)
         except (TypeError, ValueError):
-            raise InputError(f"t_s: must be numbers (s), got {show(t_s)}") from None
+            raise FieldError(None, "t_s", "must be numbers (s)", t_s) from None
         slack = 1e-9 * self.duration_s
         bad = ~np.isfinite(t) | (t < -slack) | (t > self.duration_s + slack)
         if np.any(bad):
-            raise InputError(f"t_s: times must lie within the profile, 0 to "
-                             f"{self.duration_s:g} s; got {t[bad].flat[0]!r}")
+            raise FieldError(None, "t_s", f"times must lie within the profile, 0 to "
+                             f"{self.duration_s:g} s", t[bad].flat[0].item())
         return np.clip(t, 0.0, self.duration_s)
 
     def _table_slopes(self) -> np.ndarray:
@@ -284,13 +284,13 @@ class SpeedProfile:
         try:
             r = np.asarray(rpm, dtype=float)
         except (TypeError, ValueError):
-            raise InputError(f"rpm: must be numbers (rev/min), got {show(rpm)}") from None
+            raise FieldError(None, "rpm", "must be numbers (rev/min)", rpm) from None
         lo, hi = self.rpm_min, self.rpm_max
         slack = 1e-9 * hi
         bad = ~np.isfinite(r) | (r < lo - slack) | (r > hi + slack)
         if np.any(bad):
-            raise InputError(f"rpm: speeds must lie within the profile, {lo:g} to {hi:g} "
-                             f"rev/min; got {r[bad].flat[0]!r}")
+            raise FieldError(None, "rpm", f"speeds must lie within the profile, {lo:g} to "
+                             f"{hi:g} rev/min", r[bad].flat[0].item())
         r = np.clip(r, lo, hi)
         if self.kind == "linear":
             out = (r - self.start_rpm) / (self.end_rpm - self.start_rpm) * self.duration_s
@@ -313,10 +313,8 @@ class SpeedProfile:
         n : int
             Number of speeds, at least 2.
         """
-        if not (_is_real(n) and float(n) == int(n) and int(n) >= 2):
-            raise InputError(f"n: the speed grid needs a whole number of at least 2 speeds, "
-                             f"got {show(n)}")
-        return np.linspace(self.rpm_min, self.rpm_max, int(n))
+        n = positive_int(None, "n", n, low=2)
+        return np.linspace(self.rpm_min, self.rpm_max, n)
 
 
 def _is_real(value) -> bool:
@@ -351,10 +349,10 @@ def read_speed_table(path) -> tuple[np.ndarray, np.ndarray]:
     steps = np.diff(time)
     if np.any(steps <= 0):
         i = int(np.argmax(steps <= 0)) + 1
-        raise InputError(f"{where(name, f'line {i + 2}', 'time_s')}: times must increase "
-                         f"strictly, got {time[i]:g} after {time[i - 1]:g}")
+        raise InputError(f"{where(name, f'line {i + 2}', f'time_s = {time[i]:g}')}: times must "
+                         f"increase strictly; the line before gives {time[i - 1]:g}")
     if np.any(rpm < 0):
         i = int(np.argmax(rpm < 0))
-        raise InputError(f"{where(name, f'line {i + 2}', 'rpm')}: speeds must not be "
-                         f"negative, got {rpm[i]:g}")
+        raise InputError(f"{where(name, f'line {i + 2}', f'rpm = {rpm[i]:g}')}: speeds must "
+                         "not be negative")
     return time, rpm

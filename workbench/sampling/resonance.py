@@ -56,7 +56,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from workbench.errors import InputError
+from workbench.checks import positive, real_array
 
 __all__ = ["PEAK_LOSS_LIMIT_DB", "Crossing", "CROSSING_COLUMNS", "passage_peak_ratio",
            "passage_loss_db", "sweep_parameter", "max_sweep_kappa", "fastest_sweep_rpm_per_s",
@@ -128,9 +128,7 @@ def passage_peak_ratio(kappa):
     >>> 0.89 < float(passage_peak_ratio(1.0)) < 0.92
     True
     """
-    k = np.asarray(kappa, dtype=np.float64)
-    if np.any(~np.isfinite(k)) or np.any(k < 0):
-        raise InputError(f"kappa {kappa!r} is not valid; allowed: finite numbers >= 0")
+    k = real_array(kappa, "kappa", "sweep parameters")
     out = _peak_ratios(k).reshape(k.shape)
     return out[()] if out.ndim == 0 else out
 
@@ -171,9 +169,7 @@ def max_sweep_kappa(loss_db: float = PEAK_LOSS_LIMIT_DB) -> float:
     """
     from scipy.optimize import brentq
 
-    loss_db = float(loss_db)
-    if not (math.isfinite(loss_db) and loss_db > 0):
-        raise InputError(f"loss_db {loss_db!r} is not valid; allowed: a number > 0 (dB)")
+    loss_db = positive(None, "loss_db", loss_db, unit="dB")
     if loss_db not in _KAPPA_CACHE:
         target = 10.0 ** (-loss_db / 20.0)
         hi = 1.0

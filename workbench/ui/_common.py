@@ -17,6 +17,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from workbench.errors import FoldlineWarning, InputError
+from workbench.htmltable import Column, table_html
 
 __all__ = [
     "as_machine",
@@ -24,6 +25,8 @@ __all__ = [
     "agg_figure",
     "png_bytes",
     "html_table",
+    "collision_columns",
+    "collision_formats",
     "STYLE",
     "step_card",
     "Cache",
@@ -41,8 +44,9 @@ STYLE = """<style>
 .foldline-table {border-collapse: collapse; font-size: 12px; margin: 4px 0;}
 .foldline-table th {background: #f0f0f0; padding: 2px 8px; text-align: left;
   border-bottom: 1px solid #999;}
-.foldline-table td {padding: 1px 8px; border-bottom: 1px solid #e4e4e4; text-align: right;}
-.foldline-table td.foldline-text {text-align: left;}
+.foldline-table td {padding: 1px 8px; border-bottom: 1px solid #e4e4e4; text-align: left;}
+.foldline-table td.num {text-align: right;}
+p.empty.foldline-table {color: #555;}
 .foldline-table tr.foldline-changed td {background: #fff4d6;}
 .foldline-verdict {font-size: 13px; line-height: 1.45;}
 .foldline-verdict ul {margin: 2px 0 2px 18px; padding: 0;}
@@ -114,20 +118,47 @@ def png_bytes(fig) -> bytes:
     return buf.getvalue()
 
 
-def _cell(value, fmt):
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return "<td>&ndash;</td>"
-    if isinstance(value, str):
-        return f'<td class="foldline-text">{html.escape(value)}</td>'
-    if isinstance(value, (bool, np.bool_)):
-        return f"<td>{'yes' if value else 'no'}</td>"
-    if isinstance(value, float) and math.isinf(value):
-        return f"<td>{'-' if value < 0 else ''}&infin;</td>"
-    return f"<td>{html.escape(format(value, fmt))}</td>"
+def _cell_text(spec):
+    """How a panel shows a value: text as is, yes/no, signed infinity, else ``format(v, spec)``."""
+
+    def text(value):
+        value = _plain(value)
+        if isinstance(value, str):
+            return value
+        if isinstance(value, bool):
+            return "yes" if value else "no"
+        if isinstance(value, float) and math.isinf(value):
+            return f"{'-' if value < 0 else ''}\u221e"
+        return format(value, spec)
+
+    return text
+
+
+def collision_columns(keys) -> tuple:
+    """(key, heading) pairs of collision-table columns, headings from the sampling layer."""
+    from workbench.sampling import COLLISION_HEADINGS
+
+    return tuple((k, COLLISION_HEADINGS[k]) for k in keys)
+
+
+def collision_formats() -> dict:
+    """Format specs of the collision table's columns (``.0f``, ``.1f``; ``d`` for zones)."""
+    from workbench.sampling import COLLISION_DECIMALS
+
+    return {k: "d" if k == "zone" else f".{d}f" for k, d in COLLISION_DECIMALS.items()}
+
+
+def _is_number(value) -> bool:
+    value = _plain(value)
+    return (isinstance(value, (int, float)) and not isinstance(value, bool)
+            and not (isinstance(value, float) and math.isnan(value)))
 
 
 def html_table(rows, columns, *, css_class, formats=None, changed=None, empty="(none)") -> str:
-    """An HTML table with the class ``foldline-table`` and ``css_class``.
+    """An HTML table with the classes ``foldline-table`` and ``css_class``.
+
+    Drawn by :func:`workbench.htmltable.table_html`, the report's renderer, so a panel's table
+    and the report's carry the same markup (``data-value`` on every cell).
 
     Parameters
     ----------
@@ -145,17 +176,13 @@ def html_table(rows, columns, *, css_class, formats=None, changed=None, empty="(
         Text shown instead of the table when there are no rows.
     """
     rows = list(rows)
-    if not rows:
-        return f'<p class="foldline-note {css_class}-empty">{html.escape(empty)}</p>'
     formats = formats or {}
-    head = "".join(f"<th>{html.escape(h)}</th>" for _, h in columns)
-    body = []
-    for i, row in enumerate(rows):
-        mark = ' class="foldline-changed"' if changed is not None and changed[i] else ""
-        cells = "".join(_cell(_plain(row.get(k)), formats.get(k, "g")) for k, _ in columns)
-        body.append(f"<tr{mark}>{cells}</tr>")
-    return (f'<table class="foldline-table {css_class}"><thead><tr>{head}</tr></thead>'
-            f'<tbody>{"".join(body)}</tbody></table>')
+    cols = [Column(k, h, _cell_text(formats.get(k, "g")),
+                   numeric=any(_is_number(r.get(k)) for r in rows))
+            for k, h in columns]
+    marks = None if changed is None else ["foldline-changed" if c else None for c in changed]
+    return table_html(rows, cols, css_class=f"foldline-table {css_class}", empty=empty,
+                      row_classes=marks, missing="\u2013")
 
 
 def _plain(value):

@@ -28,32 +28,22 @@ import math
 
 import ipywidgets as widgets
 
+from workbench import checks
 from workbench.errors import FoldlineError, InputError
-from workbench.sampling import (ANALOG_KINDS, FILTER_KINDS, AntiAliasFilter, SpeedProfile, advise,
-                                find_collisions, fold_map)
 from workbench.plots.foldmap import draw_low_frequency
-from workbench.ui._common import (FIGSIZE_IN, STYLE, Cache, agg_figure, as_machine, as_plan, collect_warnings,
+from workbench.sampling import (ANALOG_KINDS, COLLISION_COLUMNS, FILTER_KINDS, AntiAliasFilter,
+                                SpeedProfile, advise, find_collisions, fold_map)
+from workbench.ui._common import (FIGSIZE_IN, STYLE, Cache, agg_figure, as_machine, as_plan,
+                                  collect_warnings, collision_columns, collision_formats,
                                   error_html, fmt_rate, html_table, png_bytes, step_card)
 from workbench.ui.scene import FoldScene
 
 __all__ = ["FoldMapPanel", "narrowed_speed", "COLLISION_TABLE_COLUMNS"]
 
-#: Columns of the panel's collision table: (key of find_collisions' table, heading with units).
-COLLISION_TABLE_COLUMNS = (
-    ("line", "line"),
-    ("band", "band"),
-    ("rpm_min", "from (rpm)"),
-    ("rpm_max", "to (rpm)"),
-    ("zone", "zone"),
-    ("true_hz_min", "true from (Hz)"),
-    ("true_hz_max", "true to (Hz)"),
-    ("apparent_hz_min", "shows from (Hz)"),
-    ("apparent_hz_max", "shows to (Hz)"),
-    ("residual_db", "residual (dB)"),
-)
-_TABLE_FORMATS = {"rpm_min": ".0f", "rpm_max": ".0f", "zone": "d", "true_hz_min": ".1f",
-                  "true_hz_max": ".1f", "apparent_hz_min": ".1f", "apparent_hz_max": ".1f",
-                  "residual_db": ".1f"}
+#: Columns of the panel's collision table: (key of find_collisions' table, heading with units);
+#: the command's columns with the true frequencies before the apparent ones.
+COLLISION_TABLE_COLUMNS = collision_columns(
+    COLLISION_COLUMNS[:5] + ("true_hz_min", "true_hz_max") + COLLISION_COLUMNS[5:])
 
 _ENTRY_KINDS = {"shaft": "shaft", "gear_stage": "gear stage", "planetary_stage": "planetary stage",
                 "bearing": "bearing", "rotor": "rotor", "order": "order", "line": "fixed line"}
@@ -386,9 +376,7 @@ class FoldMapPanel:
         with collect_warnings() as caught:
             try:
                 plan = self.current_plan()
-                rate = float(self.rate_hz.value)
-                if not math.isfinite(rate) or rate <= 0:
-                    raise InputError(f"rate {self.rate_hz.value!r} Hz: give a positive sample rate")
+                rate = checks.rate_hz(None, "rate_hz", self.rate_hz.value)
                 advice = self._advice_for(plan)
                 fmap = self._fold_map_for(plan, rate)
                 table = self._table_for(plan, rate, fmap)
@@ -432,9 +420,9 @@ class FoldMapPanel:
         head = (f"<b>Collisions</b> (folded lines above {self.threshold_db.value:g} dB inside a band): "
                 f"{len(coll)} shown" + (f", {hidden} more in hidden sources or bands" if hidden else ""))
         body = html_table(coll.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-collisions",
-                          formats=_TABLE_FORMATS, empty="No folded line enters a shown band above the threshold.")
+                          formats=collision_formats(), empty="No folded line enters a shown band above the threshold.")
         overlaps = html_table(over.to_dict("records"), COLLISION_TABLE_COLUMNS, css_class="foldline-overlaps",
-                              formats=_TABLE_FORMATS, empty="none")
+                              formats=collision_formats(), empty="none")
         return (STYLE + f"<div>{head}</div>{body}<details><summary>Direct lines inside bands "
                 f"(overlaps, not folded): {len(over)}</summary>{overlaps}</details>")
 

@@ -18,8 +18,9 @@ import ipywidgets as widgets
 from workbench.errors import FoldlineError, InputError
 from workbench.machine import Bearing, GearStage, PlanetaryStage, Rotor
 from workbench.sampling import advise, find_collisions, fold_map
-from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
-                                  fmt_rate, html_table)
+from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings,
+                                  collision_columns, collision_formats, error_html, fmt_rate,
+                                  html_table)
 from workbench.ui.scene import FoldScene
 
 __all__ = ["SourceEditorPanel", "EDITABLE_FIELDS"]
@@ -239,10 +240,9 @@ class SourceEditorPanel:
         coll = t1[t1["kind"] == "collision"]
         self.collisions.value = STYLE + f"<b>Collisions of the edited machine at {fmt_rate(rate)}</b>" + html_table(
             coll.to_dict("records"),
-            (("line", "line"), ("band", "band"), ("rpm_min", "from (rpm)"), ("rpm_max", "to (rpm)"),
-             ("zone", "zone"), ("residual_db", "residual (dB)")),
+            collision_columns(("line", "band", "rpm_min", "rpm_max", "zone", "residual_db")),
             css_class="foldline-collisions", empty="No folded line enters a band above the threshold.",
-            formats={"rpm_min": ".0f", "rpm_max": ".0f", "zone": "d", "residual_db": ".1f"})
+            formats=collision_formats())
 
     def _edits(self) -> str:
         out = []

@@ -37,6 +37,7 @@ from typing import Any
 
 import numpy as np
 
+from workbench.checks import RATE_RULE, describe
 from workbench.errors import RunFileError
 from workbench.runs.formats.base import (TIME_NAMES, FormatRead, ReadRequest, agreed_rate,
                                          uniform_rate)
@@ -68,8 +69,8 @@ def _rate_attr(obj, where: str) -> float | None:
     value = np.asarray(obj.attrs["rate_hz"])
     if value.size != 1 or value.dtype.kind not in "iuf" or not math.isfinite(
             float(value.reshape(()))) or float(value.reshape(())) <= 0:
-        raise RunFileError(f"{where}: attribute rate_hz is {obj.attrs['rate_hz']!r}; allowed: "
-                           "one number > 0 (Hz)")
+        raise RunFileError(f"{where}: attribute "
+                           + describe("rate_hz", obj.attrs["rate_hz"], RATE_RULE))
     return float(value.reshape(()))
 
 

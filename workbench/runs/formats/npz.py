@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from workbench.checks import RATE_RULE, describe
 from workbench.errors import RunFileError
 from workbench.fileio import atomic_output
 from workbench.runs.formats.base import FormatRead, ReadRequest
@@ -62,7 +63,7 @@ def read(path: Path, request: ReadRequest) -> FormatRead:
                                    f"of shape {r.shape}")
             rate = float(r.reshape(()))
             if not (math.isfinite(rate) and rate > 0):
-                raise RunFileError(f"{path}: key 'rate_hz' is {rate}; allowed: a number > 0 (Hz)")
+                raise RunFileError(f"{path}: key {describe('rate_hz', rate, RATE_RULE)}")
         names = None
         if "channel_names" in keys:
             cn = get("channel_names")

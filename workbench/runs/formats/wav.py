@@ -29,6 +29,7 @@ from typing import BinaryIO
 
 import numpy as np
 
+from workbench.checks import RATE_RULE, choice, describe, positive_int
 from workbench.errors import InputError, RunFileError
 from workbench.fileio import atomic_output
 from workbench.runs.formats.base import FormatRead, ReadRequest
@@ -195,7 +196,7 @@ def _parse(path: Path, f: BinaryIO, size: int) -> WavInfo:
     if n_ch == 0:
         raise _fail(path, "header says 0 channels; a run needs at least one")
     if rate == 0:
-        raise _fail(path, "header says a sample rate of 0 Hz; the rate must be > 0")
+        raise _fail(path, f"header: {describe('rate_hz', 0, RATE_RULE)}")
     if block_align != n_ch * bits // 8:
         raise _fail(path, f"header block align {block_align} bytes does not match {n_ch} "
                           f"channel(s) x {bits // 8} bytes")
@@ -286,18 +287,14 @@ class WavWriter:
     def __init__(self, path: str | os.PathLike, rate_hz: float, n_channels: int, *,
                  sample_format: str = "float32", force: bool = False,
                  channel_names: tuple[str, ...] | None = None) -> None:
-        if sample_format not in _WRITABLE:
-            raise InputError(f"sample_format {sample_format!r} is not supported; allowed: "
-                             f"{', '.join(_WRITABLE)}")
+        choice(None, "sample_format", sample_format, _WRITABLE)
         if (isinstance(rate_hz, bool) or not isinstance(rate_hz, (int, float, np.number))
                 or not math.isfinite(rate_hz) or rate_hz <= 0 or rate_hz != int(rate_hz)
                 or rate_hz > _MAX_RIFF):
-            raise InputError(f"{path}: rate {rate_hz!r} Hz cannot be stored in a WAV file; "
-                             "allowed: a whole number of Hz from 1 to 4294967295 (write an .npz "
-                             "file for other rates)")
-        if isinstance(n_channels, bool) or not isinstance(n_channels, int) or not (
-                1 <= n_channels <= 65535):
-            raise InputError(f"n_channels {n_channels!r} is not valid; allowed: 1 to 65535")
+            raise InputError(f"{path}: " + describe(
+                "rate_hz", rate_hz, "cannot be stored in a WAV file; allowed: a whole number of "
+                "Hz from 1 to 4294967295 (write an .npz file for other rates)"))
+        positive_int(None, "n_channels", n_channels, high=65535, whole_float=False)
         self.path = Path(path)
         self.rate_hz = int(rate_hz)
         self.n_channels = n_channels
