@@ -30,7 +30,7 @@ def test_settings_check_their_fields_by_name():
         TrackingSettings(samples_per_rev=3)
     with pytest.raises(InputError, match=r"^revs_per_block = -1: must be a positive number"):
         TrackingSettings(revs_per_block=-1)
-    with pytest.raises(InputError, match=r"^envelope_hz = \(900, 400\): must satisfy 0 < LO < HI"):
+    with pytest.raises(InputError, match=r"^envelope_hz = \[900, 400\]: must satisfy 0 < LO < HI"):
         TrackingSettings(envelope_hz=(900, 400))
     with pytest.raises(InputError, match=r"^cut_orders = .*every order must be a positive number"):
         TrackingSettings(cut_orders=(1.0, -2.0))
