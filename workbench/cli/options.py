@@ -3,22 +3,11 @@
 from __future__ import annotations
 
 from workbench.errors import InputError
+from workbench.textparse import parse_orders
 
 __all__ = ["add_track_options", "track_options_from_args", "settings_from_args", "parse_orders",
            "parse_channels", "parse_threads", "option_name", "OPTION_NAMES", "FIELD_FLAGS",
            "flag_error", "add_speed_options", "speed_options_from_args"]
-
-
-def parse_orders(text: str, name: str) -> tuple:
-    """``"1,29,4.95"`` -> (1.0, 29.0, 4.95); every order positive."""
-    try:
-        vals = tuple(float(v) for v in str(text).split(",") if v.strip())
-    except ValueError:
-        raise InputError(f"{name} {text!r}: give orders separated by commas, e.g. 1,29,4.95") from None
-    bad = [v for v in vals if not (v > 0 and v < float("inf"))]
-    if not vals or bad:
-        raise InputError(f"{name} {text!r}: every order must be a positive number")
-    return vals
 
 
 def _band(text: str, name: str) -> tuple:

@@ -47,6 +47,7 @@ from workbench.runs.pipeline import STAGES, TrackingPipeline
 from workbench.runs.settings import (DEFAULT_SAMPLES_PER_REV, TrackingSettings,
                                      usable_max_order)
 from workbench.sampling import angle_settings
+from workbench.textparse import parse_orders
 from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
                                   html_table, step_card)
 
@@ -289,7 +290,7 @@ class AngleDomainPanel:
             machine=self.machine, plan=self.plan)
 
     def _orders(self) -> tuple:
-        return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
+        return parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
 
     # -- computation ----------------------------------------------------------------------
     def _speed_changes(self) -> dict:
@@ -687,24 +688,13 @@ class AngleDomainPanel:
         key = self._extraction_key()
 
         def make():
-            orders = self._parse_orders(self.extract_orders.value, "orders to extract")
+            orders = parse_orders(self.extract_orders.value, "orders to extract", "4, 4.1")
             _, angle = self.tacho()
             bw = {"hz": {"bandwidth_hz": key[2]}, "pct": {"bandwidth_pct": key[2]}}[key[3]]
             return extract_orders(self.run.channel(key[0]), self.run.rate_hz, angle, orders,
                                   filter_order=key[4], **bw)
 
         return self._extractions.get(key, make)
-
-    @staticmethod
-    def _parse_orders(text, label, example="4, 4.1") -> tuple:
-        """Positive orders separated by commas (or semicolons) from a text box."""
-        try:
-            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
-        except ValueError:
-            values = ()
-        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
-            raise InputError(f"{label} {text!r}: give positive orders separated by commas, e.g. {example}")
-        return values
 
     def _draw_extraction(self):
         key = self._extraction_key()
