@@ -83,18 +83,24 @@ def flag_error(exc, args=None):
     """
     import re
 
-    flag = option_name(exc.field)
-    given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
-    if given is None:
-        value = exc.value
-        given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
-            if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
-                                                      else str(value))
+    def said(field, value):
+        flag = option_name(field)
+        given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
+        if given is None:
+            given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
+                if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
+                                                          else str(value))
+        return f"{flag} {given}"
+
+    head = said(exc.field, exc.value)
+    also = getattr(exc, "also", None)
+    if also is not None:   # a conflict of two settings: both options named
+        head += " and " + said(*also)
     # field names written with an underscore ("speed_range") are not words of a sentence
     named = sorted((k for k in FIELD_FLAGS if "_" in k), key=len, reverse=True)
     problem = re.sub(r"\b(" + "|".join(named) + r")\b", lambda m: FIELD_FLAGS[m.group(1)],
                      exc.problem)
-    return InputError(f"{flag} {given}: {problem}")
+    return InputError(f"{head}: {problem}")
 
 
 def settings_from_args(args, base=None, **more):
