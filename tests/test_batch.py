@@ -194,6 +194,38 @@ def test_spectrum_file_matches_track_json(serial, scenario, capsys):
     assert row["top_orders"] == ";".join(f"{p['order']:.2f}:{p['amplitude']:.3g}" for p in top)
 
 
+def test_batch_writes_what_track_writes_and_the_overall_maximum(serial, scenario):
+    from workbench.runs import read_run
+    from workbench.runs.analysis import track_run
+    from workbench.runs.mapdata import read_map_data
+
+    out, result = serial
+    ok = result.summary[result.summary["status"] == "ok"]
+    for row in ok.head(2).itertuples():
+        tag = f"{Path(row.file).stem}_{row.sha256[:8]}"
+        for name in ("unmatched.csv", "overall_level.csv", "order_map.npz", "order_map.parquet"):
+            assert (out / f"{tag}_{name}").is_file(), name
+        # the batch does not compute the frequency map (a second pass): no file for it
+        assert not (out / f"{tag}_frequency_map.npz").exists()
+        # the same run tracked directly with the batch's settings
+        direct = track_run(row.file, machine=MACHINE, samples_per_rev=SPR,
+                           revs_per_block=REVS_PER_BLOCK, cut_orders=(1.0, 29.0), rf_map=False)
+        level, rpm = direct.overall.maximum()
+        assert row.overall_max == pytest.approx(level, rel=1e-12)
+        assert row.overall_max_rpm == pytest.approx(rpm, rel=1e-12)
+        table = pd.read_csv(out / f"{tag}_overall_level.csv")
+        assert list(table.columns) == ["rpm", "rms", "blocks"]
+        assert table["rms"].max() == pytest.approx(row.overall_max, rel=1e-12)
+        # Parseval (common practice, no source): the whole record's mean square is the
+        # blocks' mean squares averaged, so it cannot exceed the highest row (2 % for the
+        # record's ends outside full blocks)
+        x = read_run(row.file).channel(row.channel)
+        assert float(np.std(x)) <= row.overall_max * 1.02
+        omap = read_map_data(out / f"{tag}_order_map.npz")
+        np.testing.assert_array_equal(omap.amplitude, direct.order_map.amplitude)
+        assert len(pd.read_csv(out / f"{tag}_unmatched.csv")) == len(direct.unmatched)
+
+
 def test_two_worker_cluster_gives_the_serial_results(serial, scenario):
     pytest.importorskip("distributed")
     out_serial, ref = serial

@@ -133,7 +133,7 @@ def test_track_takes_the_speed_channel_and_not_as_vibration(capsys, run_file):
 
 @pytest.mark.parametrize("argv, match", [
     (["--speed-order", "1"], "--speed-range"),
-    (["--speed-range", "1000,4000"], "--speed-range needs --speed-order"),
+    (["--speed-range", "1000,4000"], "--speed-range 1000,4000: needs --speed-order"),
     (["--speed-order", "1", "--speed-range", "4000,1000"], "0 < LO < HI"),
     (["--speed-order", "1", "--speed-range", "fast"], "LO,HI"),
     (["--speed-channel", "drive"], "--speed-scale"),

@@ -71,7 +71,9 @@ def test_angle_panel_tracks_ticked_channels_together(tmp_path):
     panel = AngleDomainPanel(run, export_folder=tmp_path)
     panel.channels.value = ("acc 1", "acc 3")
     panel.samples_per_rev.value = 32        # acc 1 shown; acc 3 tracked in the same pass
-    assert ("acc 3", 32, True) in panel._tracks._items and panel.error is None
-    panel.channel.value = "acc 3"           # a cache hit: nothing tracked again
+    assert panel.pipeline.channel_names == ("acc 1", "acc 3") and panel.error is None
+    tracked = panel.runs["angle"]
+    panel.channel.value = "acc 3"           # tracked already: nothing tracked again
+    assert panel.runs["angle"] == tracked
     alone = resample_to_angle(run.channel("acc 3"), RATE, panel.tacho()[1], samples_per_rev=32)
     assert np.array_equal(panel.track().data, alone.data)

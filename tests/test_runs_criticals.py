@@ -13,6 +13,7 @@ import pytest
 
 from workbench.errors import FoldlineWarning
 from workbench.machine import machine_from_dict
+from workbench.errors import InputError
 from workbench.runs import simulate_run
 from workbench.runs.criticals import run_criticals
 from workbench.sampling import plan_from_dict
@@ -69,3 +70,15 @@ def test_coast_down_finds_the_same_critical():
     assert c.amplification_factor == pytest.approx(9.9, rel=0.10)
     # the lag rises with speed whichever way the run went (Rao eq. 3.82)
     assert c.phase_change_deg == pytest.approx(90.0, abs=12.0)
+
+
+def test_bad_settings_are_named_by_field():
+    # a Python call names the fields; the command names its options (tests/test_cli_criticals.py)
+    run = simulate_run(MACHINE, _plan(600.0, 2400.0), 2048.0, seed=5, noise_db=-90.0)
+    with pytest.raises(InputError, match=r"^samples_per_rev = 4: must be a whole number"):
+        run_criticals(run, samples_per_rev=4)
+    with pytest.raises(InputError, match=r"^revs_per_block = -1: must be a positive number"):
+        run_criticals(run, revs_per_block=-1)
+    with pytest.raises(InputError, match=r"^orders = \(1\.0, 90\.0\): order 90 is beyond the "
+                                         r"usable .*; raise samples_per_rev"):
+        run_criticals(run, orders=(1, 90), samples_per_rev=128)

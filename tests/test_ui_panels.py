@@ -479,6 +479,28 @@ def test_export_writes_tables_and_figures(angle_panel, tmp_path):
     angle_panel.overwrite.value = False
 
 
+def test_a_changed_control_reruns_only_the_stages_it_affects(machine, plan):
+    # A short simulated run (tacho + vibration); the panel counts each stage's runs.
+    run = simulate_run(machine, plan, 2560.0, duration_s=16.0, seed=3)   # 300 -> 700 rpm
+    panel = AngleDomainPanel(run, machine=machine)
+    assert panel.error is None
+    assert dict(panel.runs) == {s: 1 for s in ("speed", "angle", "spectra", "cuts", "identify")}
+    first = panel.cuts()[0].amplitude
+    panel.cut_bandwidth.value = 1.0          # cuts (and the identification after them) only
+    assert panel.error is None
+    assert [panel.runs[s] for s in ("speed", "angle", "spectra", "cuts", "identify")] == [1, 1, 1, 2, 2]
+    # a wider band sums more bins: the cut of order 1 can only grow (power sum)
+    assert np.all(panel.cuts()[0].amplitude >= first * (1 - 1e-9))
+    panel.revs_per_block.value = 8           # the spectra and after; the tracked signal is kept
+    assert [panel.runs[s] for s in ("speed", "angle", "spectra", "cuts", "identify")] == [1, 1, 2, 3, 3]
+    panel.speed_range.value = "250, 800"
+    panel.speed_source.value = "vibration"   # another speed source: everything from the speed
+    assert panel.error is None and "speed from the vibration" in panel.tacho_info.value
+    assert panel.runs["speed"] == 2 and panel.runs["angle"] == 2
+    panel.speed_source.value = "tacho"
+    assert panel.error is None and panel.runs["speed"] == 3 and panel.runs["angle"] == 3
+
+
 def test_run_without_tacho_is_reported(machine, plan):
     run = simulate_run(machine, plan, 2560.0, duration_s=2.0, tacho_channel=False)
     panel = AngleDomainPanel(run, machine=machine)

@@ -53,6 +53,21 @@ class OverallLevel:
     band_hz: tuple | None = None
     unit: str | None = None
 
+    def to_frame(self):
+        """The table ``overall_level.csv`` holds: columns ``rpm, rms, blocks`` (pandas)."""
+        import pandas as pd
+
+        return pd.DataFrame({"rpm": self.rpm, "rms": self.rms, "blocks": self.n_blocks})
+
+    def maximum(self) -> tuple[float, float]:
+        """The highest level and the speed of its row: ``(rms, rpm)``; ``(nan, nan)`` when no
+        row holds a level."""
+        rms = np.asarray(self.rms, dtype=float)
+        if not np.isfinite(rms).any():
+            return math.nan, math.nan
+        i = int(np.nanargmax(rms))
+        return float(rms[i]), float(self.rpm[i])
+
     def to_dict(self) -> dict:
         """``{"rpm": [...], "rms": [...]}`` (NaN as None) plus ``block_s`` and ``band_hz``."""
         def num(v):

@@ -2,8 +2,9 @@
 
 Each run is one task: the worker gets the run's *path* (never its samples), reads it, tracks
 its channels (one or several, against one speed) with
-:func:`workbench.runs.analysis.track_channels`, writes each channel's order spectrum and order
-cuts as CSV files into the output folder, and returns one summary row per channel.  The client collects the rows
+:func:`workbench.runs.analysis.track_channels`, writes each channel's order spectrum, order
+cuts, unmatched lines and overall level as CSV files and its maps as data into the output
+folder, and returns one summary row per channel.  The client collects the rows
 into ``summary.parquet`` and ``summary.csv`` (written under temporary names and renamed into
 place, again every few seconds while the batch runs, so an interrupted batch keeps what it
 finished).
@@ -64,7 +65,7 @@ WORST_PREFIX = "worst: "
 #: Test metadata from each run's sidecar (the analysed channel's sensor for the last three).
 META_COLUMNS = ("unit_under_test", "serial_number", "test_id", "operator", "date",
                 "sensor_position", "sensor_direction", "sensor_type")
-TAIL_COLUMNS = ("top_orders", "aliases", "alias_lines", "warnings", "spectrum_csv", "cuts_csv",
+TAIL_COLUMNS = ("overall_max", "overall_max_rpm", "top_orders", "aliases", "alias_lines", "warnings", "spectrum_csv", "cuts_csv",
                 "seconds")
 _WRITE_EVERY_S = 5.0
 
@@ -194,13 +195,20 @@ def _plan(path: str, sha: str):
     return read_plan(path)
 
 
-def _output_names(path: Path, sha256: str, out_dir: Path, channel: str | None = None
-                  ) -> tuple[Path, Path]:
+def _file_tag(path: Path, sha256: str, channel: str | None = None) -> str:
+    """``<stem>_<sha8>`` (and ``_<channel>`` with several channels): the start of each file
+    name a run writes."""
     import re
 
     tag = f"{path.stem}_{sha256[:8]}"
     if channel is not None:   # several channels per run: the channel's name in each file's name
         tag += "_" + (re.sub(r"[^A-Za-z0-9._-]", "_", channel) or "channel")
+    return tag
+
+
+def _output_names(path: Path, sha256: str, out_dir: Path, channel: str | None = None
+                  ) -> tuple[Path, Path]:
+    tag = _file_tag(path, sha256, channel)
     return out_dir / f"{tag}_spectrum.csv", out_dir / f"{tag}_cuts.csv"
 
 
@@ -233,9 +241,12 @@ def process_run(path, settings: BatchSettings, out_dir, *, skip=frozenset()) -> 
         The run file (readable where this runs).
     settings : BatchSettings
     out_dir : str or Path
-        Folder for ``<stem>_<sha8>_spectrum.csv`` (columns ``order, amplitude``) and
-        ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``); with
-        several channels ``<stem>_<sha8>_<channel>_spectrum.csv`` and ``..._cuts.csv``.
+        Folder for ``<stem>_<sha8>_spectrum.csv`` (columns ``order, amplitude``),
+        ``<stem>_<sha8>_cuts.csv`` (columns ``order, bandwidth_orders, rpm, amplitude``),
+        ``..._unmatched.csv``, ``..._overall_level.csv`` (when the run is long enough) and the
+        maps as data (``..._order_map.npz`` and, when computed, ``..._frequency_map.npz``; the
+        ``.parquet`` of each with pyarrow), as ``foldline track --out`` writes them
+        (``docs/outputs.md``); with several channels ``<stem>_<sha8>_<channel>_...``.
     skip : set of (str, str, str)
         Keys ``(sha256, sidecar_sha256, settings fingerprint)`` of runs already done; such a
         run gets one row with status ``"skipped"`` and is not tracked.
@@ -305,6 +316,17 @@ def _channel_row(row, analysis, path, out_dir, settings, plan, lines, *, tagged)
     cuts = (pd.concat(cut_frames, ignore_index=True) if cut_frames else
             pd.DataFrame(columns=["order", "bandwidth_orders", "rpm", "amplitude"]))
     _write_csv(cuts, cuts_path)
+    # what `foldline track --out` writes besides: the unmatched lines, the overall level and
+    # the maps as data (the same writers, so the files read the same)
+    from workbench.runs.mapdata import write_map_files
+
+    tag = _file_tag(path, row["sha256"], analysis.channel if tagged else None)
+    if analysis.unmatched is not None:
+        _write_csv(analysis.unmatched, out_dir / f"{tag}_unmatched.csv")
+    if analysis.overall is not None:
+        _write_csv(analysis.overall.to_frame(), out_dir / f"{tag}_overall_level.csv")
+        row["overall_max"], row["overall_max_rpm"] = analysis.overall.maximum()
+    write_map_files(analysis, out_dir, prefix=f"{tag}_", force=True)
     sa = analysis.shaft_angle
     row.update({"status": "ok", "rpm_min": float(sa.rpm_min), "rpm_max": float(sa.rpm_max),
                 "duration_s": float(analysis.duration_s), "revolutions": float(sa.revolutions)})
@@ -368,7 +390,8 @@ def _frame(rows) -> pd.DataFrame:
         if c not in table.columns:
             table[c] = pd.Series([None] * len(table), dtype=object)
     table = table[_order_columns(table.columns)]
-    for c in ("rpm_min", "rpm_max", "duration_s", "revolutions", "seconds"):
+    for c in ("rpm_min", "rpm_max", "duration_s", "revolutions", "overall_max", "overall_max_rpm",
+              "seconds"):
         table[c] = pd.to_numeric(table[c], errors="coerce").astype(float)
     for c in table.columns:
         if str(c).startswith((LEVEL_PREFIX, WORST_PREFIX)):

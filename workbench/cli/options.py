@@ -3,22 +3,11 @@
 from __future__ import annotations
 
 from workbench.errors import InputError
+from workbench.textparse import parse_orders
 
 __all__ = ["add_track_options", "track_options_from_args", "settings_from_args", "parse_orders",
            "parse_channels", "parse_threads", "option_name", "OPTION_NAMES", "FIELD_FLAGS",
            "flag_error", "add_speed_options", "speed_options_from_args"]
-
-
-def parse_orders(text: str, name: str) -> tuple:
-    """``"1,29,4.95"`` -> (1.0, 29.0, 4.95); every order positive."""
-    try:
-        vals = tuple(float(v) for v in str(text).split(",") if v.strip())
-    except ValueError:
-        raise InputError(f"{name} {text!r}: give orders separated by commas, e.g. 1,29,4.95") from None
-    bad = [v for v in vals if not (v > 0 and v < float("inf"))]
-    if not vals or bad:
-        raise InputError(f"{name} {text!r}: every order must be a positive number")
-    return vals
 
 
 def _band(text: str, name: str) -> tuple:
@@ -94,18 +83,24 @@ def flag_error(exc, args=None):
     """
     import re
 
-    flag = option_name(exc.field)
-    given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
-    if given is None:
-        value = exc.value
-        given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
-            if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
-                                                      else str(value))
+    def said(field, value):
+        flag = option_name(field)
+        given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
+        if given is None:
+            given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
+                if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
+                                                          else str(value))
+        return f"{flag} {given}"
+
+    head = said(exc.field, exc.value)
+    also = getattr(exc, "also", None)
+    if also is not None:   # a conflict of two settings: both options named
+        head += " and " + said(*also)
     # field names written with an underscore ("speed_range") are not words of a sentence
     named = sorted((k for k in FIELD_FLAGS if "_" in k), key=len, reverse=True)
     problem = re.sub(r"\b(" + "|".join(named) + r")\b", lambda m: FIELD_FLAGS[m.group(1)],
                      exc.problem)
-    return InputError(f"{flag} {given}: {problem}")
+    return InputError(f"{head}: {problem}")
 
 
 def settings_from_args(args, base=None, **more):

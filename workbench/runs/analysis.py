@@ -25,7 +25,8 @@ import pandas as pd
 from workbench.angle import PulseDetector, ShaftAngle, tacho_angle
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.run import Run
-from workbench.runs.settings import TrackingSettings, usable_max_order
+from workbench.checks import is_number
+from workbench.runs.settings import SettingError, TrackingSettings, check_speed_sources, usable_max_order
 
 __all__ = ["RunAnalysis", "MultiRunAnalysis", "track_run", "track_channels", "vibration_channels",
            "run_speed", "run_speed_estimate", "SPEED_OPTIONS", "CHUNK_S", "CHANNEL_KEYS"]
@@ -408,44 +409,31 @@ def run_speed_estimate(run: Run, *, speed_order=None, speed_range=None, speed_ch
 
     Raises
     ------
-    InputError
+    SettingError
         Two speed sources at once; ``speed_order`` without ``speed_range`` (or the reverse);
-        ``speed_channel`` without ``speed_scale`` (or the reverse); bad values.
+        ``speed_channel`` without ``speed_scale`` (or the reverse), naming the fields
+        (:func:`~workbench.runs.settings.check_speed_sources`).
+    InputError
+        Bad values.
     """
     if chunk is None:
         chunk = max(4096, int(CHUNK_S * run.rate_hz))
-    given = {"--speed-order": speed_order, "--speed-channel": speed_channel, "--rpm": rpm,
-             "--speed-table": speed_table, "--tacho": tacho,
-             "--pulses-per-rev": pulses_per_rev, "--missing-pulses": missing_pulses}
-    if speed_order is None and speed_range is not None:
-        raise InputError("--speed-range needs --speed-order (the order whose ridge gives the "
-                         "speed)")
-    if speed_channel is None and speed_scale is not None:
-        raise InputError("--speed-scale needs --speed-channel (the channel it scales)")
+    check_speed_sources(speed_order=speed_order, speed_range=speed_range,
+                        speed_channel=speed_channel, speed_scale=speed_scale, rpm=rpm,
+                        speed_table=speed_table, tacho=tacho, pulses_per_rev=pulses_per_rev,
+                        missing_pulses=missing_pulses)
     if speed_order is None and speed_channel is None:
         return None
     from workbench.angle.vibration_speed import speed_from_channel, speed_from_vibration
 
-    mine = "--speed-order" if speed_order is not None else "--speed-channel"
-    others = [k for k, v in given.items() if v is not None and k != mine]
-    if others:
-        raise InputError(f"{mine} and {others[0]} give the speed twice; allowed: one speed "
-                         "source (tacho options, --speed-order, --speed-channel, --rpm or "
-                         "--speed-table)")
     source = run.source or "<memory>"
     if speed_order is not None:
-        if speed_range is None:
-            raise InputError(f"--speed-order {speed_order:g} needs --speed-range LO,HI (the rpm "
-                             "range to search)")
         vib = run.channels[_vibration_channel(run, channel)].name
         try:
             return speed_from_vibration(lambda: run.iter_chunks(vib, chunk), run.rate_hz,
                                         order=float(speed_order), rpm_range=speed_range)
         except InputError as exc:
             raise InputError(f"{source}: channel '{vib}': --speed-order: {exc}") from None
-    if speed_scale is None:
-        raise InputError(f"--speed-channel {speed_channel} needs --speed-scale RPM_PER_UNIT "
-                         "(rpm per unit of the channel)")
     name = run.channels[_channel_index(run, speed_channel, "--speed-channel")].name
     try:
         return speed_from_channel(lambda: run.iter_chunks(name, chunk), run.rate_hz,
@@ -504,12 +492,10 @@ def _speed(run: Run, *, tacho, pulses_per_rev, missing_pulses, rpm, speed_table,
                              chunk=chunk)
     if est is not None:
         return est.angle, est.source
-    if rpm is not None and speed_table is not None:
-        raise InputError("give either --rpm or --speed-table, not both")
-    if rpm is not None:
+    if rpm is not None:   # rpm with speed_table is refused by run_speed_estimate
+        if not (is_number(rpm) and 0 < float(rpm) < math.inf):
+            raise SettingError("rpm", rpm, "must be a positive speed in rpm")
         rpm = float(rpm)
-        if not math.isfinite(rpm) or rpm <= 0:
-            raise InputError(f"--rpm {rpm!r}: must be a positive speed in rpm")
         return ShaftAngle.from_rpm(rpm, run.duration_s), "rpm"
     if speed_table is not None:
         from workbench.sampling import read_speed_table

@@ -23,12 +23,11 @@ from workbench.angle import iter_resample_to_angle, frequency_map
 from workbench.angle.order_tracks import (DEFAULT_TRACK_ORDERS, DEFAULT_TRACK_REVS_PER_BLOCK,
                                           CriticalSpeed, OrderTrack, RejectedPeak,
                                           find_track_criticals, order_tracks)
-from workbench.checks import positive, positive_int
 from workbench.errors import FoldlineWarning, InputError
 from workbench.runs.analysis import (CHUNK_S, SPEED_OPTIONS, _channel_index, _machine_for,
                                      _vibration_channel, run_speed)
 from workbench.runs.pipeline import MAX_RF_NPERSEG, _map_bins
-from workbench.runs.settings import MAX_SAMPLES_PER_REV, MIN_SAMPLES_PER_REV, usable_max_order
+from workbench.runs.settings import SettingError, TrackingSettings, usable_max_order
 from workbench.runs.files import read_run
 from workbench.runs.run import Run
 
@@ -206,15 +205,15 @@ def run_criticals(run_or_path, *, orders=DEFAULT_TRACK_ORDERS, channel=None, ope
                          f"{', '.join(SPEED_OPTIONS)}")
     run = run_or_path if isinstance(run_or_path, Run) else read_run(run_or_path, rate_hz=rate_hz)
     source = str(run.source or "<memory>")
-    spr = positive_int(None, "--samples-per-rev", samples_per_rev, low=MIN_SAMPLES_PER_REV,
-                       high=MAX_SAMPLES_PER_REV, whole_float=False)
-    rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else positive(
-        None, "--revs-per-block", revs_per_block, unit="revolutions")
+    # the settings check their own fields (named; the command names its options)
+    rpb = DEFAULT_TRACK_REVS_PER_BLOCK if revs_per_block is None else revs_per_block
+    checked = TrackingSettings(samples_per_rev=samples_per_rev, revs_per_block=rpb)
+    spr, rpb = checked.samples_per_rev, checked.revs_per_block
     orders = tuple(float(o) for o in orders)
     if max(orders) >= usable_max_order(spr):
-        raise InputError(f"--orders {','.join(f'{o:g}' for o in orders)}: order {max(orders):g} "
-                         f"is beyond the usable {usable_max_order(spr):g} at {spr} samples/rev; raise "
-                         "--samples-per-rev")
+        raise SettingError("orders", orders, f"order {max(orders):g} is beyond the usable "
+                           f"{usable_max_order(spr):g} at {spr} samples/rev; raise "
+                           "samples_per_rev")
     rows = _channels(run, channel)
     angle, speed_source = run_speed(run, **speed_opts)
     ppr = speed_opts.get("pulses_per_rev") or run.pulses_per_rev

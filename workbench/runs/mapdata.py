@@ -26,7 +26,8 @@ import numpy as np
 from workbench.errors import InputError, RunFileError
 from workbench.fileio import atomic_output
 
-__all__ = ["MapData", "map_data", "write_map_npz", "write_map_parquet", "read_map_data", "MAP_KINDS"]
+__all__ = ["MapData", "map_data", "write_map_npz", "write_map_parquet", "write_map_files",
+           "read_map_data", "MAP_KINDS"]
 
 #: Which map: orders against rpm, or Hz against rpm.
 MAP_KINDS = {"order": ("order", "order (multiples of reference shaft speed)"),
@@ -151,3 +152,46 @@ def read_map_data(path) -> MapData:
     except (KeyError, ValueError, OSError, ImportError) as exc:
         raise RunFileError(f"{path}: not a map written by foldline ({type(exc).__name__}: {exc})") from None
     raise InputError(f"{path}: a map is read from .npz or .parquet; got '{suffix}'")
+
+
+def write_map_files(analysis, folder, *, prefix: str = "", force: bool = False) -> list:
+    """A tracked channel's order map and frequency map (when computed) as data:
+    ``<prefix>order_map.npz`` and ``<prefix>frequency_map.npz``, and the ``.parquet`` of each
+    when pyarrow is installed (else a :class:`~workbench.errors.FoldlineWarning` says so).
+
+    Parameters
+    ----------
+    analysis : RunAnalysis
+        Its ``order_map``, ``rf_map``, ``unit`` and (for a scaled analysis) ``scaling``.
+    folder : path-like
+    prefix : str
+        Put in front of each file name (the batch's ``<stem>_<sha8>_``).
+    force : bool
+        Replace existing files.
+
+    Returns
+    -------
+    list of Path
+    """
+    import importlib.util
+    import warnings
+
+    from workbench.errors import FoldlineWarning
+
+    a = analysis
+    folder = Path(folder)
+    sc = getattr(a, "scaling", None)
+    how = "peak" if sc is None else sc.label(getattr(a, "channel_unit", None) or "")
+    parquet = importlib.util.find_spec("pyarrow") is not None
+    if not parquet:
+        warnings.warn("the maps are written as NPZ only: Parquet needs pyarrow (pip install "
+                      "'foldline[batch]')", FoldlineWarning, stacklevel=2)
+    written = []
+    for obj, stem in ((a.order_map, "order_map"), (getattr(a, "rf_map", None), "frequency_map")):
+        if obj is None:
+            continue
+        d = map_data(obj, unit=a.unit, amplitude_scaling=how)
+        written.append(write_map_npz(d, folder / f"{prefix}{stem}.npz", force=force))
+        if parquet:
+            written.append(write_map_parquet(d, folder / f"{prefix}{stem}.parquet", force=force))
+    return written

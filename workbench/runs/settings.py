@@ -26,7 +26,7 @@ from pathlib import Path
 from workbench.checks import FieldError, is_number, show
 from workbench.sampling import ANALYSER_FACTOR
 
-__all__ = ["TrackingSettings", "SettingError", "usable_max_order",
+__all__ = ["TrackingSettings", "SettingError", "usable_max_order", "check_speed_sources",
            "ANALYSER_FACTOR", "DEFAULT_SAMPLES_PER_REV", "DEFAULT_REVS_PER_BLOCK",
            "MIN_SAMPLES_PER_REV", "MAX_SAMPLES_PER_REV", "DEFAULT_WINDOW", "SPEED_FIELDS",
            "TRACK_WINDOWS"]
@@ -62,14 +62,19 @@ class SettingError(FieldError):
         The value given.
     problem : str
         What is wrong and what is allowed.
+    also : (str, object) or None
+        A second field (name, value) the problem is about, for a conflict of two settings:
+        ``rpm = 600 and speed_table = 'speed.csv': give the speed twice; ...``.
     """
 
-    def __init__(self, field: str, value, problem: str):
+    def __init__(self, field: str, value, problem: str, also: tuple | None = None):
         self.owner = "TrackingSettings"
         self.field = field
         self.value = value
         self.problem = problem
-        Exception.__init__(self, f"{field} = {show(value)}: {problem}")
+        self.also = also
+        both = "" if also is None else f" and {also[0]} = {show(also[1])}"
+        Exception.__init__(self, f"{field} = {show(value)}{both}: {problem}")
 
 
 def usable_max_order(samples_per_rev) -> float:
@@ -110,6 +115,50 @@ def _channel(name, value):
     if value is None or isinstance(value, str):
         return value
     return _whole(name, value, low=1, rule="must be a 1-based channel index or a channel name")
+
+
+#: The speed sources, each with the fields that choose it.
+_SOURCES = (("speed_order", "speed_range"), ("speed_channel", "speed_scale"), ("rpm",),
+            ("speed_table",), ("tacho", "pulses_per_rev", "missing_pulses"))
+_ONE_SOURCE = ("give the speed twice; allowed: one speed source (the tacho with its wheel, "
+               "rpm, speed_table, speed_order with speed_range, or speed_channel with "
+               "speed_scale)")
+#: Fields that need a partner: (field, partner, what the partner is).
+_PARTNERS = (("speed_order", "speed_range", "the rpm range to search, LO, HI"),
+             ("speed_channel", "speed_scale", "rpm per unit of the channel"))
+
+
+def check_speed_sources(**given) -> None:
+    """Refuse speed settings that do not make one speed source (the one rule, for the settings
+    and for a direct :func:`~workbench.runs.analysis.run_speed` call).
+
+    ``given`` holds speed fields (:data:`SPEED_FIELDS`; None: not given).  Refused: a
+    ``speed_range`` without ``speed_order`` (or the reverse), a ``speed_scale`` without
+    ``speed_channel`` (or the reverse), and two sources at once (``speed_order`` or
+    ``speed_channel`` with any other source or tacho option; ``rpm`` with ``speed_table``).
+
+    Raises
+    ------
+    SettingError
+        Naming the field (and the one it conflicts with).
+    """
+    has = {k: v for k, v in given.items() if v is not None}
+    for lead, partner, _ in _PARTNERS:
+        if partner in has and lead not in has:
+            why = ("the order whose ridge gives the speed" if lead == "speed_order"
+                   else "the channel it scales")
+            raise SettingError(partner, has[partner], f"needs {lead} ({why})")
+    for lead in ("speed_order", "speed_channel", "rpm"):
+        if lead not in has:
+            continue
+        others = [k for group in _SOURCES if lead not in group for k in group if k in has]
+        if lead == "rpm":
+            others = [k for k in others if k == "speed_table"]
+        if others:
+            raise SettingError(lead, has[lead], _ONE_SOURCE, also=(others[0], has[others[0]]))
+    for lead, partner, what in _PARTNERS:
+        if lead in has and partner not in has:
+            raise SettingError(lead, has[lead], f"needs {partner} ({what})")
 
 
 @dataclass(frozen=True)
@@ -253,6 +302,7 @@ class TrackingSettings:
         if self.speed_scale is not None:
             put("speed_scale", _number("speed_scale", self.speed_scale,
                                        rule="must be a finite number of rpm per unit"))
+        check_speed_sources(**{k: getattr(self, k) for k in SPEED_FIELDS})
         if self.threads is not None:
             put("threads", _whole("threads", self.threads, low=1,
                                   rule="must be a whole number of threads, 1 or more"))

@@ -1,17 +1,19 @@
 """Angle-domain panel: a recorded run from tacho to order map, with the fold prediction overlaid.
 
-Steps and what each control redoes (the rest is kept):
+The panel holds a :class:`~workbench.runs.pipeline.TrackingPipeline` (the tracked signal
+kept); a changed control hands its value to the pipeline, which redoes only the stages the
+changed setting affects and keeps the rest (``panel.runs`` counts the stage runs):
 
-1. the speed and shaft angle -- once per speed source and its settings (tacho pulses, an
-   order's ridge in the vibration, or an analogue speed channel; the tacho check figure);
-2. computed order tracking of the chosen channel -- per (channel, samples per rev, alias
-   protection), with a progress bar fed chunk by chunk; the channels ticked in "track
-   together" are tracked in the same pass (one block plan for all), so switching the shown
-   channel among them redoes nothing;
-3. order map, order spectrum, peaks and the identification of measured ridges with the
-   machine's predicted lines (direct and folded) -- per (block length, window);
-4. order cuts -- per list of orders;
-5. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
+1. speed -- the speed source and its settings (tacho pulses, an order's ridge in the
+   vibration, or an analogue speed channel; the tacho check figure);
+2. angle -- computed order tracking of the shown channel and those ticked in "track
+   together", in one pass (one block plan for all), with a progress bar; samples per rev and
+   alias protection redo it, switching the shown channel among the ticked ones does not;
+3. spectra -- order map, order spectrum and its peaks: block length and window redo them;
+4. cuts -- the orders cut and the cut width;
+5. identify -- measured ridges matched with the machine's predicted lines (direct and
+   folded) and the lines no prediction explains, after any of the above;
+6. order extraction (Vold-Kalman filter, its own tab) -- per (channel, orders, bandwidth,
    filter order): envelopes against rpm, a player for one order's waveform, WAV export.
 
 The controls sit in a strip of three steps, left to right as the analyst works (speed,
@@ -34,18 +36,18 @@ import ipywidgets as widgets
 import numpy as np
 import pandas as pd
 
-from workbench.angle import (OrderTracker, AngleSignal, detect_pulses, find_order_peaks, order_cut,
-                             order_map, order_spectrum, tacho_angle)
-from workbench.angle.matching import identify_order_map, unmatched_ridges
+from workbench.angle import DEFAULT_SPEED_TOLERANCE, AngleSignal
 from workbench.errors import FoldlineError, FoldlineWarning, InputError, OutputExistsError
 from workbench.plots import (plot_order_cuts, plot_order_envelopes, plot_order_map, plot_order_spectrum,
                              plot_tacho_check, save_figure, speed_check_options)
 from workbench.plots.angle import OVERLAYS
 from workbench.plots.common import figure_bytes
 from workbench.runs import Run, atomic_output, read_run
+from workbench.runs.pipeline import STAGES, TrackingPipeline
 from workbench.runs.settings import (DEFAULT_SAMPLES_PER_REV, TrackingSettings,
                                      usable_max_order)
 from workbench.sampling import angle_settings
+from workbench.textparse import parse_orders
 from workbench.ui._common import (STYLE, Cache, as_machine, as_plan, collect_warnings, error_html,
                                   html_table, step_card)
 
@@ -57,7 +59,6 @@ WINDOWS = (("Hann", "hann"), ("flat top (amplitudes)", "flattop"), ("Hamming", "
 #: Speed sources offered: (label, source).
 SPEED_SOURCES = (("tacho", "tacho"), ("vibration (order ridge)", "vibration"),
                  ("speed channel", "channel"))
-_CHUNK = 65536
 _DPI = 80
 
 
@@ -90,6 +91,8 @@ class AngleDomainPanel:
         Alias protection of the tracker (speed-tracking low-pass).
     cut_orders : ipywidgets.Text
         Orders to cut against speed, comma separated.
+    cut_bandwidth : ipywidgets.BoundedFloatText
+        Band summed in each cut, orders (0: four order bins).
     speed_source : ipywidgets.Dropdown
         Where the speed comes from: "tacho", "vibration" (the ridge of ``speed_order`` searched
         over ``speed_range``, rpm "LO, HI", in the vibration channel) or "channel" (the analogue
@@ -124,6 +127,8 @@ class AngleDomainPanel:
         The order whose waveform the player holds (normalised to its peak).
     export_waveform : ipywidgets.Button
         Writes ``order_<k>.wav`` and ``order_<k>.csv`` for every extracted order.
+    pipeline : TrackingPipeline
+        The analysis in stages, with the controls' settings.
     widget : ipywidgets.VBox
     """
 
@@ -141,15 +146,21 @@ class AngleDomainPanel:
             with collect_warnings():
                 s = angle_settings(self.lines, self.plan)
             spr, rpb = s.samples_per_rev, s.revs_per_block
-        self._tracks = Cache(max(4, self.run.n_channels + 2))
-        self._analyses = Cache(8)
-        self._cuts = Cache(8)
+        # Fixed for the panel: no frequency map (not shown); the plan's anti-alias filter bounds
+        # the valid region; the tacho fit aims at the default speed tolerance, so that a block
+        # length or samples-per-rev change does not refit the speed.
+        self._fixed = dict(rf_map=False, speed_tolerance=DEFAULT_SPEED_TOLERANCE,
+                           aa_filter=None if self.plan is None else self.plan.filter)
+        self.pipeline = None
+        self._signals = {}
+        self._estimate = None
         self._drawn = {}
         self._build(channel, spr, rpb)
         self._build_extraction()
         self.folder.value = str(export_folder)
-        self._controls = (self.channel, self.samples_per_rev, self.protect, self.revs_per_block,
-                          self.window, self.cut_orders, self.speed_source, self.speed_order,
+        self._controls = (self.channel, self.channels, self.samples_per_rev, self.protect,
+                          self.revs_per_block, self.window, self.cut_orders, self.cut_bandwidth,
+                          self.speed_source, self.speed_order,
                           self.speed_range, self.speed_channel, self.speed_scale)
         self._defaults = {c: c.value for c in self._controls}
         self._quiet = False
@@ -197,6 +208,9 @@ class AngleDomainPanel:
         self.speed_channel = widgets.Dropdown(options=list(run.channel_names), description="speed channel",
                                               style=style, layout=wide)
         self.speed_scale = widgets.FloatText(value=1.0, description="rpm per unit", style=style, layout=wide)
+        self.cut_bandwidth = widgets.BoundedFloatText(value=0.0, min=0.0, max=1000.0, step=0.05,
+                                                      description="cut width (orders)", style=style,
+                                                      layout=wide, tooltip="0: four order bins")
         self.cut_orders.add_class("foldline-cut-orders")
         self.folder = widgets.Text(value="foldline_export", description="export folder", style=style,
                                    layout=wide)
@@ -243,7 +257,8 @@ class AngleDomainPanel:
                                            self.speed_scale, self.progress]),
             step_card("2 &middot; angle domain", [self.samples_per_rev, self.revs_per_block,
                                               self.window, self.protect]),
-            step_card("3 &middot; results", [self.overlay, self.cut_orders, self.folder,
+            step_card("3 &middot; results", [self.overlay, self.cut_orders, self.cut_bandwidth,
+                                             self.folder,
                                          self.overwrite,
                                          widgets.HBox([self.export_tables, self.export_figures],
                                                       layout=widgets.Layout(flex_flow="row wrap"))]),
@@ -275,106 +290,117 @@ class AngleDomainPanel:
             machine=self.machine, plan=self.plan)
 
     def _orders(self) -> tuple:
-        return self._parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
+        return parse_orders(self.cut_orders.value, "orders to cut", "1, 29, 58")
 
     # -- computation ----------------------------------------------------------------------
-    def _speed_key(self):
+    def _speed_changes(self) -> dict:
+        """The speed fields of the chosen source (the others cleared)."""
+        out = dict.fromkeys(("speed_order", "speed_range", "speed_channel", "speed_scale"))
         source = self.speed_source.value
         if source == "vibration":
-            return (source, float(self.speed_order.value), self.speed_range.value, self.channel.value)
-        if source == "channel":
-            return (source, self.speed_channel.value, float(self.speed_scale.value))
-        return (source,)
+            text = self.speed_range.value
+            try:
+                lo, hi = (float(v) for v in text.replace(";", ",").split(","))
+            except ValueError:
+                raise InputError(f"speed range {text!r}: give the rpm range to search as LO, HI, "
+                                 "e.g. 600, 3600") from None
+            out.update(speed_order=float(self.speed_order.value), speed_range=(lo, hi))
+        elif source == "channel":
+            out.update(speed_channel=self.speed_channel.value,
+                       speed_scale=float(self.speed_scale.value))
+        elif self.run.tacho is None:
+            raise InputError(f"{self.run.source or 'run'}: no tacho channel; name one in the run's "
+                             "sidecar (tacho_channel), or choose the speed from the vibration or a "
+                             "speed channel")
+        return out
+
+    def _tracked_channels(self) -> tuple:
+        """The channels tracked together: the shown one and those ticked.  In the run's order
+        (switching the shown channel among them redoes nothing), except that the speed found in
+        the vibration follows the shown channel, which then comes first."""
+        shown = self.channel.value
+        ticked = set(self.channels.value) | {shown}
+        names = [n for n in self.run.channel_names if n in ticked]
+        if self.speed_source.value == "vibration":
+            names = [shown] + [n for n in names if n != shown]
+        return tuple(names)
+
+    def _settings_changes(self) -> dict:
+        """The tracking settings the controls ask for (raises on a bad entry)."""
+        width = float(self.cut_bandwidth.value)
+        return dict(samples_per_rev=int(self.samples_per_rev.value),
+                    revs_per_block=float(self.revs_per_block.value), window=self.window.value,
+                    protect=bool(self.protect.value), cut_orders=self._orders(),
+                    cut_bandwidth_orders=width if width > 0 else None,
+                    max_order=None, **self._speed_changes())
+
+    def _sync(self) -> None:
+        """Hand the controls' values to the pipeline; it drops only the stages they affect."""
+        changes = self._settings_changes()
+        if self.pipeline is None:
+            self.pipeline = TrackingPipeline(
+                self.run, TrackingSettings(**changes, **self._fixed), machine=self.machine,
+                plan=self.plan, channels=self._tracked_channels(), keep_signal=True,
+                progress=self._progress)
+        else:
+            self.pipeline.update(**changes)
+            self.pipeline.set_channels(self._tracked_channels())
+
+    def _progress(self, fraction: float) -> None:
+        self.progress.value = int(round(fraction * self.progress.max))
+
+    def _stage(self, stage: str):
+        """A pipeline stage's result for the current controls (the progress bar follows the
+        tracking pass)."""
+        self._sync()
+        tracking = "angle" not in self.pipeline._results and stage in ("angle", "spectra", "cuts",
+                                                                          "identify")
+        if tracking:
+            self.progress.bar_style = ""
+            self.progress.value = 0
+        out = self.pipeline.result(stage)
+        if tracking:
+            self.progress.bar_style = "success"
+        return out
+
+    def _index(self) -> int:
+        return self.pipeline.channel_names.index(self.channel.value)
+
+    @property
+    def runs(self):
+        """How many times each stage ran (``collections.Counter``, see
+        :class:`~workbench.runs.pipeline.TrackingPipeline`)."""
+        return self.pipeline.runs
 
     def tacho(self):
         """Pulse times (s) and the shaft angle fitted through them (computed once per speed
         source); for the vibration or a speed channel, the estimate's time grid and its angle."""
-        key = self._speed_key()
-        if getattr(self, "_tacho_key", None) != key:
-            self._tacho, self._estimate = self._speed(key)
-            if hasattr(self, "_tacho_key"):  # the angle changed: everything after it is redone
-                self._tracks, self._analyses, self._cuts, self._drawn = Cache(4), Cache(8), Cache(8), {}
-            self._tacho_key = key
-        return self._tacho
-
-    def _speed(self, key):
-        run = self.run
-        if key[0] == "tacho":
-            if run.tacho is None:
-                raise InputError(f"{run.source or 'run'}: no tacho channel; name one in the run's sidecar "
-                                 "(tacho_channel), or choose the speed from the vibration or a speed channel")
-            pulses = detect_pulses(run.channel(run.tacho), run.rate_hz)
-            angle = tacho_angle(pulses, pulses_per_rev=run.pulses_per_rev, missing_pulses=run.missing_pulses,
-                                sample_rate_hz=run.rate_hz)
-            return (pulses, angle), None
-        from workbench.runs.analysis import run_speed_estimate
-
-        if key[0] == "vibration":
-            try:
-                lo, hi = (float(v) for v in key[2].replace(";", ",").split(","))
-            except ValueError:
-                raise InputError(f"speed range {key[2]!r}: give the rpm range to search as LO, HI, "
-                                 "e.g. 600, 3600") from None
-            est = run_speed_estimate(run, speed_order=key[1], speed_range=(lo, hi), channel=key[3])
-        else:
-            est = run_speed_estimate(run, speed_channel=key[1], speed_scale=key[2])
-        return (est.time_s, est.angle), est
-
-    def _track_key(self):
-        return (self.channel.value, int(self.samples_per_rev.value), bool(self.protect.value))
-
-    def _analysis_key(self):
-        return self._track_key() + (int(self.revs_per_block.value), self.window.value)
+        speed = self._stage("speed")
+        self._estimate = speed.estimate
+        if speed.estimate is not None:
+            return speed.estimate.time_s, speed.angle
+        return speed.pulses, speed.angle
 
     def track(self) -> AngleSignal:
-        """The chosen channel tracked at the chosen samples per rev (cached)."""
-        return self._tracks.get(self._track_key(), lambda: self._tracked(*self._track_key()))
-
-    def _tracked(self, channel, samples_per_rev, protect) -> AngleSignal:
-        """Feed the tracker chunk by chunk (the shown channel and the other channels ticked in
-        "track together", in one pass); the progress bar counts the samples fed."""
-        _, angle = self.tacho()
-        together = [c for c in self.channels.value if c != channel
-                    and (c, samples_per_rev, protect) not in self._tracks._items]
-        chans = [channel] + together
-        tracker = OrderTracker(self.run.rate_hz, angle, samples_per_rev=samples_per_rev, protect=protect,
-                               threads=None)
-        self.progress.bar_style = ""
-        self.progress.value = 0
-        pieces, done = [], 0
-        for chunk in self.run.iter_chunks_many(chans, _CHUNK):
-            pieces.extend(tracker.feed(chunk))
-            done += chunk.shape[-1]
-            self.progress.value = done
-        pieces.extend(tracker.finish())
-        self.progress.bar_style = "success"
-        sigs = [AngleSignal.concatenate([p[r] for p in pieces], tracker.log) for r in range(len(chans))]
-        for c, sig in zip(together, sigs[1:]):
-            self._tracks.put((c, samples_per_rev, protect), sig)
-        return sigs[0]
+        """The chosen channel tracked at the chosen samples per rev (kept until a setting of
+        the speed or the tracking changes)."""
+        stage = self._stage("angle")
+        key = (stage, self.channel.value)
+        if key not in self._signals:
+            self._signals = {k: v for k, v in self._signals.items() if k[0] is stage}
+            self._signals[key] = stage.signal(self.channel.value)
+        return self._signals[key]
 
     def analysis(self):
         """Order map, order spectrum, its peaks and the identification of predicted lines."""
-        sig = self.track()
-        key = self._analysis_key()
-
-        def make():
-            rpb, win, top = key[3], key[4], self.usable_max_order
-            omap = order_map(sig, revs_per_block=rpb, window=win, max_order=top)
-            spec = order_spectrum(sig, revs_per_block=rpb, window=win, max_order=top)
-            peaks = find_order_peaks(spec, n=10)
-            ident = None
-            if self.lines:
-                ident = identify_order_map(omap, self.lines, self.run.rate_hz, samples_per_rev=key[1])
-            return omap, spec, peaks, ident
-
-        return self._analyses.get(key, make)
+        sp = self._stage("spectra")
+        ident = self._stage("identify")
+        i = self._index()
+        return sp.order_map[i], sp.spectrum[i], sp.peaks[i], ident.identification[i]
 
     def cuts(self):
         """Order cuts of the chosen orders from the current order map."""
-        omap = self.analysis()[0]
-        orders = self._orders()
-        return self._cuts.get(self._analysis_key() + (orders,), lambda: [order_cut(omap, o) for o in orders])
+        return list(self._stage("cuts").cuts[self._index()])
 
     @property
     def usable_max_order(self) -> float:
@@ -429,17 +455,11 @@ class AngleDomainPanel:
 
     def valid_region(self):
         """What the run measures faithfully: the plan's filter's usable edge, or Nyquist."""
-        from workbench.angle.validity import valid_region
-
-        return valid_region(self.run.rate_hz, None if self.plan is None else self.plan.filter)
+        return self._stage("identify").valid
 
     def unmatched(self):
         """Measured lines no predicted line explains (every measured line without a machine)."""
-        omap, _spec, _peaks, ident = self.analysis()
-        if ident is not None and ident.unmatched is not None:
-            return ident.unmatched
-        return self._cuts.get(self._analysis_key() + ("unmatched",),
-                              lambda: unmatched_ridges(omap, samples_per_rev=int(self.samples_per_rev.value)))
+        return self._stage("identify").unmatched[self._index()]
 
     def _unmatched_html(self):
         table = self.unmatched()
@@ -524,12 +544,15 @@ class AngleDomainPanel:
     _TAB_FIGURES = (("tacho",), ("map", "cuts", "spectrum"))
 
     def _figure_key(self, which):
-        """What a figure depends on: it is redrawn only when this changes."""
+        """What a figure depends on: it is redrawn only when this changes (a stage's run count
+        tells its result apart from the one before)."""
+        runs = self.pipeline.runs if self.pipeline is not None else {}
         if which == "tacho":
-            return self._speed_key()
-        if which in ("cuts", "map"):  # the map marks the orders cut
-            return self._analysis_key() + (self.cut_orders.value,)
-        return self._analysis_key() + (self.overlay.value,)
+            return (runs.get("speed"),)
+        key = (self.channel.value,) + tuple(runs.get(s) for s in STAGES)
+        if which == "cuts":
+            return key
+        return key + (self.overlay.value,)
 
     def _draw(self, which):
         fig = self.figure(which)
@@ -665,24 +688,13 @@ class AngleDomainPanel:
         key = self._extraction_key()
 
         def make():
-            orders = self._parse_orders(self.extract_orders.value, "orders to extract")
+            orders = parse_orders(self.extract_orders.value, "orders to extract", "4, 4.1")
             _, angle = self.tacho()
             bw = {"hz": {"bandwidth_hz": key[2]}, "pct": {"bandwidth_pct": key[2]}}[key[3]]
             return extract_orders(self.run.channel(key[0]), self.run.rate_hz, angle, orders,
                                   filter_order=key[4], **bw)
 
         return self._extractions.get(key, make)
-
-    @staticmethod
-    def _parse_orders(text, label, example="4, 4.1") -> tuple:
-        """Positive orders separated by commas (or semicolons) from a text box."""
-        try:
-            values = tuple(float(v) for v in text.replace(";", ",").split(",") if v.strip())
-        except ValueError:
-            values = ()
-        if not values or any(not (math.isfinite(v) and v > 0) for v in values):
-            raise InputError(f"{label} {text!r}: give positive orders separated by commas, e.g. {example}")
-        return values
 
     def _draw_extraction(self):
         key = self._extraction_key()

@@ -13,6 +13,7 @@ import html
 import ipywidgets as widgets
 
 from workbench.errors import FoldlineError
+from workbench.textparse import parse_orders
 from workbench.plots import plot_bode, plot_polar
 from workbench.plots.common import figure_bytes
 from workbench.ui._common import STYLE, Cache, collect_warnings, error_html, html_table
@@ -87,8 +88,6 @@ class CriticalsPanel:
 
     # -- compute --------------------------------------------------------------------------
     def _settings(self):
-        from workbench.cli.options import parse_orders
-
         orders = parse_orders(self.orders.value, "orders")
         text = self.operating.value.strip()
         operating = None

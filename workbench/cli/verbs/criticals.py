@@ -63,7 +63,7 @@ def write_criticals_outputs(result, out: Path, *, force: bool = False) -> list:
 
 def cmd_criticals(args) -> int:
     """Order tracks with phase and critical speeds of a recorded run."""
-    from workbench.cli.options import parse_orders
+    from workbench.textparse import parse_orders
     from workbench.runs.criticals import SAFETY_NOTE, run_criticals
 
     orders = parse_orders(args.orders, "--orders")

@@ -26,7 +26,8 @@ def cmd_extract(args) -> int:
     import numpy as np
 
     from workbench.angle.vold_kalman import extract_orders
-    from workbench.cli.options import parse_orders, track_options_from_args
+    from workbench.cli.options import track_options_from_args
+    from workbench.textparse import parse_orders
     from workbench.runs import read_run
     from workbench.runs.analysis import SPEED_OPTIONS, run_speed, vibration_channels
 

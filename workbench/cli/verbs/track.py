@@ -7,7 +7,7 @@ from pathlib import Path
 
 from workbench.cli.output import channel_folders, check_out_folder, finish, print_frame, write_csv
 from workbench.cli.verbs import add_verb
-from workbench.errors import FoldlineWarning, InputError
+from workbench.errors import InputError
 
 __all__ = ["register", "cmd_track", "write_track_outputs", "judge_limits", "print_limits",
            "print_track", "TRACK_FILES"]
@@ -127,6 +127,7 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     import numpy as np
     import pandas as pd
 
+    from workbench.runs.mapdata import write_map_files
     from workbench.plots import (plot_frequency_map, plot_order_cuts, plot_order_map,
                                  plot_order_spectrum, plot_tacho_check, save_figure)
 
@@ -155,10 +156,9 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
     if getattr(a, "unmatched", None) is not None:
         table(a.unmatched, "unmatched.csv")
     if getattr(a, "overall", None) is not None:
-        table(pd.DataFrame({"rpm": a.overall.rpm, "rms": a.overall.rms, "blocks": a.overall.n_blocks}),
-              "overall_level.csv")
+        table(a.overall.to_frame(), "overall_level.csv")
     table(a.doubted, "doubted_pulses.csv")
-    files.extend(_write_maps(a, out, force=force))
+    files.extend(write_map_files(a, out, force=force))
     sa = a.shaft_angle
     t = np.linspace(sa.t_start_s, sa.t_end_s, 2000)
     from workbench.plots import speed_check_options
@@ -202,30 +202,6 @@ def write_track_outputs(analysis, out: Path, *, force: bool = False, overlay: st
                                   title=f"Frequency map (Campbell diagram): {Path(a.source).name}"),
                "frequency_map.png")
     return files
-
-
-def _write_maps(a, out: Path, *, force: bool) -> list:
-    """The order map and the frequency map as data: NPZ, and Parquet when pyarrow is there."""
-    import importlib.util
-    import warnings
-
-    from workbench.runs.mapdata import map_data, write_map_npz, write_map_parquet
-
-    sc = getattr(a, "scaling", None)
-    how = "peak" if sc is None else sc.label(a.channel_unit or "")
-    parquet = importlib.util.find_spec("pyarrow") is not None
-    if not parquet:
-        warnings.warn("the maps are written as NPZ only: Parquet needs pyarrow (pip install 'foldline[batch]')",
-                      FoldlineWarning, stacklevel=2)
-    written = []
-    for obj, stem in ((a.order_map, "order_map"), (a.rf_map, "frequency_map")):
-        if obj is None:
-            continue
-        d = map_data(obj, unit=a.unit, amplitude_scaling=how)
-        written.append(write_map_npz(d, out / f"{stem}.npz", force=force))
-        if parquet:
-            written.append(write_map_parquet(d, out / f"{stem}.parquet", force=force))
-    return written
 
 
 def _print_run_header(a, what: str) -> None:
