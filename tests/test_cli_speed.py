@@ -139,7 +139,7 @@ def test_track_takes_the_speed_channel_and_not_as_vibration(capsys, run_file):
     (["--speed-channel", "drive"], "--speed-scale"),
     (["--speed-channel", "nope", "--speed-scale", "600"], "nope"),
     (["--speed-order", "1", "--speed-range", "1000,4000", "--pulses-per-rev", "60"],
-     "give the speed twice"),
+     "both give the speed"),
     (["--speed-order", "1", "--speed-channel", "drive"], "not allowed with"),
     (["--speed-order", "90", "--speed-range", "1000,4000"], "above 0.45 x the rate"),
 ])

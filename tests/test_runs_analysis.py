@@ -94,15 +94,15 @@ def test_speed_from_tacho_and_json_contract(tmp_path):
 def test_track_run_refuses_contradictory_speed_sources(tmp_path):
     run = simulate_run(_rig(), _plan(), 1000.0, seed=1, duration_s=2.0)
     # a Python call names the fields (the command names its options, tests/test_cli_bad_inputs.py)
-    with pytest.raises(InputError, match=r"^rpm = 1000\.0 and speed_table = 'x\.csv': give the "
-                                         r"speed twice; allowed: one speed source"):
+    with pytest.raises(InputError, match=r'^rpm = 1000\.0 and speed_table = "x\.csv": both give '
+                                         r"the speed; allowed: one speed source"):
         track_run(run, rpm=1000.0, speed_table="x.csv")
-    with pytest.raises(InputError, match=r"^speed_range = \(1000\.0, 2000\.0\): needs speed_order"):
+    with pytest.raises(InputError, match=r"^speed_range = \[1000\.0, 2000\.0\]: needs speed_order"):
         TrackingSettings(speed_range=(1000.0, 2000.0))
-    with pytest.raises(InputError, match=r"^speed_order = 1\.0 and pulses_per_rev = 60: give the "
-                                         r"speed twice"):
+    with pytest.raises(InputError, match=r"^speed_order = 1\.0 and pulses_per_rev = 60: both give "
+                                         r"the speed"):
         TrackingSettings(speed_order=1.0, speed_range=(500.0, 900.0), pulses_per_rev=60)
-    with pytest.raises(InputError, match=r"^speed_channel = 'drive': needs speed_scale"):
+    with pytest.raises(InputError, match=r'^speed_channel = "drive": needs speed_scale'):
         TrackingSettings(speed_channel="drive")
     # a direct speed call keeps the same rule (and the same words)
     with pytest.raises(InputError, match=r"^speed_scale = 600\.0: needs speed_channel"):

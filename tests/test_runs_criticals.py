@@ -79,6 +79,6 @@ def test_bad_settings_are_named_by_field():
         run_criticals(run, samples_per_rev=4)
     with pytest.raises(InputError, match=r"^revs_per_block = -1: must be a positive number"):
         run_criticals(run, revs_per_block=-1)
-    with pytest.raises(InputError, match=r"^orders = \(1\.0, 90\.0\): order 90 is beyond the "
+    with pytest.raises(InputError, match=r"^orders = \[1\.0, 90\.0\]: order 90 is beyond the "
                                          r"usable .*; raise samples_per_rev"):
         run_criticals(run, orders=(1, 90), samples_per_rev=128)

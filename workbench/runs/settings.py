@@ -64,7 +64,7 @@ class SettingError(FieldError):
         What is wrong and what is allowed.
     also : (str, object) or None
         A second field (name, value) the problem is about, for a conflict of two settings:
-        ``rpm = 600 and speed_table = 'speed.csv': give the speed twice; ...``.
+        ``rpm = 600 and speed_table = "speed.csv": both give the speed; ...``.
     """
 
     def __init__(self, field: str, value, problem: str, also: tuple | None = None):
@@ -120,7 +120,7 @@ def _channel(name, value):
 #: The speed sources, each with the fields that choose it.
 _SOURCES = (("speed_order", "speed_range"), ("speed_channel", "speed_scale"), ("rpm",),
             ("speed_table",), ("tacho", "pulses_per_rev", "missing_pulses"))
-_ONE_SOURCE = ("give the speed twice; allowed: one speed source (the tacho with its wheel, "
+_ONE_SOURCE = ("both give the speed; allowed: one speed source (the tacho with its wheel, "
                "rpm, speed_table, speed_order with speed_range, or speed_channel with "
                "speed_scale)")
 #: Fields that need a partner: (field, partner, what the partner is).
