@@ -9,8 +9,7 @@ from workbench.machine import read_machine
 from workbench.runs import read_run
 from workbench.sampling import advise, read_plan
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
+from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RUN, ROOT, SAMPLE
 
 
 def _sha(p):
@@ -25,7 +24,7 @@ def test_demo_run_regenerates_byte_identically(tmp_path):
 
 
 def test_demo_run_is_small_and_readable():
-    wav = SAMPLE / "agitator_runup.wav"
+    wav = DEMO_RUN
     assert wav.stat().st_size <= 10 * 1024 * 1024
     run = read_run(wav)
     assert run.rate_hz == 2560.0 and run.tacho == "tacho"
@@ -35,8 +34,8 @@ def test_demo_run_is_small_and_readable():
 def test_demo_plan_has_a_collision_and_a_clean_higher_rate():
     # The demo must show the job: a candidate rate where a folded stage-1 mesh harmonic falls
     # into a bearing band, and a higher clean rate that is recommended.
-    machine = read_machine(SAMPLE / "agitator_drive.toml")
-    plan = read_plan(SAMPLE / "runup_plan.toml")
+    machine = read_machine(DEMO_MACHINE)
+    plan = read_plan(DEMO_PLAN)
     advice = advise(machine, plan)
     low = advice.collisions[2560.0]
     bearing = low[(low["kind"] == "collision") & low["band"].str.contains("motor DE inner race")]

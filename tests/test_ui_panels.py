@@ -11,7 +11,6 @@ from __future__ import annotations
 import dataclasses
 import warnings
 from html.parser import HTMLParser
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -30,9 +29,7 @@ from workbench.runs import read_run, simulate_run  # noqa: E402
 from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
 from workbench.ui.foldmap_panel import narrowed_speed  # noqa: E402
 
-ROOT = Path(__file__).resolve().parents[1]
-MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
-PLAN = ROOT / "sample_runs" / "runup_plan.toml"
+from builders import DEMO_MACHINE as MACHINE, DEMO_PLAN as PLAN, DEMO_RUN as RUN
 
 
 class _Tables(HTMLParser):
@@ -357,9 +354,6 @@ def test_reset_and_rate_change(editor, machine, plan):
 
 
 # -- AngleDomainPanel ------------------------------------------------------------------------
-RUN = ROOT / "sample_runs" / "agitator_runup.wav"
-
-
 @pytest.fixture(scope="module")
 def run_path(machine, plan, tmp_path_factory):
     """The bundled demo run, or the same run simulated when the bundle lacks it."""
