@@ -1,8 +1,15 @@
-"""Fixtures shared by the test modules: the demo machine, plan and run, and the test rig's files.
+"""Fixtures shared by the test modules: the demo machine, plan and fold map, and the test rig's
+files; and how the tests are shared out between parallel workers.
 
 Paths and builders live in ``builders.py`` beside this file; the fixtures here hold results
 that cost time to compute, made once per session (frozen objects, so sharing them is safe) or
 written into each test's own folder.
+
+``make test`` runs the suite on every core (pytest-xdist, ``-n auto --dist loadgroup``). Each
+test module goes to one worker whole, so a module-scoped fixture (a simulated run, a tracked
+result, a written report) is made once, not once per worker; the modules that drive a browser
+or a Jupyter server (marked ``browser``) all go to the same worker, one after another, so that
+two of them never compete for the cores within their time limits.
 """
 
 from __future__ import annotations
@@ -12,6 +19,17 @@ import shutil
 import pytest
 
 from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RATE_HZ, RIG_MACHINE, RIG_PLAN
+
+
+def pytest_collection_modifyitems(config, items):
+    """Group the tests for ``--dist loadgroup``: by module, and every browser module together."""
+    if not config.pluginmanager.hasplugin("xdist"):
+        return
+    module = {item: item.nodeid.split("::")[0] for item in items}
+    browser = {module[item] for item in items if item.get_closest_marker("browser")}
+    for item in items:
+        item.add_marker(pytest.mark.xdist_group("browser" if module[item] in browser
+                                                else module[item]))
 
 
 @pytest.fixture(scope="session")
