@@ -1,9 +1,8 @@
-"""Fixtures shared by the test modules: the demo machine, plan and fold map, and the test rig's
-files; and how the tests are shared out between parallel workers.
+"""Fixtures shared by the test modules (the demo machine, plan and fold map), and how the tests
+are shared out between parallel workers.
 
 Paths and builders live in ``builders.py`` beside this file; the fixtures here hold results
-that cost time to compute, made once per session (frozen objects, so sharing them is safe) or
-written into each test's own folder.
+that cost time to compute, made once per session (frozen objects, so sharing them is safe).
 
 ``make test`` runs the suite on every core (pytest-xdist, ``-n auto --dist loadgroup``). Each
 test module goes to one worker whole, so a module-scoped fixture (a simulated run, a tracked
@@ -14,11 +13,9 @@ two of them never compete for the cores within their time limits.
 
 from __future__ import annotations
 
-import shutil
-
 import pytest
 
-from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RATE_HZ, RIG_MACHINE, RIG_PLAN
+from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RATE_HZ
 
 
 def pytest_collection_modifyitems(config, items):
@@ -56,12 +53,3 @@ def demo_fold(demo_machine, demo_plan):
     fmap = fold_map(demo_machine, demo_plan, DEMO_RATE_HZ)
     return demo_machine, demo_plan, fmap, find_collisions(demo_machine, demo_plan, DEMO_RATE_HZ,
                                                           fmap=fmap)
-
-
-@pytest.fixture()
-def rig_files(tmp_path):
-    """The test rig's machine and plan files copied into the test's folder as m.toml, p.toml."""
-    machine, plan = tmp_path / "m.toml", tmp_path / "p.toml"
-    shutil.copyfile(RIG_MACHINE, machine)
-    shutil.copyfile(RIG_PLAN, plan)
-    return machine, plan

@@ -5,11 +5,10 @@ import subprocess
 import sys
 from pathlib import Path
 
-from workbench.machine import read_machine
 from workbench.runs import read_run
-from workbench.sampling import advise, read_plan
+from workbench.sampling import advise
 
-from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RUN, ROOT, SAMPLE
+from builders import DEMO_RUN, ROOT, SAMPLE
 
 
 def _sha(p):
@@ -31,12 +30,10 @@ def test_demo_run_is_small_and_readable():
     assert run.duration_s == 60.0
 
 
-def test_demo_plan_has_a_collision_and_a_clean_higher_rate():
+def test_demo_plan_has_a_collision_and_a_clean_higher_rate(demo_machine, demo_plan):
     # The demo must show the job: a candidate rate where a folded stage-1 mesh harmonic falls
     # into a bearing band, and a higher clean rate that is recommended.
-    machine = read_machine(DEMO_MACHINE)
-    plan = read_plan(DEMO_PLAN)
-    advice = advise(machine, plan)
+    advice = advise(demo_machine, demo_plan)
     low = advice.collisions[2560.0]
     bearing = low[(low["kind"] == "collision") & low["band"].str.contains("motor DE inner race")]
     assert any(name.startswith("stage 1 mesh") for name in bearing["line"])

@@ -41,13 +41,12 @@ def _band_level(rate):
     return band_levels(a.order_map, bands, a.lines)["housing resonance"]
 
 
-def test_default_resonance_is_fixed_in_hz():
+def test_default_resonance_is_fixed_in_hz(demo_plan):
     assert DEFAULT_RESONANCE_HZ == 700.0
     from workbench.runs.simulate import _settings
 
-    plan = read_plan(DEMO_PLAN)
     for rate in (2560.0, 10240.0):
-        s = _settings(plan, rate, 0, 1.0, -60.0, None, 8.0, 12.0, 1, 0, True, 10.0, None)
+        s = _settings(demo_plan, rate, 0, 1.0, -60.0, None, 8.0, 12.0, 1, 0, True, 10.0, None)
         assert s.resonance_hz == DEFAULT_RESONANCE_HZ
 
 
