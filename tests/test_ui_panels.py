@@ -19,9 +19,8 @@ import pytest
 pytest.importorskip("ipywidgets")
 
 from workbench.errors import FoldlineWarning, InputError  # noqa: E402
-from workbench.machine import machine_from_dict, machine_to_dict, read_machine  # noqa: E402
-from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
-                                read_plan)
+from workbench.machine import machine_from_dict, machine_to_dict  # noqa: E402
+from workbench.sampling import advise, find_collisions, plan_from_dict, plan_to_dict  # noqa: E402
 from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_map,  # noqa: E402
                              order_spectrum, resample_to_angle, tacho_angle)
 from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
@@ -71,13 +70,13 @@ def table_rows(page: str, css_class: str) -> list:
 
 
 @pytest.fixture(scope="module")
-def machine():
-    return read_machine(MACHINE)
+def machine(demo_machine):
+    return demo_machine
 
 
 @pytest.fixture(scope="module")
-def plan():
-    return read_plan(PLAN)
+def plan(demo_plan):
+    return demo_plan
 
 
 @pytest.fixture(scope="module")
