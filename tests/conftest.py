@@ -13,20 +13,38 @@ two of them never compete for the cores within their time limits.
 
 from __future__ import annotations
 
+import functools
+from pathlib import Path
+
 import pytest
 
 from builders import DEMO_MACHINE, DEMO_PLAN, DEMO_RATE_HZ
 
 
-def pytest_collection_modifyitems(config, items):
-    """Group the tests for ``--dist loadgroup``: by module, and every browser module together."""
-    if not config.pluginmanager.hasplugin("xdist"):
-        return
-    module = {item: item.nodeid.split("::")[0] for item in items}
-    browser = {module[item] for item in items if item.get_closest_marker("browser")}
-    for item in items:
-        item.add_marker(pytest.mark.xdist_group("browser" if module[item] in browser
-                                                else module[item]))
+@functools.cache
+def _drives_a_browser(module: Path) -> bool:
+    """Whether a test module has tests marked ``browser`` (Chromium or a Jupyter server)."""
+    return "mark.browser" in module.read_text(encoding="utf-8")
+
+
+@pytest.hookimpl(optionalhook=True, tryfirst=True)
+def pytest_xdist_make_scheduler(config, log):
+    """With ``--dist loadgroup``: one work unit per test module, and one for every module that
+    drives a browser.
+
+    pytest-xdist's own ``xdist_group`` marks suffix the test ids through an attribute that
+    pytest 9 no longer reads, so the grouping is made here, on the ids themselves.
+    """
+    if config.getvalue("dist") != "loadgroup":
+        return None
+    from xdist.scheduler import LoadScopeScheduling
+
+    class ByModule(LoadScopeScheduling):
+        def _split_scope(self, nodeid):
+            module = nodeid.split("::", 1)[0]
+            return "browser" if _drives_a_browser(config.rootpath / module) else module
+
+    return ByModule(config, log)
 
 
 @pytest.fixture(scope="session")
