@@ -18,7 +18,7 @@ demo: $(STAMP)
 	$(VENV)/bin/foldline demo --out out/demo --force
 
 test: $(STAMP)
-	$(PY) -m pytest -q
+	$(PY) -m pytest -q -n auto --dist loadgroup
 
 bench: $(STAMP)
 	$(PY) bench/run_all.py

@@ -10,20 +10,12 @@ import pytest
 
 from workbench.angle.matching import find_ridges, match_lines, predicted_orders
 from workbench.errors import InputError
-from workbench.machine import machine_from_dict
+
+from builders import one_shaft_machine
 
 
 def _machine():
-    return machine_from_dict(
-        {
-            "machine": {"name": "rig", "reference": "input"},
-            "shaft": [{"name": "input"}],
-            "order": [
-                {"name": "bearing", "shaft": "input", "order": 4.9},
-                {"name": "mesh", "shaft": "input", "order": 37.0},
-            ],
-        }
-    )
+    return one_shaft_machine({"name": "bearing", "order": 4.9}, {"name": "mesh", "order": 37.0})
 
 
 def test_predicted_orders_worked_value():

@@ -31,10 +31,7 @@ from workbench.machine import read_machine
 from workbench.runs import simulate_to_wav
 from workbench.sampling import Band, plan_from_dict, plan_to_dict, read_plan, write_plan
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
-MACHINE = SAMPLE / "agitator_drive.toml"
-PLAN = SAMPLE / "runup_plan.toml"
+from builders import DEMO_MACHINE as MACHINE, DEMO_PLAN as PLAN
 RATE = 2560.0
 REVS_PER_BLOCK = 8
 SPR = 128

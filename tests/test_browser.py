@@ -28,7 +28,7 @@ import pytest
 
 pytestmark = pytest.mark.browser
 
-ROOT = Path(__file__).resolve().parents[1]
+from builders import ROOT
 NOTEBOOK = "01_plan_runup_test.ipynb"
 CHROMIUM = Path("/usr/bin/chromium")
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",

@@ -9,10 +9,9 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
-MACHINE = str(SAMPLE / "agitator_drive.toml")
-PLAN = str(SAMPLE / "runup_plan.toml")
+from builders import DEMO_MACHINE, DEMO_PLAN, ROOT
+
+MACHINE, PLAN = str(DEMO_MACHINE), str(DEMO_PLAN)
 FOLDLINE = str(Path(sys.executable).with_name("foldline"))
 
 

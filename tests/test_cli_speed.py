@@ -11,7 +11,6 @@ import json
 import os
 import subprocess
 import sys
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -20,7 +19,7 @@ from workbench.cli.main import main
 from workbench.runs import Run, write_run
 from workbench.sampling import read_speed_table
 
-ROOT = Path(__file__).resolve().parents[1]
+from builders import ROOT
 RATE = 4096.0
 DURATION = 30.0
 RPM0, RPM1 = 1200.0, 3600.0

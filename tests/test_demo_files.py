@@ -5,12 +5,10 @@ import subprocess
 import sys
 from pathlib import Path
 
-from workbench.machine import read_machine
 from workbench.runs import read_run
-from workbench.sampling import advise, read_plan
+from workbench.sampling import advise
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
+from builders import DEMO_RUN, ROOT, SAMPLE
 
 
 def _sha(p):
@@ -25,19 +23,17 @@ def test_demo_run_regenerates_byte_identically(tmp_path):
 
 
 def test_demo_run_is_small_and_readable():
-    wav = SAMPLE / "agitator_runup.wav"
+    wav = DEMO_RUN
     assert wav.stat().st_size <= 10 * 1024 * 1024
     run = read_run(wav)
     assert run.rate_hz == 2560.0 and run.tacho == "tacho"
     assert run.duration_s == 60.0
 
 
-def test_demo_plan_has_a_collision_and_a_clean_higher_rate():
+def test_demo_plan_has_a_collision_and_a_clean_higher_rate(demo_machine, demo_plan):
     # The demo must show the job: a candidate rate where a folded stage-1 mesh harmonic falls
     # into a bearing band, and a higher clean rate that is recommended.
-    machine = read_machine(SAMPLE / "agitator_drive.toml")
-    plan = read_plan(SAMPLE / "runup_plan.toml")
-    advice = advise(machine, plan)
+    advice = advise(demo_machine, demo_plan)
     low = advice.collisions[2560.0]
     bearing = low[(low["kind"] == "collision") & low["band"].str.contains("motor DE inner race")]
     assert any(name.startswith("stage 1 mesh") for name in bearing["line"])

@@ -33,6 +33,8 @@ from workbench.runs import read_run, read_sidecar
 from workbench.sampling import (AntiAliasFilter, SpeedProfile, advise, apparent_frequency,
                                 find_collisions, fold_map, nyquist_zone, plan_from_dict)
 
+from builders import RIG_MACHINE, RIG_PLAN
+
 FUZZ = settings(max_examples=150, deadline=None, derandomize=True,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 
@@ -508,67 +510,13 @@ def test_mat_file_that_crashes_the_mat_reader_is_refused(tmp_path):
         read_run(path, rate_hz=RATE)  # the status (-11) while scipy crashes; its error once fixed
 
 
-MACHINE_TEXT = """\
-[machine]
-name = "rig"
-reference = "input"
-
-[[shaft]]
-name = "input"
-
-[[shaft]]
-name = "output"
-
-[[gear_stage]]
-name = "g"
-driver = "input"
-driven = "output"
-driver_teeth = 20
-driven_teeth = 40
-sidebands = 1
-
-[[bearing]]
-name = "b"
-shaft = "output"
-rolling_elements = 9
-element_diameter = 7.9
-pitch_diameter = 39.0
-"""
-
-PLAN_TEXT = """\
-[speed]
-profile = "linear"
-start_rpm = 600.0
-end_rpm = 3000.0
-duration_s = 10.0
-
-[acquisition]
-rates_hz = [2560.0, 5120.0]
-filter = "butterworth"
-filter_order = 6
-cutoff = 0.39
-
-[[band]]
-name = "a"
-hz = [800.0, 1200.0]
-
-[[band]]
-name = "c"
-around = "g mesh"
-width_pct = 10.0
-
-[resampling]
-max_order = 50.0
-"""
-
-
 @pytest.mark.parametrize("kind", ["machine", "plan"])
 def test_mutated_machine_and_plan_files_raise_only_foldline_errors(kind, tmp_path):
     from workbench.machine import read_machine
     from workbench.sampling import read_plan
 
     rng = np.random.default_rng({"machine": 16, "plan": 17}[kind])
-    base = (MACHINE_TEXT if kind == "machine" else PLAN_TEXT).encode()
+    base = (RIG_MACHINE if kind == "machine" else RIG_PLAN).read_bytes()
     read = read_machine if kind == "machine" else read_plan
     loaded = 0
     for n in range(400):

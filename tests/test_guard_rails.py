@@ -14,7 +14,6 @@ from __future__ import annotations
 import json
 import re
 import warnings
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -26,11 +25,8 @@ from workbench.runs.tacho_checks import pulse_spacing_period, wheel_warnings
 from workbench.sampling import advise, fold_map, plan_from_dict, plan_to_dict, read_plan
 from workbench.sampling.guards import NO_FILTER_NOTE, rate_warnings
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
-MACHINE = SAMPLE / "agitator_drive.toml"
-PLAN = SAMPLE / "runup_plan.toml"
-RUN = SAMPLE / "agitator_runup.wav"
+from builders import DEMO_MACHINE as MACHINE, DEMO_PLAN as PLAN, DEMO_RUN as RUN, ROOT
+
 PACKAGE = ROOT / "workbench"
 
 

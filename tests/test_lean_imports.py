@@ -12,12 +12,11 @@ import json
 import os
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parents[1]
-RUN = ROOT / "sample_runs" / "agitator_runup.wav"
+from builders import DEMO_RUN as RUN, ROOT
+
 WATCH = ("numpy", "pandas", "scipy", "scipy.signal", "scipy.stats", "scipy.ndimage", "matplotlib",
          "ipywidgets", "dask", "pyarrow", "asammdf", "h5py")
 

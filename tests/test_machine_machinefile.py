@@ -5,7 +5,6 @@ import json
 import math
 import re
 import tomllib
-from pathlib import Path
 
 import pytest
 from hypothesis import HealthCheck, given, settings
@@ -28,7 +27,7 @@ from workbench.machine import (
     write_machine,
 )
 
-DATA = Path(__file__).parent / "data" / "machine_gearbox.toml"
+from builders import GEARBOX_MACHINE as DATA
 
 
 def base():

@@ -24,50 +24,10 @@ from workbench.runs import (Run, WavWriter, atomic_output, read_run, read_sideca
                             simulate_to_wav, write_run)
 from workbench.sampling import read_plan
 
-MACHINE = """\
-[machine]
-name = "test rig"
-reference = "input"
+from builders import RIG_MACHINE, RIG_PLAN
 
-[[shaft]]
-name = "input"
-
-[[shaft]]
-name = "output"
-
-[[gear_stage]]
-name = "stage 1"
-driver = "input"
-driven = "output"
-driver_teeth = 20
-driven_teeth = 40
-
-[[bearing]]
-name = "output NDE"
-shaft = "output"
-rolling_elements = 9
-element_diameter = 7.94
-pitch_diameter = 39.04
-"""
-
-PLAN = """\
-[speed]
-profile = "linear"
-start_rpm = 600.0
-end_rpm = 1800.0
-duration_s = 4.0
-
-[acquisition]
-rates_hz = [2560.0, 5120.0]
-filter = "butterworth"
-filter_order = 6
-cutoff = 0.39
-
-[[band]]
-name = "outer race"
-around = "output NDE bpfo"
-width_pct = 10.0
-"""
+MACHINE = RIG_MACHINE.read_text()
+PLAN = RIG_PLAN.read_text()
 
 
 def digest(folder: Path) -> dict:

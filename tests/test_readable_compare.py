@@ -11,22 +11,21 @@ import numpy as np
 import pytest
 
 from workbench.cli.main import main
-from workbench.machine import machine_from_dict, write_machine
+from workbench.machine import write_machine
 from workbench.runs import simulate_to_wav
-from workbench.sampling import plan_from_dict
+
+from builders import linear_plan, one_shaft_machine
 
 RATE = 1000.0
 
 
 def _machine(level_db):
-    return machine_from_dict({"machine": {"name": "rig", "reference": "motor"}, "shaft": [{"name": "motor"}],
-                              "order": [{"name": "mesh", "shaft": "motor", "order": 7.0, "level_db": level_db}]})
+    return one_shaft_machine({"name": "mesh", "order": 7.0, "level_db": level_db}, shaft="motor")
 
 
 def _plan(start, end):
-    return plan_from_dict({"speed": {"profile": "linear", "start_rpm": start, "end_rpm": end, "duration_s": 8.0},
-                           "acquisition": {"rates_hz": [RATE], "filter": "butterworth", "filter_order": 4,
-                                           "cutoff": 0.45, "threshold_db": -60.0}})
+    return linear_plan(start, end, 8.0, RATE, filter="butterworth", filter_order=4, cutoff=0.45,
+                       threshold_db=-60.0)
 
 
 @pytest.fixture(scope="module")

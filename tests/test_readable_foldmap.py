@@ -5,37 +5,22 @@ The demo files are the inputs; what is checked is the figure's own content (arti
 label boxes), so the checks hold for any machine.
 """
 
-from pathlib import Path
-
 import matplotlib
-import pytest
 
 matplotlib.use("Agg")
 
 from matplotlib.colors import to_hex  # noqa: E402
 
-from workbench.machine import read_machine  # noqa: E402
 from workbench.plots import plot_fold_map  # noqa: E402
 from workbench.plots.common import source_colours  # noqa: E402
-from workbench.sampling import find_collisions, fold_map, read_plan  # noqa: E402
-
-ROOT = Path(__file__).resolve().parents[1]
-
-
-@pytest.fixture(scope="module")
-def demo():
-    machine = read_machine(ROOT / "sample_runs" / "agitator_drive.toml")
-    plan = read_plan(ROOT / "sample_runs" / "runup_plan.toml")
-    fmap = fold_map(machine, plan, 2560.0)
-    return machine, plan, fmap, find_collisions(machine, plan, 2560.0, fmap=fmap)
 
 
 def _legend_texts(fig):
     return [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
 
 
-def test_lines_coloured_by_source_and_keyed(demo):
-    machine, plan, fmap, table = demo
+def test_lines_coloured_by_source_and_keyed(demo_fold):
+    machine, plan, fmap, table = demo_fold
     fig = plot_fold_map(fmap, plan, collisions=table)
     colours = source_colours(machine.lines())
     texts = _legend_texts(fig)
@@ -47,8 +32,8 @@ def test_lines_coloured_by_source_and_keyed(demo):
     assert drawn and drawn <= names
 
 
-def test_legend_lists_only_what_is_drawn(demo):
-    machine, plan, fmap, table = demo
+def test_legend_lists_only_what_is_drawn(demo_fold):
+    machine, plan, fmap, table = demo_fold
     texts = _legend_texts(plot_fold_map(fmap, plan))  # no collision table: none drawn
     assert not any(t.startswith("collision") or t.startswith("overlap") for t in texts)
     texts = _legend_texts(plot_fold_map(fmap, plan, collisions=table))
@@ -60,8 +45,8 @@ def test_legend_lists_only_what_is_drawn(demo):
     assert [t for t in texts if t.startswith("source:")] == ["source: stage 2"]
 
 
-def test_labels_never_overlap_and_collisions_are_numbered(demo):
-    machine, plan, fmap, table = demo
+def test_labels_never_overlap_and_collisions_are_numbered(demo_fold):
+    machine, plan, fmap, table = demo_fold
     for kw in ({}, {"log_frequency": True}, {"view": "order"}):
         fig = plot_fold_map(fmap, plan, collisions=table, **kw)
         fig.canvas.draw()

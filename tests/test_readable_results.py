@@ -17,25 +17,19 @@ from workbench.runs import simulate_run
 from workbench.runs.analysis import track_run
 from workbench.sampling import plan_from_dict
 
+from builders import linear_plan, one_shaft_machine
+
 RATE = 1000.0
 
 
 def _machine(extra_orders=(), extra_lines=()):
-    return machine_from_dict({
-        "machine": {"name": "slow rig", "reference": "motor"},
-        "shaft": [{"name": "motor"}],
-        "order": [{"name": "low speed", "shaft": "motor", "order": 0.075},
-                  {"name": "pinion", "shaft": "motor", "order": 5.03}, *extra_orders],
-        **({"line": list(extra_lines)} if extra_lines else {}),
-    })
+    return one_shaft_machine({"name": "low speed", "order": 0.075}, {"name": "pinion", "order": 5.03},
+                             *extra_orders, shaft="motor", name="slow rig", line=extra_lines)
 
 
 def _plan():
-    return plan_from_dict({
-        "speed": {"profile": "linear", "start_rpm": 600.0, "end_rpm": 1500.0, "duration_s": 16.0},
-        "acquisition": {"rates_hz": [RATE], "filter": "butterworth", "filter_order": 4, "cutoff": 0.45,
-                        "threshold_db": -60.0},
-    })
+    return linear_plan(600.0, 1500.0, 16.0, RATE, filter="butterworth", filter_order=4, cutoff=0.45,
+                       threshold_db=-60.0)
 
 
 @pytest.fixture(scope="module")

@@ -26,11 +26,8 @@ from workbench.report import SAFETY_TEXT, build_report, write_report
 from workbench.cli.options import parse_orders, track_options_from_args
 from workbench.sampling import plan_from_dict, read_plan
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
-MACHINE = SAMPLE / "agitator_drive.toml"
-PLAN = SAMPLE / "runup_plan.toml"
-RUN = SAMPLE / "agitator_runup.wav"
+from builders import DEMO_MACHINE as MACHINE, DEMO_PLAN as PLAN, DEMO_RUN as RUN, ROOT
+
 CHROMIUM = "/usr/bin/chromium"
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync"]

@@ -10,7 +10,9 @@ from workbench.machine import machine_from_dict
 from workbench.runs import read_run, simulate_run, simulate_to_wav
 from workbench.runs.analysis import run_speed, track_run
 from workbench.runs.settings import TrackingSettings
-from workbench.sampling import find_collisions, plan_from_dict
+from workbench.sampling import find_collisions
+
+from builders import linear_plan
 
 SHARED = Path(__file__).resolve().parents[2] / "shared"
 CWRU = SHARED / "data" / "cwru"
@@ -32,14 +34,9 @@ def _rig():
 
 
 def _plan():
-    return plan_from_dict(
-        {
-            "speed": {"profile": "linear", "start_rpm": 900.0, "end_rpm": 2400.0, "duration_s": 20.0},
-            "acquisition": {"rates_hz": [1000.0], "filter": "butterworth", "filter_order": 4,
-                            "cutoff": 0.4, "threshold_db": -60.0},
-            "band": [{"name": "input DE inner race", "around": "input DE bpfi", "width_pct": 20.0}],
-        }
-    )
+    return linear_plan(900.0, 2400.0, 20.0, 1000.0, filter="butterworth", filter_order=4, cutoff=0.4,
+                       threshold_db=-60.0,
+                       bands=[{"name": "input DE inner race", "around": "input DE bpfi", "width_pct": 20.0}])
 
 
 def test_folded_mesh_in_bearing_band_is_identified_as_alias(tmp_path):

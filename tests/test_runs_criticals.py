@@ -11,23 +11,19 @@ import warnings
 import numpy as np
 import pytest
 
-from workbench.errors import FoldlineWarning
-from workbench.machine import machine_from_dict
-from workbench.errors import InputError
+from workbench.errors import FoldlineWarning, InputError
 from workbench.runs import simulate_run
 from workbench.runs.criticals import run_criticals
-from workbench.sampling import plan_from_dict
+
+from builders import linear_plan, one_shaft_machine
 
 RATE = 8192.0
-MACHINE = machine_from_dict({
-    "machine": {"name": "rig", "reference": "rotor"}, "shaft": [{"name": "rotor"}],
-    "critical": [{"name": "first", "rpm": 1500.0, "damping_ratio": 0.05}]})
+MACHINE = one_shaft_machine(shaft="rotor",
+                            critical=[{"name": "first", "rpm": 1500.0, "damping_ratio": 0.05}])
 
 
 def _plan(n0, n1):
-    return plan_from_dict({"speed": {"profile": "linear", "start_rpm": n0, "end_rpm": n1,
-                                     "duration_s": 40.0},
-                           "acquisition": {"rates_hz": [RATE], "filter": "none"}})
+    return linear_plan(n0, n1, 40.0, RATE, filter="none")
 
 
 def _lag(res, rpm):

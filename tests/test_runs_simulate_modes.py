@@ -9,22 +9,17 @@ import numpy as np
 import pytest
 
 from workbench.angle.order_tracks import sdof_unbalance
-from workbench.machine import machine_from_dict
 from workbench.runs import simulate_run
 from workbench.runs.criticals import run_criticals
 from workbench.runs.simulate import mode_gain, unbalance_gain
-from workbench.sampling import plan_from_dict
 
-PLAN = plan_from_dict({"speed": {"profile": "linear", "start_rpm": 300.0, "end_rpm": 3000.0,
-                                 "duration_s": 60.0},
-                       "acquisition": {"rates_hz": [2048.0], "filter": "none"}})
+from builders import linear_plan, one_shaft_machine
+
+PLAN = linear_plan(300.0, 3000.0, 60.0, 2048.0, filter="none")
 
 
 def _machine(**modes):
-    d = {"machine": {"name": "rig", "reference": "rotor"}, "shaft": [{"name": "rotor"}],
-         "order": [{"name": "blade", "shaft": "rotor", "order": 7.0}]}
-    d.update(modes)
-    return machine_from_dict(d)
+    return one_shaft_machine({"name": "blade", "order": 7.0}, shaft="rotor", **modes)
 
 
 def test_gains_in_closed_form():

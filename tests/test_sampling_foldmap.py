@@ -12,30 +12,21 @@ from scipy import signal
 
 from workbench.errors import InputError
 from workbench.machine import machine_from_dict
-from workbench.sampling import find_collisions, fold_map, plan_from_dict
+from workbench.sampling import find_collisions, fold_map
+
+from builders import linear_plan, one_shaft_machine
 
 
 def _machine(order=10.0, level_db=0.0, extra=()):
-    d = {
-        "machine": {"name": "test rig", "reference": "input"},
-        "shaft": [{"name": "input"}],
-        "order": [{"name": "probe", "shaft": "input", "order": order, "level_db": level_db}],
-    }
-    for e in extra:
-        d.setdefault(e[0], []).append(e[1])
-    return machine_from_dict(d)
+    orders, tables = [{"name": "probe", "order": order, "level_db": level_db}], {}
+    for table, entry in extra:
+        (orders if table == "order" else tables.setdefault(table, [])).append(entry)
+    return one_shaft_machine(*orders, name="test rig", **tables)
 
 
 def _plan(bands, *, filt=None, threshold=-60.0, start=600.0, end=3600.0, rates=(1000.0,)):
-    acq = {"rates_hz": list(rates), "threshold_db": threshold}
-    acq.update(filt or {"filter": "none"})
-    return plan_from_dict(
-        {
-            "speed": {"profile": "linear", "start_rpm": start, "end_rpm": end, "duration_s": 10.0},
-            "acquisition": acq,
-            "band": bands,
-        }
-    )
+    return linear_plan(start, end, 10.0, rates, bands=bands, threshold_db=threshold,
+                       **(filt or {"filter": "none"}))
 
 
 def test_fold_map_shapes_and_worked_values():

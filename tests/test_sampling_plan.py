@@ -3,7 +3,6 @@
 import copy
 import shutil
 import warnings
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -12,7 +11,7 @@ from workbench.errors import InputError, OutputExistsError, PlanFileError
 from workbench.sampling import (AntiAliasFilter, Band, Plan, SpeedProfile, plan_from_dict,
                                 plan_to_dict, read_plan, write_plan)
 
-DATA = Path(__file__).parent / "data"
+from builders import DATA
 
 
 class StandInLine:

@@ -14,11 +14,13 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from workbench.cli.main import main
-from workbench.machine import machine_from_dict, machine_to_toml
+from workbench.machine import machine_to_toml
 from workbench.sampling import plan_from_dict
 from workbench.sampling.resonance import (CROSSING_COLUMNS, fastest_sweep_rpm_per_s,
                                           find_crossings, max_sweep_kappa, passage_loss_db,
                                           passage_peak_ratio)
+
+from builders import one_shaft_machine
 
 
 def _integrated_loss_db(zeta, kappa):
@@ -68,14 +70,10 @@ def test_one_db_sweep_limit():
 
 
 def _machine():
-    return machine_from_dict({
-        "machine": {"name": "rig", "reference": "rotor"},
-        "shaft": [{"name": "rotor"}],
-        "order": [{"name": "unbalance", "shaft": "rotor", "order": 1.0, "harmonics": 2}],
-        "line": [{"name": "mains", "hz": 50.0}],
-        "resonance": [{"name": "frame", "hz": 20.0, "damping_ratio": 0.02}],
-        "critical": [{"name": "first bending", "rpm": 2400.0, "damping_ratio": 0.05}],
-    })
+    return one_shaft_machine({"name": "unbalance", "order": 1.0, "harmonics": 2}, shaft="rotor",
+                             line=[{"name": "mains", "hz": 50.0}],
+                             resonance=[{"name": "frame", "hz": 20.0, "damping_ratio": 0.02}],
+                             critical=[{"name": "first bending", "rpm": 2400.0, "damping_ratio": 0.05}])
 
 
 def _plan(speed):

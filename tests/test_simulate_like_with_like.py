@@ -13,7 +13,6 @@ see REFERENCES.md "Filters").  Before the fix the band read 8.7 at 2560 S/s and 
 from __future__ import annotations
 
 import warnings
-from pathlib import Path
 
 import pytest
 
@@ -25,13 +24,12 @@ from workbench.runs.levels import band_levels
 from workbench.runs.simulate import DEFAULT_RESONANCE_HZ
 from workbench.sampling import plan_from_dict, plan_to_dict, read_plan
 
-ROOT = Path(__file__).resolve().parents[1]
-SAMPLE = ROOT / "sample_runs"
+from builders import DEMO_MACHINE, DEMO_PLAN
 
 
 def _band_level(rate):
-    machine = read_machine(SAMPLE / "agitator_drive.toml")
-    d = plan_to_dict(read_plan(SAMPLE / "runup_plan.toml"))
+    machine = read_machine(DEMO_MACHINE)
+    d = plan_to_dict(read_plan(DEMO_PLAN))
     d["speed"] = {"profile": "linear", "start_rpm": 600.0, "end_rpm": 1500.0, "duration_s": 15.0}
     d.pop("limit", None)
     plan = plan_from_dict(d)
@@ -43,13 +41,12 @@ def _band_level(rate):
     return band_levels(a.order_map, bands, a.lines)["housing resonance"]
 
 
-def test_default_resonance_is_fixed_in_hz():
+def test_default_resonance_is_fixed_in_hz(demo_plan):
     assert DEFAULT_RESONANCE_HZ == 700.0
     from workbench.runs.simulate import _settings
 
-    plan = read_plan(SAMPLE / "runup_plan.toml")
     for rate in (2560.0, 10240.0):
-        s = _settings(plan, rate, 0, 1.0, -60.0, None, 8.0, 12.0, 1, 0, True, 10.0, None)
+        s = _settings(demo_plan, rate, 0, 1.0, -60.0, None, 8.0, 12.0, 1, 0, True, 10.0, None)
         assert s.resonance_hz == DEFAULT_RESONANCE_HZ
 
 

@@ -11,7 +11,6 @@ from __future__ import annotations
 import dataclasses
 import warnings
 from html.parser import HTMLParser
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -20,9 +19,8 @@ import pytest
 pytest.importorskip("ipywidgets")
 
 from workbench.errors import FoldlineWarning, InputError  # noqa: E402
-from workbench.machine import machine_from_dict, machine_to_dict, read_machine  # noqa: E402
-from workbench.sampling import (advise, find_collisions, plan_from_dict, plan_to_dict,  # noqa: E402
-                                read_plan)
+from workbench.machine import machine_from_dict, machine_to_dict  # noqa: E402
+from workbench.sampling import advise, find_collisions, plan_from_dict, plan_to_dict  # noqa: E402
 from workbench.angle import (detect_pulses, find_order_peaks, order_cut, order_map,  # noqa: E402
                              order_spectrum, resample_to_angle, tacho_angle)
 from workbench.angle.matching import find_ridges, match_lines  # noqa: E402
@@ -30,9 +28,7 @@ from workbench.runs import read_run, simulate_run  # noqa: E402
 from workbench.ui import AngleDomainPanel, FoldMapPanel, SourceEditorPanel  # noqa: E402
 from workbench.ui.foldmap_panel import narrowed_speed  # noqa: E402
 
-ROOT = Path(__file__).resolve().parents[1]
-MACHINE = ROOT / "sample_runs" / "agitator_drive.toml"
-PLAN = ROOT / "sample_runs" / "runup_plan.toml"
+from builders import DEMO_MACHINE as MACHINE, DEMO_PLAN as PLAN, DEMO_RUN as RUN
 
 
 class _Tables(HTMLParser):
@@ -74,13 +70,13 @@ def table_rows(page: str, css_class: str) -> list:
 
 
 @pytest.fixture(scope="module")
-def machine():
-    return read_machine(MACHINE)
+def machine(demo_machine):
+    return demo_machine
 
 
 @pytest.fixture(scope="module")
-def plan():
-    return read_plan(PLAN)
+def plan(demo_plan):
+    return demo_plan
 
 
 @pytest.fixture(scope="module")
@@ -357,9 +353,6 @@ def test_reset_and_rate_change(editor, machine, plan):
 
 
 # -- AngleDomainPanel ------------------------------------------------------------------------
-RUN = ROOT / "sample_runs" / "agitator_runup.wav"
-
-
 @pytest.fixture(scope="module")
 def run_path(machine, plan, tmp_path_factory):
     """The bundled demo run, or the same run simulated when the bundle lacks it."""

@@ -7,7 +7,6 @@ Expected values: a full draw by matplotlib (the general-purpose reference) of th
 from __future__ import annotations
 
 import io
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -16,19 +15,7 @@ pytest.importorskip("matplotlib")
 
 from PIL import Image  # noqa: E402
 
-from workbench.machine import read_machine  # noqa: E402
-from workbench.sampling import find_collisions, fold_map, read_plan  # noqa: E402
 from workbench.ui.scene import FoldScene, legend_html  # noqa: E402
-
-ROOT = Path(__file__).resolve().parents[1]
-
-
-@pytest.fixture(scope="module")
-def demo():
-    machine = read_machine(ROOT / "sample_runs" / "agitator_drive.toml")
-    plan = read_plan(ROOT / "sample_runs" / "runup_plan.toml")
-    fmap = fold_map(machine, plan, 2560.0)
-    return machine, plan, fmap, find_collisions(machine, plan, 2560.0, fmap=fmap)
 
 
 def _pixels(png: bytes) -> np.ndarray:
@@ -36,8 +23,8 @@ def _pixels(png: bytes) -> np.ndarray:
 
 
 @pytest.mark.parametrize("view", ["hz", "order"])
-def test_hidden_lines_match_a_fresh_draw_without_them(demo, view):
-    machine, plan, fmap, table = demo
+def test_hidden_lines_match_a_fresh_draw_without_them(demo_fold, view):
+    machine, plan, fmap, table = demo_fold
     keep = frozenset(ln.name for ln in machine.lines() if ln.entry != "stage 1")
     scene = FoldScene(fmap, plan, table, view=view, labels=False)
     scene.png()  # the plain first draw, before any line is hidden
@@ -51,8 +38,8 @@ def test_hidden_lines_match_a_fresh_draw_without_them(demo, view):
     assert not np.array_equal(blitted, _pixels(scene.png()))
 
 
-def test_every_drawn_line_is_owned_by_its_name(demo):
-    machine, plan, fmap, table = demo
+def test_every_drawn_line_is_owned_by_its_name(demo_fold):
+    machine, plan, fmap, table = demo_fold
     scene = FoldScene(fmap, plan, table)
     # Every line of the machine is drawn (each has at least one segment on the grid).
     assert scene.line_names == frozenset(ln.name for ln in machine.lines())
@@ -65,16 +52,16 @@ def test_every_drawn_line_is_owned_by_its_name(demo):
     assert names and all(not scene._owners[t] for t in names)
 
 
-def test_showing_everything_again_gives_the_first_picture(demo):
-    machine, plan, fmap, table = demo
+def test_showing_everything_again_gives_the_first_picture(demo_fold):
+    machine, plan, fmap, table = demo_fold
     scene = FoldScene(fmap, plan, table, labels=False)
     first = scene.png()
     scene.png(frozenset(["motor shaft"]))
     assert scene.png(frozenset(ln.name for ln in machine.lines())) == first
 
 
-def test_legend_moves_to_html(demo):
-    machine, plan, fmap, table = demo
+def test_legend_moves_to_html(demo_fold):
+    machine, plan, fmap, table = demo_fold
     scene = FoldScene(fmap, plan, table)
     assert scene.ax.get_legend() is None
     for text in ("direct line (zone 0)", "Nyquist (1280 Hz)", "band: housing resonance", "source: stage 1"):
