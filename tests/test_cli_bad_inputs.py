@@ -394,8 +394,9 @@ CASES = [
     rcase("run-tacho-no-edges", good_run(**{"run.wav": wav_bytes(np.vstack([
         DATA[0], np.where(np.arange(N) < 600, 5.0, 0.0)]))}),
           r"^run\.wav: tacho channel 'tacho': no rising edges crossed the trigger band"),
-    rcase("run-channel-unknown", good_run(), r"^run\.wav: --channel: channel 'vibraton' not "
-          r"found; available: 1='vibration', 2='tacho'", args=("--channel", "vibraton")),
+    rcase("run-channel-unknown", good_run(), r"^--channel vibraton: not a channel of run\.wav: "
+          r"channel 'vibraton' not found; available: 1='vibration', 2='tacho'",
+          args=("--channel", "vibraton")),
     rcase("run-samples-per-rev-huge", good_run(), r"^--samples-per-rev 100000000: must be a "
           r"whole number from 8 to 65536", args=("--samples-per-rev", "100000000")),
     rcase("run-speed-table-above-nyquist", good_run(**{"speed.csv": "time_s,rpm\n0,1e308\n"

@@ -195,7 +195,7 @@ def test_track_channels_resolves_names_indices_and_all(run_file):
     m = track_channels(run_file, channels=("acc 2", 5, "acc 2"), samples_per_rev=32,
                        revs_per_block=8, rf_map=False, threads=1)
     assert m.channel_names == ("acc 2", "acc 5")
-    with pytest.raises(InputError, match="--channel.*not found"):
+    with pytest.raises(InputError, match=r"^channel = .*: not a channel of .*not found"):
         track_channels(run_file, channels=("acc 99",), rf_map=False)
     with pytest.raises(InputError, match="track_channels"):
         track_run(run_file, channel=[1, 2])

@@ -129,3 +129,16 @@ def test_integrated_overall_level_of_a_sinusoid(to):
     assert a.overall.unit == ("mm/s" if to == "velocity" else "um")
     plain = track_run(_run(f, amp), rpm=600.0, samples_per_rev=64, revs_per_block=8, rf_map=False)
     assert np.nanmedian(plain.overall.rms) == pytest.approx(amp / math.sqrt(2), rel=0.02)
+
+
+def test_core_arguments_are_named_by_field_and_the_command_names_its_option(capsys):
+    # A Python call names the argument; the command, through its one field -> option table,
+    # names the option the value came from (common practice, no source).
+    from workbench.angle.scaling import AmplitudeScaling
+    from workbench.cli.main import main
+
+    with pytest.raises(InputError, match=r"^db_ref = -1\.0: "):
+        AmplitudeScaling(db_ref=-1.0)
+    assert main(["track", "x.wav", "--db", "-1"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("foldline: error: --db -1"), err

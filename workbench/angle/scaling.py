@@ -78,13 +78,13 @@ class AmplitudeScaling:
     min_hz: float = DEFAULT_MIN_HZ
 
     def __post_init__(self):
-        # Named by the command's options, which are how an analyst sets them.
-        checks.choice(None, "--amplitude", self.amplitude, AMPLITUDES)
+        # Named by the fields; the command turns them into its options.
+        checks.choice(None, "amplitude", self.amplitude, AMPLITUDES)
         if self.integrate is not None:
-            checks.choice(None, "--integrate", self.integrate, INTEGRATIONS)
+            checks.choice(None, "integrate", self.integrate, INTEGRATIONS)
         if self.db_ref is not None:
-            checks.positive(None, "--db", self.db_ref, unit="the reference, in the shown unit")
-        checks.positive(None, "--integrate-from", self.min_hz, unit="Hz")
+            checks.positive(None, "db_ref", self.db_ref, unit="the reference, in the shown unit")
+        checks.positive(None, "min_hz", self.min_hz, unit="Hz")
 
     @property
     def is_identity(self) -> bool:

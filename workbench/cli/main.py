@@ -63,11 +63,7 @@ def main(argv=None) -> int:
             warnings.showwarning = _show_warning  # restored when the block ends
             return int(args.func(args) or 0)
     except (_UsageError, FoldlineError) as exc:
-        settings = sys.modules.get("workbench.runs.settings")
-        if settings is not None and isinstance(exc, settings.SettingError):
-            from workbench.cli.options import flag_error   # in the words of the command line
-
-            exc = flag_error(exc, locals().get("args"))
+        exc = _in_flags(exc, locals().get("args"))
         _fail(str(exc))
         return 2
     except FileNotFoundError as exc:
@@ -89,6 +85,26 @@ def main(argv=None) -> int:
             raise
         _fail(f"internal error: {type(exc).__name__}: {exc} (set FOLDLINE_DEBUG=1 for details)", status="")
         return 1
+
+
+def _in_flags(exc, args):
+    """A core error about a named setting or argument, in the words of the command line.
+
+    The core names its fields (``samples_per_rev = 3: ...``); the options they come from are
+    in one table (:data:`workbench.cli.options.FIELD_FLAGS`).  Translated: a tracking
+    setting's error, and a function argument's (a :class:`~workbench.checks.FieldError` with
+    no owner) whose field the table knows.  Errors about a file's contents keep their words.
+    """
+    checks = sys.modules.get("workbench.checks")
+    if checks is None or not isinstance(exc, checks.FieldError):
+        return exc
+    from workbench.cli.options import FIELD_FLAGS, flag_error
+
+    settings = sys.modules.get("workbench.runs.settings")
+    if (settings is not None and isinstance(exc, settings.SettingError)) or (
+            exc.owner is None and exc.field in FIELD_FLAGS):
+        return flag_error(exc, args)
+    return exc
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:

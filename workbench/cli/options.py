@@ -63,6 +63,9 @@ FIELD_FLAGS = {
     "cut_bandwidth_orders": "--cut-bandwidth", "overall_band_hz": "--overall-band",
     "integrate": "--integrate", "integrate_from_hz": "--integrate-from", "protect": "--no-protect",
     "aa_filter": "--plan",
+    # not tracking settings, but arguments of the core the command's options feed
+    "channel": "--channel", "amplitude": "--amplitude", "db_ref": "--db", "min_hz": "--integrate-from",
+    "labels": "--labels",
 }
 #: Keys whose option name is not ``--`` plus the key with dashes (kept for callers).
 OPTION_NAMES = {k: v for k, v in FIELD_FLAGS.items() if v != "--" + k.replace("_", "-")}
@@ -83,8 +86,12 @@ def flag_error(exc, args=None):
     """
     import re
 
+    from workbench.checks import NO_VALUE
+
     def said(field, value):
         flag = option_name(field)
+        if value is NO_VALUE:
+            return flag
         given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
         if given is None:
             given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \

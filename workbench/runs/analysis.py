@@ -25,7 +25,7 @@ import pandas as pd
 from workbench.angle import PulseDetector, ShaftAngle, tacho_angle
 from workbench.errors import FoldlineWarning, InputError, RunFileError, TachoError
 from workbench.runs.run import Run
-from workbench.checks import is_number
+from workbench.checks import FieldError, is_number
 from workbench.runs.settings import SettingError, TrackingSettings, check_speed_sources, usable_max_order
 
 __all__ = ["RunAnalysis", "MultiRunAnalysis", "track_run", "track_channels", "vibration_channels",
@@ -299,19 +299,24 @@ def unmatched_records(table) -> list:
     ]
 
 
-def _channel_index(run: Run, ch, option: str) -> int:
-    """Row of channel ``ch``; an unknown one names the run file and the option it came from."""
+def _channel_index(run: Run, ch, field: str) -> int:
+    """Row of channel ``ch``; an unknown one names the setting it came from and the run file.
+
+    ``field`` is the setting's name (``channel``, ``tacho``, ``speed_channel``): a Python call
+    reads ``channel = "vibraton": not a channel of run.wav: ...``; the command names its option.
+    """
     try:
         return run.channel_index(ch)
     except InputError as exc:
-        raise InputError(f"{run.source or '<memory>'}: {option}: {exc}") from None
+        raise FieldError(None, field, f"not a channel of {run.source or '<memory>'}: {exc}",
+                         value=ch) from None
 
 
 def _vibration_channel(run: Run, channel, speed_channel=None):
     if channel is not None:
-        return _channel_index(run, channel, "--channel")
+        return _channel_index(run, channel, "channel")
     tacho = run.tacho_index
-    skip = None if speed_channel is None else _channel_index(run, speed_channel, "--speed-channel")
+    skip = None if speed_channel is None else _channel_index(run, speed_channel, "speed_channel")
     for i in range(run.n_channels):
         if i != tacho and i != skip:
             return i
@@ -354,16 +359,16 @@ def vibration_channels(run: Run, channels=None, *, tacho=None,
                                                 and channels in run.channel_names):
         if isinstance(channels, str) and channels.strip().lower() == "all":
             t = tacho if tacho is not None else run.tacho
-            skip = {None if t is None else _channel_index(run, t, "--tacho")}
+            skip = {None if t is None else _channel_index(run, t, "tacho")}
             if speed_channel is not None:
-                skip.add(_channel_index(run, speed_channel, "--speed-channel"))
+                skip.add(_channel_index(run, speed_channel, "speed_channel"))
             rows = tuple(i for i in range(run.n_channels) if i not in skip)
             if not rows:
                 raise RunFileError(f"{run.source}: --channel all: the run has only the tacho "
                                    "channel; there is no vibration channel to track")
             return rows
         channels = (channels,)
-    rows = tuple(dict.fromkeys(_channel_index(run, c, "--channel") for c in channels))
+    rows = tuple(dict.fromkeys(_channel_index(run, c, "channel") for c in channels))
     if not rows:
         raise InputError("--channel: no channel given; name one or more (1-based index or "
                          "name), or all")
@@ -434,7 +439,7 @@ def run_speed_estimate(run: Run, *, speed_order=None, speed_range=None, speed_ch
                                         order=float(speed_order), rpm_range=speed_range)
         except InputError as exc:
             raise InputError(f"{source}: channel '{vib}': --speed-order: {exc}") from None
-    name = run.channels[_channel_index(run, speed_channel, "--speed-channel")].name
+    name = run.channels[_channel_index(run, speed_channel, "speed_channel")].name
     try:
         return speed_from_channel(lambda: run.iter_chunks(name, chunk), run.rate_hz,
                                   scale=float(speed_scale))
@@ -518,7 +523,7 @@ def tacho_pulses(run: Run, tacho=None, chunk=None):
             "sidecar), or give the speed with --rpm, --speed-table, --speed-order K "
             "--speed-range LO,HI (from the vibration) or --speed-channel CH --speed-scale S"
         )
-    name = run.channels[_channel_index(run, tacho_ch, "--tacho")].name
+    name = run.channels[_channel_index(run, tacho_ch, "tacho")].name
     try:
         detector = PulseDetector(run.rate_hz)
         for piece in run.iter_chunks(name, chunk):

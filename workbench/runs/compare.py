@@ -17,6 +17,7 @@ import numpy as np
 import pandas as pd
 
 from workbench.errors import InputError
+from workbench.checks import FieldError
 
 __all__ = ["RunComparison", "compare_runs", "run_direction"]
 
@@ -141,7 +142,8 @@ def compare_runs(analyses, *, labels=None, n_grid=400) -> RunComparison:
             labels = [f"{i + 1}: {lab}" for i, lab in enumerate(labels)]
     labels = tuple(str(v) for v in labels)
     if len(labels) != len(analyses) or len(set(labels)) != len(labels):
-        raise InputError(f"--labels: give {len(analyses)} different labels, one per run; got {list(labels)}")
+        raise FieldError(None, "labels", f"give {len(analyses)} different labels, one per run",
+                         value=list(labels))
     units = {a.unit for a in analyses}
     notes = []
     if len(units) > 1:

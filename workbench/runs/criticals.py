@@ -143,7 +143,7 @@ def _channels(run: Run, channel) -> list[int]:
     if channel is None or isinstance(channel, int):
         return [_vibration_channel(run, channel)]
     if isinstance(channel, (list, tuple)):
-        return [_channel_index(run, c, "--channel") for c in channel]
+        return [_channel_index(run, c, "channel") for c in channel]
     text = str(channel).strip()
     if text == "all":
         rows = [i for i in range(run.n_channels) if i != run.tacho_index]
@@ -152,7 +152,7 @@ def _channels(run: Run, channel) -> list[int]:
         return rows
     if "," in text:
         parts = [p.strip() for p in text.split(",") if p.strip()]
-        return [_channel_index(run, int(p) if p.isdigit() else p, "--channel") for p in parts]
+        return [_channel_index(run, int(p) if p.isdigit() else p, "channel") for p in parts]
     return [_vibration_channel(run, int(text) if text.isdigit() else text)]
 
 
