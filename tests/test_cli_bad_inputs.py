@@ -349,7 +349,7 @@ CASES = [
           r" allowed keys are rates_hz, filter"),
     # ---------------------------------------------------------------- command options
     Case("option-rate-negative", {}, ["alias", "100", "--rate", "-5"],
-         r"^--rate = -5\.0: must be a positive number"),
+         r"^--rate -5: must be a positive, finite sample rate \(Hz\)"),
     Case("option-rate-text", {}, ["alias", "100", "--rate", "fast"],
          r"^argument --rate: invalid float value: 'fast' \(see 'foldline alias --help'\)"),
     Case("option-png-unknown-extension", {M: MACHINE, P: PLAN}, [*FOLDMAP[:-1], "fig.bmpx"],

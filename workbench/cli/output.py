@@ -14,7 +14,7 @@ from pathlib import Path
 
 from workbench.errors import InputError, OutputExistsError
 
-__all__ = ["jsonable", "emit_json", "thin", "MAX_JSON_POINTS", "finish", "positive_number", "check_out_folder",
+__all__ = ["jsonable", "emit_json", "thin", "MAX_JSON_POINTS", "finish", "rate_option", "check_out_folder",
            "channel_folders", "write_csv", "print_frame", "print_table"]
 
 
@@ -77,17 +77,18 @@ def finish(args, result: dict, show, files=()) -> int:
     return 0
 
 
-def positive_number(value, name: str) -> float:
-    """A command-line number that must be finite and above 0 (``--rate``), as float.
+def rate_option(value, name: str = "--rate") -> float:
+    """A sample rate given on the command line (``--rate``), as float.
 
-    The rule is :func:`workbench.checks.real`'s; the message names the option as typed.
+    The rule is the one of every sample rate (:func:`workbench.checks.rate_hz`); the message
+    names the option as the command's messages do: ``--rate -1: must be a positive, ...``.
     """
-    from workbench.checks import FieldError, real
+    from workbench.checks import RATE_RULE, FieldError, rate_hz
 
     try:
-        return real(name, "value", value, low=0.0, low_open=True)
+        return rate_hz(None, "rate_hz", value)
     except FieldError:
-        raise InputError(f"{name} = {value!r}: must be a positive number") from None
+        raise InputError(f"{name} {value:g}: {RATE_RULE}") from None
 
 
 def check_out_folder(out: Path, names=(), *, force: bool, hint: str = "") -> None:

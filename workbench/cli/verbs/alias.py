@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from workbench.cli.output import finish, positive_number
+from workbench.cli.output import finish, rate_option
 from workbench.cli.verbs import add_verb
 from workbench.errors import InputError
 
@@ -19,7 +19,7 @@ def cmd_alias(args) -> int:
     from workbench.sampling.folding import apparent_frequency, nyquist_zone
     from workbench.sampling.guards import warn_implausible_rate
 
-    rate = positive_number(args.rate, "--rate")
+    rate = rate_option(args.rate)
     warn_implausible_rate(rate, name="--rate")
     freqs = np.array(args.frequencies, dtype=float)
     if not np.all(np.isfinite(freqs)) or np.any(freqs < 0):

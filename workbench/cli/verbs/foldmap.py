@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from workbench.cli.output import finish, positive_number, print_table
+from workbench.cli.output import finish, rate_option, print_table
 from workbench.cli.verbs import add_verb
 
 __all__ = ["register", "cmd_foldmap", "collision_records", "print_collisions"]
@@ -30,7 +30,7 @@ def cmd_foldmap(args) -> int:
     machine = read_machine(args.machine)
     plan = read_plan(args.plan)
     plan.check_against(machine.lines())
-    rate = positive_number(args.rate, "--rate")
+    rate = rate_option(args.rate)
     if args.png:  # refuse an existing figure (or a missing folder) before the work, not after
         from workbench.fileio import check_writable
 

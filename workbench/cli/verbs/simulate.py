@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from workbench.cli.output import finish, positive_number
+from workbench.cli.output import finish, rate_option
 from workbench.cli.verbs import add_verb
 from workbench.errors import InputError
 
@@ -22,7 +22,7 @@ def cmd_simulate(args) -> int:
 
     machine = read_machine(args.machine)
     plan = read_plan(args.plan)
-    rate = positive_number(args.rate, "--rate")
+    rate = rate_option(args.rate)
     warn_implausible_rate(rate, lines=machine.lines(), top_rpm=plan.speed.rpm_max, name="--rate")
     out = Path(args.out)
     if out.suffix.lower() != ".wav":
