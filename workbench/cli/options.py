@@ -93,6 +93,8 @@ def flag_error(exc, args=None):
         if value is NO_VALUE:
             return flag
         given = getattr(args, flag.lstrip("-").replace("-", "_"), None) if args is not None else None
+        if isinstance(given, float):
+            given = f"{given:g}"
         if given is None:
             given = ",".join(f"{v:g}" if isinstance(v, float) else str(v) for v in value) \
                 if isinstance(value, (tuple, list)) else (f"{value:g}" if isinstance(value, float)
