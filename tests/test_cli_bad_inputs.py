@@ -27,42 +27,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from builders import RIG_MACHINE
+
 FOLDLINE = Path(sys.executable).with_name("foldline")
 
 # ------------------------------------------------------------------------------------------
 # Base files (valid); each case edits one thing.
 # ------------------------------------------------------------------------------------------
-MACHINE = """\
-[machine]
-name = "test rig"
-reference = "input"
-
-[[shaft]]
-name = "input"
-
-[[shaft]]
-name = "output"
-
-[[gear_stage]]
-name = "stage 1"
-driver = "input"
-driven = "output"
-driver_teeth = 20
-driven_teeth = 40
-
-[[bearing]]
-name = "output NDE"
-shaft = "output"
-rolling_elements = 9
-element_diameter = 7.94
-pitch_diameter = 39.04
-contact_angle_deg = 0.0
-
-[[rotor]]
-name = "fan"
-shaft = "input"
-count = 7
-"""
+MACHINE = RIG_MACHINE.read_text()   # the small test rig (tests/data), valid
 
 PLANETARY = """\
 [machine]
@@ -240,9 +212,10 @@ def good_run(**changes):
 DATA = signals()
 CASES = [
     # ---------------------------------------------------------------- machine files
+    # the damaged line is the second [[shaft]] header, line 10 of tests/data/machine_test_rig.toml
     mcase("machine-toml-syntax", edit(MACHINE, "[[shaft]]\nname = \"output\"",
                                       "[[shaft]\nname = \"output\""),
-          r"^m\.toml: not valid TOML: .*\(at line 8, column \d+\)"),
+          r"^m\.toml: not valid TOML: .*\(at line 10, column \d+\)"),
     mcase("machine-teeth-string", edit(MACHINE, "driver_teeth = 20", 'driver_teeth = "20"'),
           r"^m\.toml: \[\[gear_stage\]\] 'stage 1': driver_teeth = \"20\": must be a positive "
           r"integer \(got a string\)"),

@@ -8,32 +8,9 @@ from workbench.machine import machine_from_dict
 from workbench.runs.cut_orders import default_cut_orders
 from workbench.sampling import plan_from_dict
 
-MACHINE = """
-[machine]
-name = "rig"
-reference = "input"
+from builders import RIG_MACHINE
 
-[[shaft]]
-name = "input"
-
-[[shaft]]
-name = "output"
-
-[[gear_stage]]
-name = "stage 1"
-driver = "input"
-driven = "output"
-driver_teeth = 20
-driven_teeth = 40
-
-[[bearing]]
-name = "output NDE"
-shaft = "output"
-rolling_elements = 9
-element_diameter = 7.94
-pitch_diameter = 39.04
-contact_angle_deg = 0.0
-"""
+MACHINE = RIG_MACHINE.read_text()   # the small test rig (tests/data)
 
 PLAN = """
 [speed]
