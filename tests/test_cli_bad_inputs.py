@@ -403,8 +403,8 @@ CASES = [
          r"^run\.wav: this looks like a run file \(recorded or simulated samples\), not the "
          r"machine file"),
     Case("run-is-a-machine", {M: MACHINE}, ["track", M, *TRACK_OUT, "--json"],
-         r"^m\.toml: this looks like a machine file .*, not the run file \(WAV, CSV, NPZ or MAT\); "
-         r"give the recorded run here", outputs=("result",)),
+         r"^m\.toml: this looks like a machine file .*, not the run file "
+         r"\(WAV, CSV, NPZ, MAT, MF4 or HDF5\); give the recorded run here", outputs=("result",)),
     Case("run-is-a-sidecar", {"run.wav": GOOD_WAV, "run.json": sidecar()},
          ["track", "run.json", *TRACK_OUT, "--json"],
          r"^run\.json: this looks like a run's JSON sidecar, not the run file", outputs=("result",)),

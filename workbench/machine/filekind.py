@@ -81,7 +81,7 @@ _WHAT = {
 }
 _EXPECT = {"machine": "the machine file (TOML with [machine], [[shaft]], ...)",
            "plan": "the plan file (TOML with [speed] and [acquisition])",
-           "run": "the run file (WAV, CSV, NPZ or MAT)"}
+           "run": "the run file (WAV, CSV, NPZ, MAT, MF4 or HDF5)"}
 
 
 def wrong_file_hint(path, expected: str, *, tables=None) -> str:

@@ -606,7 +606,7 @@ def track_channels(run_or_path, *, channels=None, machine=None, settings=None, r
     Parameters
     ----------
     run_or_path : Run or path-like
-        The run, or its file (WAV, CSV, NPZ or MAT, with its sidecar).
+        The run, or its file (WAV, CSV, NPZ, MAT, MF4 or HDF5, with its sidecar).
     settings : TrackingSettings, optional
         How to track (default ``TrackingSettings()``); the keyword options below, when given,
         replace its fields (they are the fields of :class:`TrackingSettings`).
