@@ -12,7 +12,7 @@ The rules that derive one setting from others live here too, once:
   ANALYSER_FACTOR`` unless given (the analyser convention: a sample rate 2.56 times the
   highest frequency of interest, common practice);
 * :meth:`TrackingSettings.tacho_tolerance`: the tacho stage's speed tolerance, from the order
-  error budget (:func:`~workbench.angle.tacho.speed_tolerance_for`) unless given;
+  error budget (:func:`~workbench.angle.pulse_timing.speed_tolerance_for`) unless given;
 * :meth:`TrackingSettings.cut_orders_for`: the orders cut when none are asked for
   (the rule of :func:`~workbench.runs.cut_orders.default_cut_orders`).
 """
@@ -23,6 +23,7 @@ import math
 from dataclasses import dataclass, fields, replace
 from pathlib import Path
 
+from workbench.angle.scaling import DEFAULT_MIN_HZ, INTEGRATIONS as _INTEGRATIONS
 from workbench.checks import FieldError, is_number, show
 from workbench.sampling import ANALYSER_FACTOR
 
@@ -48,7 +49,6 @@ TRACK_WINDOWS = ("hann", "flattop", "hamming", "blackmanharris", "boxcar")
 #: Fields that say where the speed comes from (the keyword options of ``run_speed``).
 SPEED_FIELDS = ("tacho", "pulses_per_rev", "missing_pulses", "rpm", "speed_table",
                 "speed_tolerance", "speed_order", "speed_range", "speed_channel", "speed_scale")
-from workbench.angle.scaling import DEFAULT_MIN_HZ, INTEGRATIONS as _INTEGRATIONS  # noqa: E402
 
 
 class SettingError(FieldError):
