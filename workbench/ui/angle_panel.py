@@ -612,11 +612,7 @@ class AngleDomainPanel:
                 items = [(folder / self._FIGURE_FILES[w], w) for w in self.FIGURES]
             else:
                 raise InputError(f"export {what!r}: choose 'tables' or 'figures'")
-            existing = [p.name for p, _ in items if p.exists()]
-            if existing and not force:
-                raise OutputExistsError(f"{folder}: {', '.join(existing)} exist(s) already; nothing "
-                                        "written. Tick 'overwrite files' or choose another folder")
-            folder.mkdir(parents=True, exist_ok=True)
+            self._prepare_folder(folder, [p for p, _ in items], force)
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore", FoldlineWarning)
                 for path, item in items:
@@ -627,12 +623,27 @@ class AngleDomainPanel:
                     else:
                         written.append(save_figure(self.figure(item), path, force=force))
         except (FoldlineError, OSError) as exc:
+            return self._exported(what, written, exc)
+        return self._exported(what, written)
+
+    @staticmethod
+    def _prepare_folder(folder: Path, paths, force: bool) -> None:
+        """Refuse, before anything is written, when a file exists already (unless ``force``);
+        then create ``folder``."""
+        existing = [p.name for p in paths if p.exists()]
+        if existing and not force:
+            raise OutputExistsError(f"{folder}: {', '.join(existing)} exist(s) already; nothing "
+                                    "written. Tick 'overwrite files' or choose another folder")
+        folder.mkdir(parents=True, exist_ok=True)
+
+    def _exported(self, what, written, exc=None) -> list:
+        """Show what an export wrote (and why it stopped, on ``exc``); return the paths."""
+        self.error = exc
+        if exc is None:
+            self.status.value = STYLE + self._written_html(written)
+        else:
             self.status.value = (STYLE + self._not_exported_html(what, written) + error_html(exc)
                                  + self._written_html(written))
-            self.error = exc
-            return written
-        self.error = None
-        self.status.value = STYLE + self._written_html(written)
         return written
 
     @staticmethod
@@ -760,22 +771,13 @@ class AngleDomainPanel:
         written = []
         try:
             ex = self.extraction()
-            existing = [p.name for p in order_files(ex.orders, folder) if p.exists()]
-            if existing and not force:
-                raise OutputExistsError(f"{folder}: {', '.join(existing)} exist(s) already; nothing "
-                                        "written. Tick 'overwrite files' or choose another folder")
-            folder.mkdir(parents=True, exist_ok=True)
+            self._prepare_folder(folder, order_files(ex.orders, folder), force)
             for o in ex.orders:
                 written.append(write_order_waveform(ex, o, folder, force=force))
                 written.append(write_order_envelope(ex, o, folder, force=force))
         except (FoldlineError, OSError) as exc:
-            self.status.value = STYLE + self._not_exported_html("waveforms", written) + error_html(
-                exc) + self._written_html(written)
-            self.error = exc
-            return written
-        self.error = None
-        self.status.value = STYLE + self._written_html(written)
-        return written
+            return self._exported("waveforms", written, exc)
+        return self._exported("waveforms", written)
 
     @staticmethod
     def _not_exported_html(what, written) -> str:
