@@ -24,7 +24,7 @@ from dataclasses import dataclass, fields, replace
 from pathlib import Path
 
 from workbench.angle.scaling import DEFAULT_MIN_HZ, INTEGRATIONS as _INTEGRATIONS
-from workbench.checks import FieldError, is_number, show
+from workbench.checks import FieldError, is_number, positive_int, real, show
 from workbench.sampling import ANALYSER_FACTOR
 
 __all__ = ["TrackingSettings", "SettingError", "usable_max_order", "check_speed_sources",
@@ -83,20 +83,22 @@ def usable_max_order(samples_per_rev) -> float:
     return float(samples_per_rev) / ANALYSER_FACTOR
 
 
-def _number(name, value, *, low=None, low_open=True, high=None, rule=None):
-    if not is_number(value) or not math.isfinite(float(value)):
-        raise SettingError(name, value, rule or "must be a finite number")
-    x = float(value)
-    if (low is not None and (x < low or (low_open and x == low))) or (high is not None and x >= high):
-        raise SettingError(name, value, rule or f"must be above {low:g}")
-    return x
+def _number(name, value, *, rule, low=None, low_open=True, high=None):
+    """``value`` as float when :func:`workbench.checks.real` accepts it (``high`` excluded);
+    else a :class:`SettingError` worded with this setting's ``rule``."""
+    try:
+        return real(None, name, value, low=low, low_open=low_open, high=high, high_open=True)
+    except FieldError:
+        raise SettingError(name, value, rule) from None
 
 
 def _whole(name, value, *, low, rule):
-    if not is_number(value) or not math.isfinite(float(value)) or float(value) != int(value) \
-            or int(value) < low:
-        raise SettingError(name, value, rule)
-    return int(value)
+    """``value`` as int when :func:`workbench.checks.positive_int` accepts it (from ``low``);
+    else a :class:`SettingError` worded with this setting's ``rule``."""
+    try:
+        return positive_int(None, name, value, low=low)
+    except FieldError:
+        raise SettingError(name, value, rule) from None
 
 
 def _pair(name, value, *, low_closed: bool, unit: str):
