@@ -6,7 +6,6 @@ Pickled object arrays are refused (``allow_pickle=False``): loading a pickle can
 
 from __future__ import annotations
 
-import math
 import zipfile
 import zlib
 from pathlib import Path
@@ -14,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from workbench.checks import RATE_RULE, describe
+from workbench.checks import FieldError, rate_hz
 from workbench.errors import RunFileError
 from workbench.fileio import atomic_output
 from workbench.runs.formats.base import FormatRead, ReadRequest
@@ -61,9 +60,10 @@ def read(path: Path, request: ReadRequest) -> FormatRead:
             if r.size != 1 or r.dtype.kind not in "iuf":
                 raise RunFileError(f"{path}: key 'rate_hz' must be one number, not {r.dtype} "
                                    f"of shape {r.shape}")
-            rate = float(r.reshape(()))
-            if not (math.isfinite(rate) and rate > 0):
-                raise RunFileError(f"{path}: key {describe('rate_hz', rate, RATE_RULE)}")
+            try:
+                rate = rate_hz(None, "rate_hz", float(r.reshape(())))
+            except FieldError as exc:
+                raise RunFileError(f"{path}: key {exc}") from None
         names = None
         if "channel_names" in keys:
             cn = get("channel_names")
